@@ -1,0 +1,2 @@
+//! Analysis of the board as built: tolerance study, sensitivities, noise, time response, poles,
+//! stage levels and op-amp requirements.

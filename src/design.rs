@@ -1,0 +1,1 @@
+//! The composer: requirement → response → sections → stages → standard values → board.

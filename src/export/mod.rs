@@ -1,0 +1,1 @@
+//! Outputs: SPICE netlist, parts list (CSV), design JSON, text report.

@@ -1,0 +1,2 @@
+//! `rolloff`: the command-line companion.
+fn main() {}

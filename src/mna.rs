@@ -1,0 +1,1 @@
+//! Complex modified nodal analysis of stage netlists with the op-amp model.

@@ -1,0 +1,57 @@
+//! The op-amp model shared by the nodal analysis, the SPICE export and the noise analysis.
+
+use serde::Serialize;
+
+/// A voltage-feedback op amp: open-loop gain A(s) = A0 / (1 + s/wp) with wp = 2π·GBW/A0 (one pole,
+/// so |A| falls through 1 at GBW), an output resistance in series with the ideal output, and
+/// input-referred noise densities. `OpAmp::ideal()` is the limit A0 → ∞, GBW → ∞, Rout → 0.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct OpAmp {
+    /// Gain-bandwidth product, Hz (`gbw`). `f64::INFINITY` for ideal.
+    pub gbw_hz: f64,
+    /// Open-loop DC gain, dB (`a0`). `f64::INFINITY` for ideal.
+    pub a0_db: f64,
+    /// Open-loop output resistance, Ω (`rout`).
+    pub rout_ohm: f64,
+    /// Input voltage noise density, V/√Hz (white).
+    pub en_v_per_rthz: f64,
+    /// Input current noise density, A/√Hz (white), at each input.
+    pub in_a_per_rthz: f64,
+    /// Slew rate, V/s, used for the slew check.
+    pub slew_v_per_s: f64,
+}
+
+impl OpAmp {
+    /// The documented default: a generic general-purpose part (1 MHz GBW, 100 dB, 50 Ω, 10 nV/√Hz,
+    /// 1 pA/√Hz, 0.5 V/µs). Not any vendor's part.
+    pub const GENERIC: OpAmp = OpAmp {
+        gbw_hz: 1.0e6,
+        a0_db: 100.0,
+        rout_ohm: 50.0,
+        en_v_per_rthz: 10.0e-9,
+        in_a_per_rthz: 1.0e-12,
+        slew_v_per_s: 0.5e6,
+    };
+
+    /// The ideal op amp: infinite gain and bandwidth, zero output resistance, noiseless.
+    pub fn ideal() -> OpAmp {
+        OpAmp {
+            gbw_hz: f64::INFINITY,
+            a0_db: f64::INFINITY,
+            rout_ohm: 0.0,
+            en_v_per_rthz: 0.0,
+            in_a_per_rthz: 0.0,
+            slew_v_per_s: f64::INFINITY,
+        }
+    }
+
+    /// True when the gain is infinite (the nodal analysis then uses a nullor).
+    pub fn is_ideal_gain(&self) -> bool {
+        !self.a0_db.is_finite() && !self.gbw_hz.is_finite()
+    }
+
+    /// Open-loop DC gain as a ratio, V/V.
+    pub fn a0(&self) -> f64 {
+        10f64.powf(self.a0_db / 20.0)
+    }
+}

@@ -1,0 +1,1 @@
+//! Minimum order of each family for a specification mask.

@@ -1,0 +1,1 @@
+//! Normalized low-pass prototypes: the poles of each family at 1 rad/s.

@@ -1,0 +1,117 @@
+//! The requirement: what the user asks of the filter, as validated values.
+//!
+//! A [`Requirement`] is what [`crate::link`] parses from the query string. Everything downstream
+//! (order, prototype, transform, sections) reads only this type.
+
+use serde::Serialize;
+
+/// Which band the filter passes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub enum ResponseClass {
+    /// Passes below the cutoff (link value `lp`).
+    LowPass,
+    /// Passes above the cutoff (link value `hp`).
+    HighPass,
+    /// Passes between two edges around a geometric centre (link value `bp`).
+    BandPass,
+}
+
+impl ResponseClass {
+    /// The link value: `lp`, `hp` or `bp`.
+    pub fn key(self) -> &'static str {
+        match self {
+            Self::LowPass => "lp",
+            Self::HighPass => "hp",
+            Self::BandPass => "bp",
+        }
+    }
+}
+
+/// The response family of the normalized low-pass prototype.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub enum Family {
+    /// Maximally flat magnitude; −3.01 dB at the cutoff.
+    Butterworth,
+    /// Chebyshev type I: equiripple passband of `ripple_db`; the cutoff is the ripple-band edge.
+    Chebyshev {
+        /// Peak-to-peak passband ripple in dB, 0.01–3.
+        ripple_db: f64,
+    },
+    /// Maximally flat group delay, normalized so the cutoff is the −3.01 dB point.
+    Bessel,
+    /// A squared Butterworth of half the order: even orders only, −6.02 dB at the cutoff.
+    LinkwitzRiley,
+    /// Coincident real poles (critically damped), scaled so the cutoff is the −3.01 dB point.
+    Critical,
+}
+
+impl Family {
+    /// The link value: `butterworth`, `chebyshev`, `bessel`, `linkwitz-riley`, `critical`.
+    pub fn key(self) -> &'static str {
+        match self {
+            Self::Butterworth => "butterworth",
+            Self::Chebyshev { .. } => "chebyshev",
+            Self::Bessel => "bessel",
+            Self::LinkwitzRiley => "linkwitz-riley",
+            Self::Critical => "critical",
+        }
+    }
+}
+
+/// A frequency edge of the specification: one frequency for low- and high-pass, a pair for band-pass.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub enum Edge {
+    /// Low-pass or high-pass edge, Hz.
+    Single(f64),
+    /// Band-pass edges `(lo, hi)`, Hz, `lo < hi`.
+    Pair(f64, f64),
+}
+
+/// The specification mask: the passband edge with the attenuation allowed there, and the
+/// stopband edge with the attenuation required there. Attenuations are positive dB relative to
+/// the passband gain.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Mask {
+    /// Passband edge (`fpass`).
+    pub pass: Edge,
+    /// Largest attenuation allowed anywhere in the passband, dB (`apass`).
+    pub apass_db: f64,
+    /// Stopband edge (`fstop`).
+    pub stop: Edge,
+    /// Smallest attenuation required anywhere in the stopband, dB (`astop`).
+    pub astop_db: f64,
+}
+
+/// How the order is set.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub enum OrderChoice {
+    /// The user fixed the order (`order`); for band-pass it counts the poles of the whole filter.
+    Fixed(usize),
+    /// The order is the minimum that meets the mask.
+    FromMask,
+}
+
+/// A validated requirement.
+///
+/// Invariants (established by [`crate::link`]): `FromMask` implies `mask.is_some()`; a fixed
+/// order is 1–20 (even for band-pass and Linkwitz-Riley); band-pass has either `fc_hz` and `bw_hz`
+/// or a mask; the mask's edges are consistent with the class (stopband outside the passband,
+/// `astop_db > apass_db`).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Requirement {
+    /// Low-pass, high-pass or band-pass.
+    pub class: ResponseClass,
+    /// Response family (Chebyshev carries its ripple).
+    pub family: Family,
+    /// Fixed order or order from the mask.
+    pub order: OrderChoice,
+    /// lp/hp: cutoff, Hz (Chebyshev: ripple-band edge); bp: geometric centre, Hz. `None` when it
+    /// follows from the mask.
+    pub fc_hz: Option<f64>,
+    /// bp: bandwidth between the passband edges, Hz.
+    pub bw_hz: Option<f64>,
+    /// The specification mask, when the link has one.
+    pub mask: Option<Mask>,
+    /// Overall passband gain, dB.
+    pub gain_db: f64,
+}

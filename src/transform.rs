@@ -1,0 +1,1 @@
+//! Frequency transforms of the normalized low-pass prototype: low-pass, high-pass, band-pass.

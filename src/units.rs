@@ -1,0 +1,1 @@
+//! Engineering notation: SI prefixes and the IEC 60062 resistor/capacitor code.

@@ -1,0 +1,1 @@
+//! The wasm facade: the only module that knows JavaScript types.
