@@ -14,4 +14,5 @@ echo "== cargo fmt --check =="
 cargo fmt --all -- --check
 
 echo "== native tests =="
-cargo test --all-targets --no-fail-fast
+cargo test --no-fail-fast
+cargo bench --no-run
