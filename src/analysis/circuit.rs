@@ -1,0 +1,605 @@
+//! A compact nodal assembler used by the analyses: a stage netlist (or a whole board merged into
+//! one netlist) becomes two real matrices, `M(s) = G + s·C`, so that the tolerance study can
+//! restamp part values cheaply and the polynomial fit can solve at a handful of complex points.
+//!
+//! Formulation (modified nodal analysis, reduced):
+//! - the unknowns are the node voltages except the input node, plus one internal node per op amp
+//!   with a non-zero output resistance;
+//! - the input node is driven by an ideal source: its column moves to the right-hand side and its
+//!   current equation is dropped;
+//! - an op amp is `v_int · (1/A(s)) = V+ − V−` with `1/A(s) = 1/A0 + s/(2π·GBW)` (the single-pole
+//!   model of [`crate::opamp::OpAmp`]), `Rout` from `v_int` to the output pin. The ideal source
+//!   inside the op amp is grounded, so its current appears only in the current equation of its
+//!   own node; that equation is replaced by the gain constraint. With `Rout = 0` the internal node
+//!   is the output pin itself and the output pin's current equation is the one replaced. With an
+//!   ideal op amp (`1/A = 0`) the constraint is the nullor `V+ = V−`.
+//!
+//! This is an independent implementation of the same model as [`crate::mna`]; the tests check one
+//! against the other.
+
+use crate::error::InputError;
+use crate::netlist::{Node, PartKind, StageNetlist};
+use crate::opamp::OpAmp;
+use num_complex::Complex64;
+use std::fmt;
+
+/// Why an analysis could not produce a value.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub enum AnalysisError {
+    /// A setting of the analysis is out of range (names the link key).
+    Input(InputError),
+    /// The circuit equations are singular at some frequency; the text names the likely cause.
+    Singular(String),
+    /// The netlist breaks an invariant of the netlist type (a node out of range, a part with the
+    /// wrong number of pins, a non-positive value).
+    BadNetlist(String),
+    /// An iteration did not converge (root finder, bisection); the text says which.
+    NoConvergence(String),
+}
+
+impl fmt::Display for AnalysisError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            AnalysisError::Input(e) => write!(f, "{e}"),
+            AnalysisError::Singular(m) => write!(f, "singular circuit equations: {m}"),
+            AnalysisError::BadNetlist(m) => write!(f, "netlist: {m}"),
+            AnalysisError::NoConvergence(m) => write!(f, "no convergence: {m}"),
+        }
+    }
+}
+
+impl std::error::Error for AnalysisError {}
+
+impl From<InputError> for AnalysisError {
+    fn from(e: InputError) -> Self {
+        AnalysisError::Input(e)
+    }
+}
+
+/// The op-amp coefficients of `1/A(s) = a + b·s`: `a = 1/A0` (0 when A0 is infinite),
+/// `b = 1/(2π·GBW)` in s (0 when GBW is infinite).
+pub fn inverse_gain_coefficients(op: &OpAmp) -> (f64, f64) {
+    let a = if op.a0_db.is_finite() {
+        1.0 / op.a0()
+    } else {
+        0.0
+    };
+    let b = if op.gbw_hz.is_finite() && op.gbw_hz > 0.0 {
+        1.0 / (2.0 * std::f64::consts::PI * op.gbw_hz)
+    } else {
+        0.0
+    };
+    (a, b)
+}
+
+/// Where one stamp of a part value lands.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) enum Slot {
+    /// `G[idx]` (row-major index into an `n×n` matrix) or `C[idx]`, by the part kind.
+    Matrix(usize),
+    /// The input-coupling vector at `row` (the input node's column, moved to the right side).
+    Input(usize),
+}
+
+/// The stamps of one resistor or capacitor: up to four `(slot, sign)` pairs.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct PartStamp {
+    /// Index of the part in the netlist's `parts`.
+    pub part_idx: usize,
+    /// True for capacitors (stamps go to `C`, value `C`), false for resistors (to `G`, `1/R`).
+    pub is_capacitor: bool,
+    /// Where the admittance goes, with its sign.
+    pub slots: Vec<(Slot, f64)>,
+}
+
+/// A netlist compiled for repeated assembly.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Compiled {
+    /// Number of unknowns.
+    pub n: usize,
+    /// Netlist node → unknown index (`None` for the input node).
+    pub node_col: Vec<Option<usize>>,
+    /// Whether row `r` is a current equation (true) or an op-amp constraint (false).
+    pub row_is_kcl: Vec<bool>,
+    /// Unknown index of the output node.
+    pub output_col: usize,
+    /// The op-amp constant part of `G` (constraints, `1/A0`, `1/Rout`), row-major `n×n`.
+    pub(crate) base_g: Vec<f64>,
+    /// The op-amp part of `C` (`1/(2π·GBW)`), row-major `n×n`.
+    pub(crate) base_c: Vec<f64>,
+    /// Op-amp constant coupling of the input node into the rows (an op-amp input on the input node).
+    pub(crate) base_g_in: Vec<f64>,
+    /// Stamps of every resistor and capacitor.
+    pub(crate) stamps: Vec<PartStamp>,
+    /// Constraint row of each op amp (in netlist order of op amps) and its `(plus, minus)` columns.
+    pub(crate) opamp_rows: Vec<usize>,
+    /// Number of capacitors plus op amps with a finite GBW: an upper bound on the degree in s.
+    pub degree_bound: usize,
+    /// Geometric mean of 1/(R·C) over the stage's parts, rad/s: the natural frequency scale.
+    pub scale_rad_s: f64,
+}
+
+/// The assembled matrices for one set of part values.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Assembled {
+    /// `G`, row-major `n×n`.
+    pub g: Vec<f64>,
+    /// `C`, row-major `n×n`.
+    pub c: Vec<f64>,
+    /// Coupling of the input voltage into each row, conductive part (moved to the right side with
+    /// a minus sign).
+    pub g_in: Vec<f64>,
+    /// Coupling of the input voltage into each row, capacitive part.
+    pub c_in: Vec<f64>,
+}
+
+fn check_node(node: Node, n_nodes: usize, what: &str) -> Result<(), AnalysisError> {
+    match node {
+        Some(i) if i >= n_nodes => Err(AnalysisError::BadNetlist(format!(
+            "{what}: node {i} is outside 0..{n_nodes}"
+        ))),
+        _ => Ok(()),
+    }
+}
+
+impl Compiled {
+    /// Compiles `net` with the op-amp model `op`.
+    ///
+    /// # Errors
+    /// [`AnalysisError::BadNetlist`] when a node index is out of range, a part has the wrong number
+    /// of pins, or two op amps drive the same pin.
+    pub fn new(net: &StageNetlist, op: &OpAmp) -> Result<Compiled, AnalysisError> {
+        let n_nodes = net.n_nodes;
+        if net.input >= n_nodes || net.output >= n_nodes {
+            return Err(AnalysisError::BadNetlist(format!(
+                "input {} or output {} outside 0..{}",
+                net.input, net.output, n_nodes
+            )));
+        }
+        if net.input == net.output {
+            return Err(AnalysisError::BadNetlist(
+                "input and output are the same node".into(),
+            ));
+        }
+        let (inv_a, inv_b) = inverse_gain_coefficients(op);
+        let rout = if op.rout_ohm.is_finite() && op.rout_ohm > 0.0 {
+            op.rout_ohm
+        } else {
+            0.0
+        };
+        // Unknown indices: every node but the input, then one internal node per op amp when Rout > 0.
+        let mut node_col = vec![None; n_nodes];
+        let mut n = 0;
+        for (i, col) in node_col.iter_mut().enumerate() {
+            if i != net.input {
+                *col = Some(n);
+                n += 1;
+            }
+        }
+        let opamps: Vec<&crate::netlist::Part> = net
+            .parts
+            .iter()
+            .filter(|p| p.kind == PartKind::OpAmp)
+            .collect();
+        for p in &opamps {
+            if p.nodes.len() != 3 {
+                return Err(AnalysisError::BadNetlist(format!(
+                    "{} has {} pins, an op amp has 3 (plus, minus, out)",
+                    p.reference,
+                    p.nodes.len()
+                )));
+            }
+            for &node in &p.nodes {
+                check_node(node, n_nodes, &p.reference)?;
+            }
+        }
+        let internal_start = n;
+        if rout > 0.0 {
+            n += opamps.len();
+        }
+        let mut row_is_kcl = vec![true; n];
+        let mut base_g = vec![0.0; n * n];
+        let mut base_c = vec![0.0; n * n];
+        let mut base_g_in = vec![0.0; n];
+        let mut opamp_rows = Vec::with_capacity(opamps.len());
+        let col_of = |node: Node| -> Option<usize> { node.and_then(|i| node_col[i]) };
+        for (k, p) in opamps.iter().enumerate() {
+            let (plus, minus, out) = (p.nodes[0], p.nodes[1], p.nodes[2]);
+            let out_idx = match out {
+                Some(i) if i != net.input => i,
+                _ => {
+                    return Err(AnalysisError::BadNetlist(format!(
+                        "{}: the output pin must be a non-ground node other than the stage input",
+                        p.reference
+                    )))
+                }
+            };
+            let out_col = node_col[out_idx].unwrap_or(0);
+            let row = if rout > 0.0 {
+                let v = internal_start + k;
+                base_g[out_col * n + out_col] += 1.0 / rout;
+                base_g[out_col * n + v] -= 1.0 / rout;
+                v
+            } else {
+                out_col
+            };
+            if !row_is_kcl[row] {
+                return Err(AnalysisError::BadNetlist(format!(
+                    "{}: two op amps drive the same node",
+                    p.reference
+                )));
+            }
+            row_is_kcl[row] = false;
+            base_g[row * n + row] += inv_a;
+            base_c[row * n + row] += inv_b;
+            // −V+ + V−: an input pin on the stage input node couples through the input vector.
+            for (node, sign) in [(plus, -1.0), (minus, 1.0)] {
+                match node {
+                    None => {}
+                    Some(i) if i == net.input => base_g_in[row] += sign,
+                    Some(_) => {
+                        if let Some(c) = col_of(node) {
+                            base_g[row * n + c] += sign;
+                        }
+                    }
+                }
+            }
+            opamp_rows.push(row);
+        }
+        // Resistor and capacitor stamps; rows that are op-amp constraints take no current stamps.
+        let mut stamps = Vec::new();
+        let mut log_rate_sum = 0.0;
+        let mut n_r = 0usize;
+        let mut n_c = 0usize;
+        let mut log_r = 0.0;
+        let mut log_c = 0.0;
+        for (part_idx, p) in net.parts.iter().enumerate() {
+            let is_capacitor = match p.kind {
+                PartKind::OpAmp => continue,
+                PartKind::Resistor => false,
+                PartKind::Capacitor => true,
+            };
+            if p.nodes.len() != 2 {
+                return Err(AnalysisError::BadNetlist(format!(
+                    "{} has {} pins, expected 2",
+                    p.reference,
+                    p.nodes.len()
+                )));
+            }
+            for &node in &p.nodes {
+                check_node(node, n_nodes, &p.reference)?;
+            }
+            if !(p.value.is_finite() && p.value > 0.0) {
+                return Err(AnalysisError::BadNetlist(format!(
+                    "{} has value {}, expected a positive finite number",
+                    p.reference, p.value
+                )));
+            }
+            if is_capacitor {
+                n_c += 1;
+                log_c += p.value.ln();
+            } else {
+                n_r += 1;
+                log_r += p.value.ln();
+            }
+            let (a, b) = (p.nodes[0], p.nodes[1]);
+            let mut slots = Vec::with_capacity(4);
+            for (row_node, col_node, sign) in [(a, a, 1.0), (a, b, -1.0), (b, a, -1.0), (b, b, 1.0)]
+            {
+                let row = match col_of(row_node) {
+                    Some(r) if row_is_kcl[r] => r,
+                    _ => continue,
+                };
+                match col_node {
+                    None => {}
+                    Some(i) if i == net.input => slots.push((Slot::Input(row), sign)),
+                    Some(_) => {
+                        if let Some(c) = col_of(col_node) {
+                            slots.push((Slot::Matrix(row * n + c), sign));
+                        }
+                    }
+                }
+            }
+            stamps.push(PartStamp {
+                part_idx,
+                is_capacitor,
+                slots,
+            });
+        }
+        let output_col = node_col[net.output].unwrap_or(0);
+        let finite_gbw = usize::from(inv_b > 0.0) * opamps.len();
+        if n_r > 0 && n_c > 0 {
+            log_rate_sum = -(log_r / n_r as f64 + log_c / n_c as f64);
+        }
+        let scale_rad_s = if n_r > 0 && n_c > 0 {
+            log_rate_sum.exp()
+        } else {
+            1.0
+        };
+        Ok(Compiled {
+            n,
+            node_col,
+            row_is_kcl,
+            output_col,
+            base_g,
+            base_c,
+            base_g_in,
+            stamps,
+            opamp_rows,
+            degree_bound: n_c + finite_gbw,
+            scale_rad_s,
+        })
+    }
+
+    /// An empty set of matrices of the right size.
+    pub fn blank(&self) -> Assembled {
+        let n = self.n;
+        Assembled {
+            g: vec![0.0; n * n],
+            c: vec![0.0; n * n],
+            g_in: vec![0.0; n],
+            c_in: vec![0.0; n],
+        }
+    }
+
+    /// Assembles the matrices for part values `values` (indexed like the netlist's parts; op-amp
+    /// entries are ignored) into `out`.
+    ///
+    /// Internal invariant: `values` has one entry per netlist part.
+    pub fn assemble_into(&self, values: &[f64], out: &mut Assembled) {
+        out.g.copy_from_slice(&self.base_g);
+        out.c.copy_from_slice(&self.base_c);
+        out.g_in.copy_from_slice(&self.base_g_in);
+        out.c_in.iter_mut().for_each(|v| *v = 0.0);
+        for st in &self.stamps {
+            let value = values.get(st.part_idx).copied().unwrap_or(f64::NAN);
+            let (mat, vec, y) = if st.is_capacitor {
+                (&mut out.c, &mut out.c_in, value)
+            } else {
+                (&mut out.g, &mut out.g_in, 1.0 / value)
+            };
+            for &(slot, sign) in &st.slots {
+                match slot {
+                    Slot::Matrix(i) => mat[i] += sign * y,
+                    Slot::Input(r) => vec[r] += sign * y,
+                }
+            }
+        }
+    }
+
+    /// Assembles with the netlist's own part values.
+    pub fn assemble(&self, net: &StageNetlist) -> Assembled {
+        let values: Vec<f64> = net.parts.iter().map(|p| p.value).collect();
+        let mut out = self.blank();
+        self.assemble_into(&values, &mut out);
+        out
+    }
+}
+
+/// Dense complex work space for solving `M(s)·x = b` by Gaussian elimination with partial pivoting.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Solver {
+    n: usize,
+    m: Vec<Complex64>,
+    rhs: Vec<Complex64>,
+    perm: Vec<usize>,
+}
+
+impl Solver {
+    /// A work space for `n` unknowns.
+    pub fn new(n: usize) -> Solver {
+        Solver {
+            n,
+            m: vec![Complex64::new(0.0, 0.0); n * n],
+            rhs: vec![Complex64::new(0.0, 0.0); n],
+            perm: (0..n).collect(),
+        }
+    }
+
+    /// Loads `M(s) = G + s·C`, and the right-hand side `−(g_in + s·c_in)·v_in` (the input source).
+    pub fn load(&mut self, a: &Assembled, s: Complex64, v_in: Complex64) {
+        for ((m, &g), &c) in self.m.iter_mut().zip(&a.g).zip(&a.c) {
+            *m = Complex64::new(g, 0.0) + s * c;
+        }
+        for ((r, &g), &c) in self.rhs.iter_mut().zip(&a.g_in).zip(&a.c_in) {
+            *r = -(Complex64::new(g, 0.0) + s * c) * v_in;
+        }
+    }
+
+    /// Mutable access to the right-hand side (to add injected currents after [`Solver::load`]).
+    pub fn rhs_mut(&mut self) -> &mut [Complex64] {
+        &mut self.rhs
+    }
+
+    /// Transposes the loaded matrix in place (for adjoint solves).
+    pub fn transpose(&mut self) {
+        let n = self.n;
+        for r in 0..n {
+            for c in (r + 1)..n {
+                self.m.swap(r * n + c, c * n + r);
+            }
+        }
+    }
+
+    /// Eliminates and back-substitutes. Returns the determinant of the loaded matrix; the solution
+    /// is left in [`Solver::solution`]. A zero pivot returns a zero determinant and leaves the
+    /// solution undefined (NaN).
+    pub fn solve(&mut self) -> Complex64 {
+        let n = self.n;
+        let mut det = Complex64::new(1.0, 0.0);
+        for (i, p) in self.perm.iter_mut().enumerate() {
+            *p = i;
+        }
+        for k in 0..n {
+            // Partial pivoting by the largest |·|₁ in column k.
+            let mut best = k;
+            let mut best_mag = -1.0;
+            for r in k..n {
+                let v = self.m[r * n + k];
+                let mag = v.re.abs() + v.im.abs();
+                if mag > best_mag {
+                    best_mag = mag;
+                    best = r;
+                }
+            }
+            if best_mag <= 0.0 || !best_mag.is_finite() {
+                self.rhs
+                    .iter_mut()
+                    .for_each(|v| *v = Complex64::new(f64::NAN, f64::NAN));
+                return Complex64::new(0.0, 0.0);
+            }
+            if best != k {
+                for c in 0..n {
+                    self.m.swap(k * n + c, best * n + c);
+                }
+                self.rhs.swap(k, best);
+                det = -det;
+            }
+            let pivot = self.m[k * n + k];
+            det *= pivot;
+            let inv = 1.0 / pivot;
+            for r in (k + 1)..n {
+                let factor = self.m[r * n + k] * inv;
+                if factor.re == 0.0 && factor.im == 0.0 {
+                    continue;
+                }
+                for c in (k + 1)..n {
+                    let v = self.m[k * n + c];
+                    self.m[r * n + c] -= factor * v;
+                }
+                let v = self.rhs[k];
+                self.rhs[r] -= factor * v;
+            }
+        }
+        for k in (0..n).rev() {
+            let mut acc = self.rhs[k];
+            for c in (k + 1)..n {
+                acc -= self.m[k * n + c] * self.rhs[c];
+            }
+            self.rhs[k] = acc / self.m[k * n + k];
+        }
+        det
+    }
+
+    /// The solution after [`Solver::solve`].
+    pub fn solution(&self) -> &[Complex64] {
+        &self.rhs
+    }
+}
+
+/// A whole board merged into one netlist: stage k's input node is stage k−1's output node.
+#[derive(Debug, Clone, PartialEq)]
+pub struct MergedBoard {
+    /// The merged netlist (input = the first stage's input, output = the last stage's output).
+    pub netlist: StageNetlist,
+    /// Merged node index of each stage's output, in signal order.
+    pub stage_outputs: Vec<usize>,
+    /// For each merged part, the stage it came from and its index in that stage's parts.
+    pub part_origin: Vec<(usize, usize)>,
+}
+
+/// Merges stage netlists (in signal order) into one board netlist.
+///
+/// # Errors
+/// [`AnalysisError::BadNetlist`] when there are no stages or a stage's nodes are out of range.
+pub fn merge_stages(stages: &[&StageNetlist]) -> Result<MergedBoard, AnalysisError> {
+    let first = stages
+        .first()
+        .ok_or_else(|| AnalysisError::BadNetlist("the board has no stages".into()))?;
+    let mut n_nodes = 0usize;
+    let mut node_names = Vec::new();
+    let mut parts = Vec::new();
+    let mut stage_outputs = Vec::with_capacity(stages.len());
+    let mut part_origin = Vec::new();
+    let mut prev_output: Option<usize> = None;
+    let mut board_input = 0;
+    for (stage_idx, net) in stages.iter().enumerate() {
+        if net.input >= net.n_nodes || net.output >= net.n_nodes {
+            return Err(AnalysisError::BadNetlist(format!(
+                "stage {}: input or output node outside 0..{}",
+                stage_idx + 1,
+                net.n_nodes
+            )));
+        }
+        let mut map = vec![0usize; net.n_nodes];
+        for (i, slot) in map.iter_mut().enumerate() {
+            if i == net.input {
+                if let Some(p) = prev_output {
+                    *slot = p;
+                    continue;
+                }
+            }
+            *slot = n_nodes;
+            node_names.push(format!(
+                "s{}_{}",
+                stage_idx + 1,
+                net.node_names
+                    .get(i)
+                    .cloned()
+                    .unwrap_or_else(|| i.to_string())
+            ));
+            n_nodes += 1;
+        }
+        if stage_idx == 0 {
+            board_input = map[first.input];
+        }
+        for (part_idx, p) in net.parts.iter().enumerate() {
+            let mut q = p.clone();
+            let mut nodes = Vec::with_capacity(p.nodes.len());
+            for &node in &p.nodes {
+                match node {
+                    None => nodes.push(None),
+                    Some(i) => match map.get(i) {
+                        Some(&m) => nodes.push(Some(m)),
+                        None => {
+                            return Err(AnalysisError::BadNetlist(format!(
+                                "stage {}: {} uses node {i} outside 0..{}",
+                                stage_idx + 1,
+                                p.reference,
+                                net.n_nodes
+                            )))
+                        }
+                    },
+                }
+            }
+            q.nodes = nodes;
+            parts.push(q);
+            part_origin.push((stage_idx, part_idx));
+        }
+        let out = map[net.output];
+        stage_outputs.push(out);
+        prev_output = Some(out);
+    }
+    let output = *stage_outputs.last().unwrap_or(&0);
+    Ok(MergedBoard {
+        netlist: StageNetlist {
+            n_nodes,
+            input: board_input,
+            output,
+            node_names,
+            parts,
+        },
+        stage_outputs,
+        part_origin,
+    })
+}
+
+/// The transfer `V(output)/V(input)` of a compiled netlist at complex frequency `s` (rad/s).
+///
+/// # Errors
+/// [`AnalysisError::Singular`] when the equations are singular at `s`.
+pub fn transfer_at(
+    compiled: &Compiled,
+    assembled: &Assembled,
+    solver: &mut Solver,
+    s: Complex64,
+) -> Result<Complex64, AnalysisError> {
+    solver.load(assembled, s, Complex64::new(1.0, 0.0));
+    let det = solver.solve();
+    if det.re == 0.0 && det.im == 0.0 {
+        return Err(AnalysisError::Singular(format!(
+            "at s = {s}: a node without a DC path, a capacitor loop or an op amp without feedback"
+        )));
+    }
+    Ok(solver.solution()[compiled.output_col])
+}
