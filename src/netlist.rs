@@ -53,3 +53,73 @@ pub struct StageNetlist {
     /// The parts, in drawing order.
     pub parts: Vec<Part>,
 }
+
+impl Part {
+    /// A resistor of `value_ohm` between nodes `a` and `b`; `ideal_ohm` is the value the synthesis
+    /// asked for. The reference starts as `R?` until the board numbers its parts.
+    pub fn resistor(role: &str, a: Node, b: Node, value_ohm: f64, ideal_ohm: f64) -> Part {
+        Part {
+            reference: "R?".into(),
+            kind: PartKind::Resistor,
+            value: value_ohm,
+            ideal: ideal_ohm,
+            role: role.into(),
+            nodes: vec![a, b],
+        }
+    }
+
+    /// A capacitor of `value_f` between nodes `a` and `b` (reference `C?` until numbered).
+    pub fn capacitor(role: &str, a: Node, b: Node, value_f: f64, ideal_f: f64) -> Part {
+        Part {
+            reference: "C?".into(),
+            kind: PartKind::Capacitor,
+            value: value_f,
+            ideal: ideal_f,
+            role: role.into(),
+            nodes: vec![a, b],
+        }
+    }
+
+    /// An op amp with its non-inverting input, inverting input and output (reference `U?`).
+    pub fn op_amp(role: &str, plus: Node, minus: Node, out: Node) -> Part {
+        Part {
+            reference: "U?".into(),
+            kind: PartKind::OpAmp,
+            value: 0.0,
+            ideal: 0.0,
+            role: role.into(),
+            nodes: vec![plus, minus, out],
+        }
+    }
+
+    /// The letter its reference designator starts with: `R`, `C` or `U`.
+    pub fn ref_letter(&self) -> char {
+        match self.kind {
+            PartKind::Resistor => 'R',
+            PartKind::Capacitor => 'C',
+            PartKind::OpAmp => 'U',
+        }
+    }
+}
+
+impl StageNetlist {
+    /// The values of the resistors and capacitors in part order (op amps skipped), SI units.
+    /// The topology modules read a stage's achieved f0 and Q from this list.
+    pub fn passive_values(&self) -> Vec<f64> {
+        self.parts
+            .iter()
+            .filter(|p| p.kind != PartKind::OpAmp)
+            .map(|p| p.value)
+            .collect()
+    }
+
+    /// The op amps, in part order (the index used by `mna::Drive::OpAmpInputVoltage`).
+    pub fn op_amps(&self) -> impl Iterator<Item = &Part> {
+        self.parts.iter().filter(|p| p.kind == PartKind::OpAmp)
+    }
+
+    /// The part with reference designator `reference` (exact match), if any.
+    pub fn part(&self, reference: &str) -> Option<&Part> {
+        self.parts.iter().find(|p| p.reference == reference)
+    }
+}

@@ -1,0 +1,242 @@
+//! First-order stages: a buffered RC (or CR) with a follower or a non-inverting gain for
+//! Sallen-Key builds, and an inverting stage with gain for multiple-feedback builds.
+//!
+//! Buffered low-pass (R1 in→a, C1 a→ground, op amp + at a): H(s) = K / (1 + s·R1·C1).
+//! Buffered high-pass (C1 in→a, R1 a→ground): H(s) = K·s·R1·C1 / (1 + s·R1·C1).
+//! K = 1 (follower) or 1 + R2/R3 (divider R2 out→−, R3 −→ground). w0 = 1/(R1·C1).
+//!
+//! Inverting low-pass (R1 in→−, R2 ‖ C1 from − to out):
+//! H(s) = −(R2/R1) / (1 + s·R2·C1), w0 = 1/(R2·C1).
+//! Inverting high-pass (C1 in→x, R1 x→−, R2 −→out):
+//! H(s) = −(R2/R1)·s·R1·C1 / (1 + s·R1·C1), w0 = 1/(R1·C1).
+
+use super::sallen_key::{divider_gain, gain_divider, solve_divider};
+use super::{slot, Achieved, Layout, RatioRule, Realization, Slot, Target};
+use crate::eseries::PartClass::{Capacitor, Resistor};
+use std::f64::consts::PI;
+
+/// RC low-pass with a follower or non-inverting gain.
+pub struct BufferedLowPass;
+/// CR high-pass with a follower or non-inverting gain.
+pub struct BufferedHighPass;
+/// Inverting first-order low-pass.
+pub struct InvertingLowPass;
+/// Inverting first-order high-pass.
+pub struct InvertingHighPass;
+
+const GND: Option<usize> = None;
+
+fn buffered_layout(gain_network: bool, first: [Slot; 2]) -> Layout {
+    let (a, out, m) = (Some(1), Some(2), Some(3));
+    let mut slots = first.to_vec();
+    let mut node_names = vec!["in", "a", "out"];
+    let minus = if gain_network {
+        slots.extend(gain_divider(out, m));
+        node_names.push("m");
+        m
+    } else {
+        out
+    };
+    Layout {
+        node_names,
+        input: 0,
+        output: 2,
+        slots,
+        op_amp: [a, minus, out],
+        op_amp_position: 2,
+    }
+}
+
+fn no_ratio(_t: &Target, _m: f64) -> Result<(f64, Option<f64>), String> {
+    Err("a first-order stage has no resistor ratio to set".into())
+}
+
+impl Realization for BufferedLowPass {
+    fn layout(&self, gain_network: bool) -> Layout {
+        buffered_layout(
+            gain_network,
+            [
+                slot(Resistor, "series resistor", Some(0), Some(1), false, true),
+                slot(Capacitor, "ground capacitor", Some(1), GND, true, false),
+            ],
+        )
+    }
+    fn solve(&self, t: &Target, v: &mut [f64], _hint: Option<f64>) -> bool {
+        if v.len() < 2 {
+            return false;
+        }
+        v[0] = 1.0 / (t.w0 * v[1]);
+        solve_divider(t, v, 2)
+    }
+    fn achieved(&self, v: &[f64]) -> Option<Achieved> {
+        if v.len() < 2 {
+            return None;
+        }
+        Some(Achieved {
+            f0_hz: 1.0 / (2.0 * PI * v[0] * v[1]),
+            q: None,
+            gain: divider_gain(v, 2)?,
+        })
+    }
+    fn ratio_rule(&self, _t: &Target) -> Option<RatioRule> {
+        None
+    }
+    fn cratio_for_rratio(&self, t: &Target, m: f64) -> Result<(f64, Option<f64>), String> {
+        no_ratio(t, m)
+    }
+    fn rratio_meaning(&self) -> &'static str {
+        "none"
+    }
+    fn hint_of(&self, _v: &[f64]) -> Option<f64> {
+        None
+    }
+    fn set_capacitors(&self, _t: &Target, v: &mut [f64], c_ref: f64, _c_ratio: f64) {
+        v[1] = c_ref;
+    }
+}
+
+impl Realization for BufferedHighPass {
+    fn layout(&self, gain_network: bool) -> Layout {
+        buffered_layout(
+            gain_network,
+            [
+                slot(Capacitor, "series capacitor", Some(0), Some(1), true, false),
+                slot(Resistor, "ground resistor", Some(1), GND, false, true),
+            ],
+        )
+    }
+    fn solve(&self, t: &Target, v: &mut [f64], _hint: Option<f64>) -> bool {
+        if v.len() < 2 {
+            return false;
+        }
+        v[1] = 1.0 / (t.w0 * v[0]);
+        solve_divider(t, v, 2)
+    }
+    fn achieved(&self, v: &[f64]) -> Option<Achieved> {
+        if v.len() < 2 {
+            return None;
+        }
+        Some(Achieved {
+            f0_hz: 1.0 / (2.0 * PI * v[0] * v[1]),
+            q: None,
+            gain: divider_gain(v, 2)?,
+        })
+    }
+    fn ratio_rule(&self, _t: &Target) -> Option<RatioRule> {
+        None
+    }
+    fn cratio_for_rratio(&self, t: &Target, m: f64) -> Result<(f64, Option<f64>), String> {
+        no_ratio(t, m)
+    }
+    fn rratio_meaning(&self) -> &'static str {
+        "none"
+    }
+    fn hint_of(&self, _v: &[f64]) -> Option<f64> {
+        None
+    }
+    fn set_capacitors(&self, _t: &Target, v: &mut [f64], c_ref: f64, _c_ratio: f64) {
+        v[0] = c_ref;
+    }
+}
+
+impl Realization for InvertingLowPass {
+    fn layout(&self, _gain_network: bool) -> Layout {
+        let (input, m, out) = (Some(0), Some(1), Some(2));
+        Layout {
+            node_names: vec!["in", "m", "out"],
+            input: 0,
+            output: 2,
+            slots: vec![
+                slot(Resistor, "input resistor", input, m, false, true),
+                slot(Resistor, "feedback resistor", m, out, false, true),
+                slot(Capacitor, "feedback capacitor", m, out, true, false),
+            ],
+            op_amp: [GND, m, out],
+            op_amp_position: 3,
+        }
+    }
+    fn solve(&self, t: &Target, v: &mut [f64], _hint: Option<f64>) -> bool {
+        if v.len() != 3 {
+            return false;
+        }
+        v[1] = 1.0 / (t.w0 * v[2]);
+        v[0] = v[1] / t.gain;
+        v[0].is_finite() && v[0] > 0.0
+    }
+    fn achieved(&self, v: &[f64]) -> Option<Achieved> {
+        let &[r1, r2, c1] = v else {
+            return None;
+        };
+        Some(Achieved {
+            f0_hz: 1.0 / (2.0 * PI * r2 * c1),
+            q: None,
+            gain: -r2 / r1,
+        })
+    }
+    fn ratio_rule(&self, _t: &Target) -> Option<RatioRule> {
+        None
+    }
+    fn cratio_for_rratio(&self, t: &Target, m: f64) -> Result<(f64, Option<f64>), String> {
+        no_ratio(t, m)
+    }
+    fn rratio_meaning(&self) -> &'static str {
+        "none"
+    }
+    fn hint_of(&self, _v: &[f64]) -> Option<f64> {
+        None
+    }
+    fn set_capacitors(&self, _t: &Target, v: &mut [f64], c_ref: f64, _c_ratio: f64) {
+        v[2] = c_ref;
+    }
+}
+
+impl Realization for InvertingHighPass {
+    fn layout(&self, _gain_network: bool) -> Layout {
+        let (input, x, m, out) = (Some(0), Some(1), Some(2), Some(3));
+        Layout {
+            node_names: vec!["in", "x", "m", "out"],
+            input: 0,
+            output: 3,
+            slots: vec![
+                slot(Capacitor, "input capacitor", input, x, true, false),
+                slot(Resistor, "input resistor", x, m, false, true),
+                slot(Resistor, "feedback resistor", m, out, false, true),
+            ],
+            op_amp: [GND, m, out],
+            op_amp_position: 3,
+        }
+    }
+    fn solve(&self, t: &Target, v: &mut [f64], _hint: Option<f64>) -> bool {
+        if v.len() != 3 {
+            return false;
+        }
+        v[1] = 1.0 / (t.w0 * v[0]);
+        v[2] = t.gain * v[1];
+        v[2].is_finite() && v[2] > 0.0
+    }
+    fn achieved(&self, v: &[f64]) -> Option<Achieved> {
+        let &[c1, r1, r2] = v else {
+            return None;
+        };
+        Some(Achieved {
+            f0_hz: 1.0 / (2.0 * PI * r1 * c1),
+            q: None,
+            gain: -r2 / r1,
+        })
+    }
+    fn ratio_rule(&self, _t: &Target) -> Option<RatioRule> {
+        None
+    }
+    fn cratio_for_rratio(&self, t: &Target, m: f64) -> Result<(f64, Option<f64>), String> {
+        no_ratio(t, m)
+    }
+    fn rratio_meaning(&self) -> &'static str {
+        "none"
+    }
+    fn hint_of(&self, _v: &[f64]) -> Option<f64> {
+        None
+    }
+    fn set_capacitors(&self, _t: &Target, v: &mut [f64], c_ref: f64, _c_ratio: f64) {
+        v[0] = c_ref;
+    }
+}
