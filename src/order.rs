@@ -1,1 +1,427 @@
 //! Minimum order of each family for a specification mask.
+//!
+//! A mask is first reduced to the normalized low-pass problem (scipy.signal `buttord`/`cheb1ord`
+//! with `analog=True` do the same): the passband edge maps to 1 and the stopband edge to the
+//! *selectivity* `ν`:
+//!
+//! * low-pass: `ν = f_stop / f_pass`;
+//! * high-pass: `ν = f_pass / f_stop`;
+//! * band-pass with passband edges `(p_lo, p_hi)`: each stopband edge `f_s` maps to
+//!   `|(f_s² − p_lo·p_hi) / (f_s·(p_lo − p_hi))|` under the low-pass → band-pass transform centred
+//!   on `√(p_lo·p_hi)` with bandwidth `p_hi − p_lo`, and `ν` is the smaller of the two, so that
+//!   asymmetric stopband edges are handled as scipy does.
+//!
+//! Butterworth and Chebyshev (ripple = `apass`) then have closed forms:
+//! `n = ⌈log10((10^(As/10) − 1)/(10^(Ap/10) − 1)) / (2·log10 ν)⌉` and
+//! `n = ⌈acosh(√((10^(As/10) − 1)/(10^(Ap/10) − 1))) / acosh ν⌉`.
+//! Bessel, Linkwitz-Riley (even orders), critically damped, and Chebyshev with a ripple below
+//! `apass` are found by a search over the orders: for each order the prototype's passband edge
+//! `w_p` (where its attenuation is `apass`) is placed on the mask's passband edge, and the order is
+//! accepted when the attenuation at `ν·w_p` reaches `astop`.
+//!
+//! Orders are counted as the link key `order` counts them: a band-pass filter has twice the poles
+//! of its prototype, so its prototype order is at most 10.
+
+use crate::error::InputError;
+use crate::prototype::{self, MAX_ORDER};
+use crate::spec::{Edge, Family, Mask, ResponseClass};
+
+/// A minimum order that meets the mask.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+pub struct MinOrder {
+    /// Poles of the whole filter (link key `order`): `prototype_order` for low- and high-pass,
+    /// twice that for band-pass.
+    pub order: usize,
+    /// Order of the normalized low-pass prototype (what scipy's `buttord` returns).
+    pub prototype_order: usize,
+}
+
+/// Why no order is given for a family.
+#[derive(Debug, Clone, PartialEq)]
+pub enum OrderError {
+    /// No order up to 20 (poles of the whole filter) meets the mask. `needed` is the order the
+    /// closed form asks for (Butterworth, Chebyshev with ripple = apass), counted like
+    /// [`MinOrder::order`]; `None` when a search up to the limit found none.
+    AboveLimit {
+        /// The family that was asked for.
+        family: Family,
+        /// Poles the mask would need, when a closed form tells.
+        needed: Option<usize>,
+        /// The highest order that was allowed (20, counted like `order`).
+        limit: usize,
+    },
+    /// The mask (or the ripple against it) is not usable.
+    Input(InputError),
+}
+
+impl OrderError {
+    /// The error as the user sees it: `AboveLimit` is reported on `astop`, with a message that
+    /// names `fstop`, `astop` and `order`.
+    pub fn to_input_error(&self) -> InputError {
+        match self {
+            Self::Input(e) => e.clone(),
+            Self::AboveLimit {
+                family,
+                needed,
+                limit,
+            } => {
+                let need = match needed {
+                    Some(n) => format!("needs order {n}"),
+                    None => format!("needs more than order {limit}"),
+                };
+                InputError::new(
+                    "astop",
+                    format!(
+                        "{} {need} to reach astop at fstop, and orders above {limit} are not \
+                         designed; move fstop away from the passband, lower astop, raise apass, \
+                         or set a fixed order",
+                        family_name(*family)
+                    ),
+                )
+            }
+        }
+    }
+}
+
+impl From<InputError> for OrderError {
+    fn from(e: InputError) -> Self {
+        Self::Input(e)
+    }
+}
+
+impl From<OrderError> for InputError {
+    fn from(e: OrderError) -> Self {
+        e.to_input_error()
+    }
+}
+
+/// One row of the family comparison: a family and its minimum order, or the reason there is none.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FamilyOrder {
+    /// The family (Chebyshev with the ripple used for the comparison).
+    pub family: Family,
+    /// Its minimum order for the mask, or why there is none.
+    pub result: Result<MinOrder, OrderError>,
+}
+
+/// A readable family name for messages (`Chebyshev 0.5 dB`, `Linkwitz-Riley`, …).
+pub fn family_name(family: Family) -> String {
+    match family {
+        Family::Butterworth => "Butterworth".into(),
+        Family::Chebyshev { ripple_db } => format!("Chebyshev {ripple_db} dB"),
+        Family::Bessel => "Bessel".into(),
+        Family::LinkwitzRiley => "Linkwitz-Riley".into(),
+        Family::Critical => "critically damped".into(),
+    }
+}
+
+/// The selectivity `ν > 1` of a mask: where its stopband edge falls in the low-pass prototype
+/// whose passband edge is at 1 (formulas in the module docs, as in scipy's `_find_nat_freq`).
+///
+/// # Errors
+/// `fpass` or `fstop` when an edge is not a positive finite frequency, has the wrong form for the
+/// class (one value for lp/hp, `lo,hi` for bp), or the stopband is not outside the passband;
+/// `apass`/`astop` when the attenuations are not `0 < apass < astop`.
+pub fn selectivity(class: ResponseClass, mask: &Mask) -> Result<f64, InputError> {
+    check_attenuations(mask)?;
+    match (class, mask.pass, mask.stop) {
+        (ResponseClass::LowPass, Edge::Single(fp), Edge::Single(fs)) => {
+            check_frequency("fpass", fp)?;
+            check_frequency("fstop", fs)?;
+            if fs <= fp {
+                return Err(InputError::new(
+                    "fstop",
+                    format!("a low-pass stopband edge must lie above fpass ({fp} Hz), got {fs} Hz"),
+                ));
+            }
+            Ok(fs / fp)
+        }
+        (ResponseClass::HighPass, Edge::Single(fp), Edge::Single(fs)) => {
+            check_frequency("fpass", fp)?;
+            check_frequency("fstop", fs)?;
+            if fs >= fp {
+                return Err(InputError::new(
+                    "fstop",
+                    format!(
+                        "a high-pass stopband edge must lie below fpass ({fp} Hz), got {fs} Hz"
+                    ),
+                ));
+            }
+            Ok(fp / fs)
+        }
+        (ResponseClass::BandPass, Edge::Pair(p_lo, p_hi), Edge::Pair(s_lo, s_hi)) => {
+            for (key, f) in [
+                ("fpass", p_lo),
+                ("fpass", p_hi),
+                ("fstop", s_lo),
+                ("fstop", s_hi),
+            ] {
+                check_frequency(key, f)?;
+            }
+            if p_lo >= p_hi {
+                return Err(InputError::new(
+                    "fpass",
+                    format!("band-pass edges must be lo,hi with lo < hi, got {p_lo},{p_hi}"),
+                ));
+            }
+            if !(s_lo < p_lo && s_hi > p_hi) {
+                return Err(InputError::new(
+                    "fstop",
+                    format!(
+                        "band-pass stopband edges must lie outside the passband \
+                         ({p_lo}–{p_hi} Hz): lo below {p_lo} Hz, hi above {p_hi} Hz; got \
+                         {s_lo},{s_hi}"
+                    ),
+                ));
+            }
+            // Same expression and order of operations as scipy's band-pass branch.
+            let map = |ws: f64| ((ws * ws - p_lo * p_hi) / (ws * (p_lo - p_hi))).abs();
+            Ok(map(s_lo).min(map(s_hi)))
+        }
+        (ResponseClass::BandPass, _, _) => Err(InputError::new(
+            if matches!(mask.pass, Edge::Pair(..)) {
+                "fstop"
+            } else {
+                "fpass"
+            },
+            "a band-pass mask needs two edges, lo,hi, for fpass and for fstop",
+        )),
+        (_, _, _) => Err(InputError::new(
+            if matches!(mask.pass, Edge::Single(_)) {
+                "fstop"
+            } else {
+                "fpass"
+            },
+            "a low-pass or high-pass mask needs one frequency for fpass and one for fstop",
+        )),
+    }
+}
+
+fn check_frequency(key: &str, f: f64) -> Result<(), InputError> {
+    if f.is_finite() && f > 0.0 {
+        Ok(())
+    } else {
+        Err(InputError::new(
+            key,
+            format!("{key} must be a positive frequency in Hz, got {f}"),
+        ))
+    }
+}
+
+fn check_attenuations(mask: &Mask) -> Result<(), InputError> {
+    if !(mask.apass_db.is_finite() && mask.apass_db > 0.0) {
+        return Err(InputError::new(
+            "apass",
+            format!(
+                "apass must be a positive attenuation in dB, got {}",
+                mask.apass_db
+            ),
+        ));
+    }
+    if !(mask.astop_db.is_finite() && mask.astop_db > mask.apass_db) {
+        return Err(InputError::new(
+            "astop",
+            format!(
+                "astop must be a finite attenuation above apass ({} dB), got {}",
+                mask.apass_db, mask.astop_db
+            ),
+        ));
+    }
+    Ok(())
+}
+
+/// Largest prototype order for a class: 20 for lp/hp, 10 for band-pass (20 poles in all).
+pub fn max_prototype_order(class: ResponseClass) -> usize {
+    match class {
+        ResponseClass::BandPass => MAX_ORDER / 2,
+        _ => MAX_ORDER,
+    }
+}
+
+/// Poles of the whole filter for a prototype order (×2 for band-pass).
+pub fn total_order(class: ResponseClass, prototype_order: usize) -> usize {
+    match class {
+        ResponseClass::BandPass => 2 * prototype_order,
+        _ => prototype_order,
+    }
+}
+
+/// The minimum order of `family` that meets `mask` for `class`.
+///
+/// Closed forms for Butterworth and for Chebyshev whose ripple equals `apass` (scipy `buttord`,
+/// `cheb1ord`, `analog=True`); a search over orders 1–20 (even only for Linkwitz-Riley; prototype
+/// orders up to 10 for band-pass) for the others. See the module docs.
+///
+/// # Errors
+/// [`OrderError::Input`] for an unusable mask (see [`selectivity`]) or a Chebyshev ripple outside
+/// 0.01–3 dB or above `apass`; [`OrderError::AboveLimit`] when no allowed order meets the mask.
+pub fn min_order(
+    family: Family,
+    class: ResponseClass,
+    mask: &Mask,
+) -> Result<MinOrder, OrderError> {
+    let nu = selectivity(class, mask)?;
+    let max_proto = max_prototype_order(class);
+    let too_high = |needed: Option<usize>| OrderError::AboveLimit {
+        family,
+        needed: needed.map(|n| total_order(class, n)),
+        limit: MAX_ORDER,
+    };
+    let accept = |n: usize| {
+        if n <= max_proto {
+            Ok(MinOrder {
+                order: total_order(class, n),
+                prototype_order: n,
+            })
+        } else {
+            Err(too_high(Some(n)))
+        }
+    };
+    // Same expressions as scipy so that the rounding up agrees to the last bit.
+    let g_stop = 10f64.powf(0.1 * mask.astop_db);
+    let g_pass = 10f64.powf(0.1 * mask.apass_db);
+    match family {
+        Family::Butterworth => {
+            let real = ((g_stop - 1.0) / (g_pass - 1.0)).log10() / (2.0 * nu.log10());
+            accept(closed_form_order(real))
+        }
+        Family::Chebyshev { ripple_db } => {
+            prototype::validate(family, 1)?;
+            let same = (ripple_db - mask.apass_db).abs() <= 1e-9 * ripple_db.max(1.0);
+            if same {
+                let real = ((g_stop - 1.0) / (g_pass - 1.0)).sqrt().acosh() / nu.acosh();
+                accept(closed_form_order(real))
+            } else if ripple_db > mask.apass_db {
+                Err(OrderError::Input(InputError::new(
+                    "ripple",
+                    format!(
+                        "ripple {ripple_db} dB is larger than apass {} dB, so the passband \
+                         ripple alone breaks the mask; set ripple at most apass",
+                        mask.apass_db
+                    ),
+                )))
+            } else {
+                search(family, 1, 1, max_proto, nu, mask).map_or(Err(too_high(None)), accept)
+            }
+        }
+        Family::LinkwitzRiley => {
+            search(family, 2, 2, max_proto, nu, mask).map_or(Err(too_high(None)), accept)
+        }
+        Family::Bessel | Family::Critical => {
+            search(family, 1, 1, max_proto, nu, mask).map_or(Err(too_high(None)), accept)
+        }
+    }
+}
+
+/// `⌈x⌉` as an order, at least 1; saturates for absurd values instead of wrapping.
+fn closed_form_order(real: f64) -> usize {
+    if real.is_nan() {
+        return usize::MAX;
+    }
+    let up = real.ceil().max(1.0);
+    if up > 1e6 {
+        usize::MAX
+    } else {
+        up as usize
+    }
+}
+
+/// The first prototype order in `first, first+step, … ≤ last` whose attenuation at `ν·w_p`
+/// reaches `astop`, `w_p` being where it reaches `apass`.
+fn search(
+    family: Family,
+    first: usize,
+    step: usize,
+    last: usize,
+    nu: f64,
+    mask: &Mask,
+) -> Option<usize> {
+    (first..=last).step_by(step).find(|&n| {
+        prototype::prototype(family, n)
+            .ok()
+            .and_then(|proto| {
+                let w_pass = proto.passband_edge(mask.apass_db).ok()?;
+                Some(proto.attenuation_db(nu * w_pass) >= mask.astop_db)
+            })
+            .unwrap_or(false)
+    })
+}
+
+/// The minimum order of all five families for one mask, side by side (the family comparison).
+///
+/// Chebyshev uses `chebyshev_ripple_db`, or when `None` the mask's `apass` clamped to 0.01–3 dB
+/// (the usual choice: the ripple band is the allowed passband loss).
+pub fn compare_families(
+    class: ResponseClass,
+    mask: &Mask,
+    chebyshev_ripple_db: Option<f64>,
+) -> Vec<FamilyOrder> {
+    let ripple_db = chebyshev_ripple_db.unwrap_or_else(|| {
+        mask.apass_db
+            .clamp(prototype::MIN_RIPPLE_DB, prototype::MAX_RIPPLE_DB)
+    });
+    [
+        Family::Butterworth,
+        Family::Chebyshev { ripple_db },
+        Family::Bessel,
+        Family::LinkwitzRiley,
+        Family::Critical,
+    ]
+    .into_iter()
+    .map(|family| FamilyOrder {
+        family,
+        result: min_order(family, class, mask),
+    })
+    .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn lp_mask(fp: f64, fs: f64, ap: f64, a_s: f64) -> Mask {
+        Mask {
+            pass: Edge::Single(fp),
+            apass_db: ap,
+            stop: Edge::Single(fs),
+            astop_db: a_s,
+        }
+    }
+
+    #[test]
+    fn bad_masks_name_their_key() {
+        let lp = ResponseClass::LowPass;
+        let key = |m: Mask, c| selectivity(c, &m).unwrap_err().key;
+        assert_eq!(key(lp_mask(1e3, 500.0, 1.0, 40.0), lp), "fstop");
+        assert_eq!(key(lp_mask(1e3, 2e3, 0.0, 40.0), lp), "apass");
+        assert_eq!(key(lp_mask(1e3, 2e3, 3.0, 2.0), lp), "astop");
+        assert_eq!(key(lp_mask(f64::NAN, 2e3, 1.0, 40.0), lp), "fpass");
+        assert_eq!(
+            key(lp_mask(1e3, 2e3, 1.0, 40.0), ResponseClass::HighPass),
+            "fstop"
+        );
+        assert_eq!(
+            key(lp_mask(1e3, 2e3, 1.0, 40.0), ResponseClass::BandPass),
+            "fpass"
+        );
+    }
+
+    #[test]
+    fn too_tight_a_mask_reports_above_limit() {
+        let mask = lp_mask(1e3, 1.01e3, 0.1, 100.0);
+        for row in compare_families(ResponseClass::LowPass, &mask, None) {
+            let err = row.result.unwrap_err();
+            assert!(matches!(err, OrderError::AboveLimit { .. }), "{err:?}");
+            let input = err.to_input_error();
+            assert_eq!(input.key, "astop");
+            assert!(input.message.contains("fstop") && input.message.contains("order"));
+        }
+    }
+
+    #[test]
+    fn linkwitz_riley_orders_are_even() {
+        let mask = lp_mask(1e3, 3e3, 3.0, 33.0);
+        let got = min_order(Family::LinkwitzRiley, ResponseClass::LowPass, &mask).unwrap();
+        assert_eq!(got.order % 2, 0);
+    }
+}

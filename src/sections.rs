@@ -2,6 +2,8 @@
 
 use serde::Serialize;
 
+use crate::error::InputError;
+
 /// What a section passes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 pub enum SectionKind {
@@ -34,6 +36,187 @@ impl Section {
             2
         } else {
             1
+        }
+    }
+}
+
+/// The order of the sections along the signal path.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub enum StageOrder {
+    /// First-order sections first, then ascending Q (ties: ascending f0). The default: the
+    /// low-Q sections go first so that the high-Q peaking is met by a signal already band-limited,
+    /// which keeps internal levels inside the cascade lower (common practice).
+    AscendingQ,
+    /// The reverse of [`StageOrder::AscendingQ`]: highest Q first, first-order sections last.
+    DescendingQ,
+    /// An explicit order: position `i` holds the 1-based number of a section in the
+    /// ascending-Q order, as typed in a link (`stageorder=2,1,3`). Must be a permutation of
+    /// `1..=n` for `n` sections.
+    Explicit(Vec<usize>),
+}
+
+/// Turns the transformed poles into sections with unit gain, in ascending-Q order.
+///
+/// Each pole group becomes one section: `f0 = |p|/2π`, `Q = |p|/(2·|Re p|)` for a conjugate pair,
+/// `f0 = √(ab)/2π`, `Q = √(ab)/|a + b|` for two real poles, `f0 = |p|/2π` and no Q for one real
+/// pole. The kind follows the class: low-pass, high-pass or band-pass sections (see
+/// [`SectionKind`]); every section of a band-pass takes one zero at the origin.
+pub fn from_target(target: &crate::transform::Target) -> Vec<Section> {
+    let kind = match target.class {
+        crate::spec::ResponseClass::LowPass => SectionKind::LowPass,
+        crate::spec::ResponseClass::HighPass => SectionKind::HighPass,
+        crate::spec::ResponseClass::BandPass => SectionKind::BandPass,
+    };
+    let mut sections: Vec<Section> = target
+        .groups
+        .iter()
+        .map(|g| Section {
+            kind,
+            f0_hz: g.w0() / (2.0 * std::f64::consts::PI),
+            q: g.q(),
+            gain: 1.0,
+        })
+        .collect();
+    sort_ascending_q(&mut sections);
+    sections
+}
+
+/// Sorts sections first-order first, then by ascending Q, ties by ascending f0.
+pub fn sort_ascending_q(sections: &mut [Section]) {
+    sections.sort_by(|a, b| {
+        let qa = a.q.unwrap_or(f64::NEG_INFINITY);
+        let qb = b.q.unwrap_or(f64::NEG_INFINITY);
+        qa.total_cmp(&qb).then(a.f0_hz.total_cmp(&b.f0_hz))
+    });
+}
+
+/// Distributes an overall passband gain over the sections, split evenly in dB.
+///
+/// The cascade of unit-gain sections has the magnitude `|H_1(j w_ref)|` at its reference frequency
+/// (DC for low-pass, infinity for high-pass — both 1 — and the geometric centre `W0` for
+/// band-pass, where off-centre sections contribute less than 1). The prototype's reference
+/// gain `r` (its DC gain relative to its passband maximum, below 1 only for even-order
+/// Chebyshev) is where the passband maximum sits relative to that point. The total linear gain is
+/// therefore `G = 10^(gain_db/20) · r / |H_1(j w_ref)|`, so that the passband *maximum* is
+/// `gain_db`, and each of the `m` sections gets `G^(1/m)` (equal dB per section, positive).
+pub fn distribute_gain(
+    sections: &mut [Section],
+    band: crate::transform::Band,
+    reference_gain: f64,
+    gain_db: f64,
+) {
+    if sections.is_empty() {
+        return;
+    }
+    for s in sections.iter_mut() {
+        s.gain = 1.0;
+    }
+    let unit_at_reference = match band {
+        crate::transform::Band::BandPass { w0, .. } => {
+            crate::response::cascade_response(sections, w0 / (2.0 * std::f64::consts::PI)).norm()
+        }
+        _ => 1.0,
+    };
+    let total = 10f64.powf(gain_db / 20.0) * reference_gain / unit_at_reference;
+    let each = total.powf(1.0 / sections.len() as f64);
+    for s in sections.iter_mut() {
+        s.gain = each;
+    }
+}
+
+/// Puts ascending-Q sections into the chosen stage order.
+///
+/// # Errors
+/// `stageorder` when an explicit order is not a permutation of `1..=n` (wrong length, a number
+/// out of range, or a repeat).
+pub fn arrange(ascending: &[Section], order: &StageOrder) -> Result<Vec<Section>, InputError> {
+    match order {
+        StageOrder::AscendingQ => Ok(ascending.to_vec()),
+        StageOrder::DescendingQ => Ok(ascending.iter().rev().copied().collect()),
+        StageOrder::Explicit(positions) => {
+            let n = ascending.len();
+            let bad = |what: String| {
+                InputError::new(
+                    "stageorder",
+                    format!(
+                        "{what}; stageorder lists each stage number 1–{n} once, in signal order \
+                         (numbers count the stages in ascending-Q order)"
+                    ),
+                )
+            };
+            if positions.len() != n {
+                return Err(bad(format!(
+                    "{} numbers given for {n} stages",
+                    positions.len()
+                )));
+            }
+            let mut seen = vec![false; n];
+            let mut out = Vec::with_capacity(n);
+            for &number in positions {
+                match number
+                    .checked_sub(1)
+                    .and_then(|i| ascending.get(i).map(|s| (i, s)))
+                {
+                    Some((i, section)) => {
+                        if seen[i] {
+                            return Err(bad(format!("stage {number} appears twice")));
+                        }
+                        seen[i] = true;
+                        out.push(*section);
+                    }
+                    None => return Err(bad(format!("stage {number} does not exist"))),
+                }
+            }
+            Ok(out)
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn lp(q: Option<f64>, f0_hz: f64) -> Section {
+        Section {
+            kind: SectionKind::LowPass,
+            f0_hz,
+            q,
+            gain: 1.0,
+        }
+    }
+
+    #[test]
+    fn ascending_puts_first_order_first() {
+        let mut s = vec![lp(Some(1.3), 1.0), lp(None, 2.0), lp(Some(0.54), 3.0)];
+        sort_ascending_q(&mut s);
+        assert_eq!(s[0].q, None);
+        assert_eq!(s[1].q, Some(0.54));
+        let d = arrange(&s, &StageOrder::DescendingQ).unwrap();
+        assert_eq!(d[0].q, Some(1.3));
+    }
+
+    #[test]
+    fn explicit_order_is_validated() {
+        let s = vec![lp(None, 1.0), lp(Some(0.7), 1.0), lp(Some(2.0), 1.0)];
+        let ok = arrange(&s, &StageOrder::Explicit(vec![3, 1, 2])).unwrap();
+        assert_eq!(ok[0].q, Some(2.0));
+        for bad in [vec![1, 2], vec![1, 1, 2], vec![0, 1, 2], vec![1, 2, 4]] {
+            let err = arrange(&s, &StageOrder::Explicit(bad)).unwrap_err();
+            assert_eq!(err.key, "stageorder");
+        }
+    }
+
+    #[test]
+    fn gain_is_split_evenly_in_db() {
+        let mut s = vec![lp(None, 1.0), lp(Some(0.7), 1.0), lp(Some(2.0), 1.0)];
+        distribute_gain(
+            &mut s,
+            crate::transform::Band::LowPass { wc: 1.0 },
+            1.0,
+            12.0,
+        );
+        for sec in &s {
+            assert!((20.0 * sec.gain.log10() - 4.0).abs() < 1e-12);
         }
     }
 }
