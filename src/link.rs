@@ -11,6 +11,7 @@
 use crate::error::InputError;
 use crate::eseries::Series;
 use crate::opamp::OpAmp;
+use crate::sections::StageOrder;
 use crate::spec::{Edge, Family, Mask, OrderChoice, Requirement, ResponseClass};
 use crate::topology::Topology;
 use crate::units::parse_si;
@@ -39,17 +40,6 @@ pub enum Rounding {
     /// A search over combinations of neighbouring standard values for the least f0 and Q error
     /// (`search`, the default).
     Search,
-}
-
-/// The order of the stages along the signal path (`stageorder`).
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
-pub enum StageOrderChoice {
-    /// Lowest Q first (`q-up`, the default): the high-Q stages see an already band-limited signal.
-    AscendingQ,
-    /// Highest Q first (`q-down`).
-    DescendingQ,
-    /// An explicit permutation of the default order, 1-based (`2,1,3`).
-    Explicit(Vec<usize>),
 }
 
 /// The distribution of part values in the tolerance study (`dist`).
@@ -142,7 +132,7 @@ pub struct LinkState {
     /// Per-part tolerance overrides (`tolset=R3:0.1,C2:1`): reference and tolerance in %.
     pub tolerance_overrides: Vec<(String, f64)>,
     /// Stage order (`stageorder`).
-    pub stage_order: StageOrderChoice,
+    pub stage_order: StageOrder,
     /// Tolerance study settings (`runs`, `seed`, `dist`, `sigmas`).
     pub study: Study,
     /// Signal levels (`vin`, `swing`, `drift`, `noiseband`).
@@ -179,7 +169,7 @@ impl Default for LinkState {
             rounding: Rounding::Search,
             overrides: Vec::new(),
             tolerance_overrides: Vec::new(),
-            stage_order: StageOrderChoice::AscendingQ,
+            stage_order: StageOrder::AscendingQ,
             study: Study {
                 runs: 1000,
                 seed: 1,
@@ -794,13 +784,13 @@ impl Reader {
         state.tolerance_overrides = self.part_list("tolset", 0.0, 50.0, "a part tolerance in %");
         if let Some(text) = self.raw("stageorder").map(str::to_string) {
             match text.trim().to_ascii_lowercase().as_str() {
-                "q-up" => state.stage_order = StageOrderChoice::AscendingQ,
-                "q-down" => state.stage_order = StageOrderChoice::DescendingQ,
+                "q-up" => state.stage_order = StageOrder::AscendingQ,
+                "q-down" => state.stage_order = StageOrder::DescendingQ,
                 list => {
                     let numbers: Result<Vec<usize>, _> =
                         list.split(',').map(|s| s.trim().parse::<usize>()).collect();
                     match numbers {
-                        Ok(n) if !n.is_empty() && n.len() <= MAX_ORDER => state.stage_order = StageOrderChoice::Explicit(n),
+                        Ok(n) if !n.is_empty() && n.len() <= MAX_ORDER => state.stage_order = StageOrder::Explicit(n),
                         _ => self.fail("stageorder", format!("'{text}' is not accepted; use q-up, q-down or a list of stage numbers such as 2,1,3")),
                     }
                 }
@@ -957,7 +947,7 @@ mod tests {
                 r.state.overrides,
                 vec![("R3".to_string(), 4700.0), ("C2".to_string(), 10e-9)]
             );
-            assert_eq!(r.state.stage_order, StageOrderChoice::Explicit(vec![2, 1]));
+            assert_eq!(r.state.stage_order, StageOrder::Explicit(vec![2, 1]));
             assert!(r.state.op_amp.gbw_hz.is_infinite());
         });
     }
