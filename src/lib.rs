@@ -7,6 +7,7 @@
 //! only `wasm` (built for wasm32) knows JavaScript types.
 
 pub mod analysis;
+pub mod board;
 pub mod design;
 pub mod error;
 pub mod eseries;
@@ -19,6 +20,7 @@ pub mod order;
 pub mod plot;
 pub mod prototype;
 pub mod response;
+pub mod schematic;
 pub mod sections;
 pub mod spec;
 pub mod topology;
