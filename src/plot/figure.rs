@@ -177,15 +177,21 @@ pub struct Frame {
 }
 
 impl Frame {
-    /// The plot area for a canvas of `width` × `height` backend pixels at `scale` backend pixels
-    /// per CSS pixel: fixed margins for the tick labels, the axis titles and the figure title.
-    pub fn new(width: u32, height: u32, scale: f64) -> Frame {
-        let s = scale.clamp(0.5, 4.0);
+    /// The plot area for a canvas of `width` × `height` backend pixels drawn with `look`: fixed
+    /// margins (in CSS pixels, times the look's scale) for the tick labels, the axis titles and the
+    /// figure title; a compact look (thumbnails) keeps only room for tick labels.
+    pub fn new(width: u32, height: u32, look: &Look) -> Frame {
+        let s = look.scale_clamped();
         let (w, h) = (f64::from(width), f64::from(height));
-        let left = (50.0 * s).min(w * 0.4);
-        let right = (w - 12.0 * s).max(left + 1.0);
-        let top = (24.0 * s).min(h * 0.3);
-        let bottom = (h - 32.0 * s).max(top + 1.0);
+        let (l, r, t, b) = if look.compact {
+            (26.0, 4.0, 5.0, 13.0)
+        } else {
+            (50.0, 12.0, 24.0, 32.0)
+        };
+        let left = (l * s).min(w * 0.4);
+        let right = (w - r * s).max(left + 1.0);
+        let top = (t * s).min(h * 0.3);
+        let bottom = (h - b * s).max(top + 1.0);
         Frame {
             left,
             top,
@@ -249,11 +255,12 @@ pub fn readout(
     figure: &Figure,
     width: u32,
     height: u32,
-    scale: f64,
+    look: &Look,
     px: f64,
     py: f64,
 ) -> Option<Readout> {
-    let frame = Frame::new(width, height, scale);
+    let scale = look.scale_clamped();
+    let frame = Frame::new(width, height, look);
     if !frame.contains(px, py) {
         return None;
     }
@@ -358,9 +365,9 @@ fn interpolate(axis: &Axis, points: &[(f64, f64)], x: f64) -> Option<f64> {
     None
 }
 
-type Coord = (i32, i32);
+pub(crate) type Coord = (i32, i32);
 
-fn round(p: (f64, f64)) -> Coord {
+pub(crate) fn round(p: (f64, f64)) -> Coord {
     (p.0.round() as i32, p.1.round() as i32)
 }
 
@@ -447,15 +454,20 @@ fn clipped_runs(frame: &Frame, pixels: &[Option<(f64, f64)>]) -> Vec<Vec<Coord>>
 }
 
 /// Backend errors differ by backend; the page only needs their message.
-fn backend_err<E: std::fmt::Display>(error: E) -> PlotError {
+pub(crate) fn backend_err<E: std::fmt::Display>(error: E) -> PlotError {
     PlotError(error.to_string())
 }
 
-fn text_style(look: &Look, size_css: f64, color: RGBAColor, anchor: Pos) -> TextStyle<'static> {
+pub(crate) fn text_style(
+    look: &Look,
+    size_css: f64,
+    color: RGBAColor,
+    anchor: Pos,
+) -> TextStyle<'static> {
     text_style_with(look, size_css, color, anchor, FontStyle::Normal)
 }
 
-fn text_style_with(
+pub(crate) fn text_style_with(
     look: &Look,
     size_css: f64,
     color: RGBAColor,
@@ -485,7 +497,7 @@ pub fn draw<DB: DrawingBackend>(
     let (width, height) = backend.get_size();
     let palette = look.palette();
     let s = look.scale_clamped();
-    let frame = Frame::new(width, height, s);
+    let frame = Frame::new(width, height, look);
     let x_axis = figure.x.sanitized();
     let y_axis = figure.y.sanitized();
 
@@ -507,7 +519,7 @@ pub fn draw<DB: DrawingBackend>(
         .map_err(backend_err)?;
 
     // Grid and tick labels.
-    let tick_font = 10.5;
+    let tick_font = if look.compact { 8.5 } else { 10.5 };
     let grid_minor = ShapeStyle::from(palette.grid_minor).stroke_width(1);
     let grid_major = ShapeStyle::from(palette.grid_major).stroke_width(1);
     for tick in x_axis.ticks() {
@@ -530,7 +542,7 @@ pub fn draw<DB: DrawingBackend>(
                 Pos::new(HPos::Center, VPos::Top),
             );
             backend
-                .draw_text(&label, &style, round((x, frame.bottom + 4.0 * s)))
+                .draw_text(&label, &style, round((x, frame.bottom + 2.0 * s)))
                 .map_err(backend_err)?;
         }
     }
@@ -572,6 +584,11 @@ pub fn draw<DB: DrawingBackend>(
             false,
         )
         .map_err(backend_err)?;
+
+    if look.compact {
+        backend.present().map_err(backend_err)?;
+        return Ok(());
+    }
 
     // Axis titles: x below the tick labels at the right end; y rotated along the left edge.
     let x_title = axis_title(&x_axis);
@@ -1058,6 +1075,12 @@ mod tests {
     use crate::plot::{Theme, TickFormat};
     use plotters::prelude::SVGBackend;
 
+    const LOOK: Look = Look {
+        theme: Theme::Light,
+        scale: 1.0,
+        compact: false,
+    };
+
     fn sample_figure() -> Figure {
         let points: Vec<(f64, f64)> = (0..=40)
             .map(|i| {
@@ -1093,17 +1116,17 @@ mod tests {
     fn readout_interpolates_the_line_under_the_pointer() {
         let figure = sample_figure();
         let (w, h) = (600u32, 300u32);
-        let frame = Frame::new(w, h, 1.0);
+        let frame = Frame::new(w, h, &LOOK);
         // The pointer at the 1 kHz column, which is exactly half-way along the log axis.
         let px = (frame.left + frame.right) / 2.0;
-        let read = readout(&figure, w, h, 1.0, px, frame.top + 10.0);
+        let read = readout(&figure, w, h, &LOOK, px, frame.top + 10.0);
         let read = read.unwrap_or_else(|| panic!("pointer inside the frame gave no readout"));
         assert_eq!(read.x, "1kHz");
         let built = read.entries.iter().find(|e| e.label == "built");
         // A first-order low-pass is 3.01 dB down at its corner (10·log10 2, circuit theory).
         assert_eq!(built.map(|e| e.value.as_str()), Some("−3.01 dB"));
         assert_eq!(
-            readout(&figure, w, h, 1.0, 1.0, 1.0),
+            readout(&figure, w, h, &LOOK, 1.0, 1.0),
             None,
             "margin is outside"
         );
@@ -1115,17 +1138,14 @@ mod tests {
         let mut svg = String::new();
         {
             let mut backend = SVGBackend::with_string(&mut svg, (600, 300));
-            let look = Look {
-                theme: Theme::Light,
-                scale: 1.0,
-            };
-            let result = draw(&mut backend, &figure, &look);
+            let result = draw(&mut backend, &figure, &LOOK);
             assert!(result.is_ok(), "{result:?}");
         }
+        crate::plot::dump_for_review("figure-gain.svg", &svg);
         assert!(svg.contains("\ngain\n</text>"), "title missing");
         assert!(svg.contains("\n1k\n</text>"), "decade label missing");
         // Every polyline vertex lies inside the frame (the line is clipped, not drawn in margins).
-        let frame = Frame::new(600, 300, 1.0);
+        let frame = Frame::new(600, 300, &LOOK);
         let mut n_vertices = 0;
         for chunk in svg.split("points=\"").skip(1) {
             let list = chunk.split('"').next().unwrap_or("");

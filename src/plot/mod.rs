@@ -7,13 +7,39 @@
 
 pub mod axis;
 pub mod figure;
+pub mod figures;
 
 pub use axis::{Axis, Scale, TickFormat};
 pub use figure::{draw, readout, Figure, Layer, Orientation, Readout, Shape, Weight};
+pub use figures::{PlotData, PlotKind};
 
 use plotters::prelude::RGBAColor;
 use serde::Serialize;
 use std::fmt;
+
+/// Renders `figure` as an SVG document of `width` × `height` pixels (for the command line's
+/// `plot` and for reports).
+///
+/// # Errors
+/// [`PlotError`] when the SVG backend fails.
+pub fn render_svg(
+    figure: &Figure,
+    width: u32,
+    height: u32,
+    theme: Theme,
+) -> Result<String, PlotError> {
+    let mut svg = String::new();
+    {
+        let mut backend = plotters::prelude::SVGBackend::with_string(&mut svg, (width, height));
+        let look = Look {
+            theme,
+            scale: 1.0,
+            compact: false,
+        };
+        draw(&mut backend, figure, &look)?;
+    }
+    Ok(svg)
+}
 
 /// A drawing failure reported by the backend (for example a canvas that is no longer there).
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -62,6 +88,8 @@ pub struct Look {
     pub theme: Theme,
     /// Backend pixels per CSS pixel (the browser's devicePixelRatio; 1 for SVG files).
     pub scale: f64,
+    /// A thumbnail: tick labels only, no title, legend or axis titles.
+    pub compact: bool,
 }
 
 impl Look {
@@ -186,6 +214,18 @@ impl Palette {
             Ink::Muted => self.muted,
             Ink::Warn => self.warn,
             Ink::Series(index) => self.series[usize::from(index) % self.series.len()],
+        }
+    }
+}
+
+/// Writes a rendered test image into the folder named by `ROLLOFF_PLOT_DUMP`, when that variable
+/// is set, so a person can look at what the tests drew. Does nothing otherwise.
+#[cfg(test)]
+pub(crate) fn dump_for_review(name: &str, contents: &str) {
+    if let Some(dir) = std::env::var_os("ROLLOFF_PLOT_DUMP") {
+        let path = std::path::Path::new(&dir).join(name);
+        if let Err(error) = std::fs::write(&path, contents) {
+            eprintln!("could not write {}: {error}", path.display());
         }
     }
 }
