@@ -6,7 +6,10 @@ Writes tests/reference/synthesis_reference.json next to this script:
 * analog low-pass prototypes for orders 1-20: buttap, cheb1ap at ripples 0.01, 0.1, 0.5, 1, 2
   and 3 dB, and besselap(norm='mag'); each as poles [[re, im], ...] and gain k;
 * minimum orders and natural frequencies from buttord and cheb1ord (analog=True) for low-pass,
-  high-pass and band-pass specifications of our own (numbers chosen for this project).
+  high-pass and band-pass specifications of our own (numbers chosen for this project);
+* complete analog designs (butter, cheby1, bessel norm='mag'; lp, hp, bp) as zeros/poles in
+  rad/s and H(j*2*pi*f) from freqs_zpk at log-spaced frequencies, to check the transforms and
+  the section cascade.
 
 The scipy, numpy and Python versions are recorded in the file. Run with
 `python3 tests/reference/make_reference.py`; the Rust tests read the committed JSON and do not
@@ -49,6 +52,51 @@ SPECS = [
 ]
 
 
+# Complete designs of our own: (family, class, N, edges_hz, ripple_db). For bp, N is scipy's
+# prototype order and the edges are the band edges the prototype's 1 rad/s maps to.
+DESIGNS = [
+    ("butterworth", "lp", 5, [1000.0], None),
+    ("chebyshev", "lp", 4, [2000.0], 1.0),
+    ("bessel", "lp", 6, [500.0], None),
+    ("chebyshev", "lp", 20, [3000.0], 3.0),
+    ("butterworth", "hp", 3, [100.0], None),
+    ("chebyshev", "hp", 5, [10e3], 0.5),
+    ("bessel", "hp", 4, [50.0], None),
+    ("butterworth", "bp", 3, [900.0, 1100.0], None),
+    ("chebyshev", "bp", 4, [300.0, 3400.0], 0.1),
+    ("bessel", "bp", 2, [2000.0, 20e3], None),
+    ("butterworth", "bp", 1, [100.0, 1000.0], None),  # wide: the real pole gives two real poles
+    ("butterworth", "bp", 10, [1000.0, 1200.0], None),
+]
+
+
+def design_json(family, cls, n, edges_hz, ripple_db):
+    btype = {"lp": "lowpass", "hp": "highpass", "bp": "bandpass"}[cls]
+    wn = [2 * math.pi * f for f in edges_hz]
+    wn = wn[0] if len(wn) == 1 else wn
+    if family == "butterworth":
+        z, p, k = signal.butter(n, wn, btype, analog=True, output="zpk")
+    elif family == "chebyshev":
+        z, p, k = signal.cheby1(n, ripple_db, wn, btype, analog=True, output="zpk")
+    else:
+        z, p, k = signal.bessel(n, wn, btype, analog=True, output="zpk", norm="mag")
+    centre = math.sqrt(edges_hz[0] * edges_hz[-1])
+    freqs_hz = np.logspace(math.log10(centre / 100), math.log10(centre * 100), 41)
+    _, h = signal.freqs_zpk(z, p, k, worN=2 * math.pi * freqs_hz)
+    return {
+        "family": family,
+        "class": cls,
+        "order": n,
+        "edges_hz": edges_hz,
+        "ripple_db": ripple_db,
+        "zeros": poles_json(z),
+        "poles": poles_json(p),
+        "k": float(k),
+        "freqs_hz": freqs_hz.tolist(),
+        "h": poles_json(h),
+    }
+
+
 def poles_json(p):
     return [[float(np.real(x)), float(np.imag(x))] for x in p]
 
@@ -80,6 +128,7 @@ def main():
         "bessel_mag": [],
         "buttord": [],
         "cheb1ord": [],
+        "designs": [design_json(*d) for d in DESIGNS],
     }
     for n in ORDERS:
         _, p, k = signal.buttap(n)
