@@ -9,7 +9,8 @@
 //! formula gives 9.19 — so the tables are written out, not computed.
 //!
 //! Rounding is geometric: a value goes to the standard value with the least |ln(value/standard)|,
-//! over any decade, so 9.5 goes to 10 in E24 (ln(10/9.5) < ln(9.5/9.1)).
+//! over any decade. The boundary between two neighbours is their geometric mean: in E24, 9.54
+//! goes to 10 (above √(9.1·10) = 9.539) although it is arithmetically nearer 9.1.
 
 use serde::Serialize;
 

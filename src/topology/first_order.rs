@@ -13,6 +13,7 @@
 use super::sallen_key::{divider_gain, gain_divider, solve_divider};
 use super::{slot, Achieved, Layout, RatioRule, Realization, Slot, Target};
 use crate::eseries::PartClass::{Capacitor, Resistor};
+use crate::eseries::Series;
 use std::f64::consts::PI;
 
 /// RC low-pass with a follower or non-inverting gain.
@@ -90,7 +91,14 @@ impl Realization for BufferedLowPass {
     fn hint_of(&self, _v: &[f64]) -> Option<f64> {
         None
     }
-    fn set_capacitors(&self, _t: &Target, v: &mut [f64], c_ref: f64, _c_ratio: f64) {
+    fn set_capacitors(
+        &self,
+        _t: &Target,
+        v: &mut [f64],
+        c_ref: f64,
+        _c_ratio: f64,
+        _c_series: Series,
+    ) {
         v[1] = c_ref;
     }
 }
@@ -134,7 +142,14 @@ impl Realization for BufferedHighPass {
     fn hint_of(&self, _v: &[f64]) -> Option<f64> {
         None
     }
-    fn set_capacitors(&self, _t: &Target, v: &mut [f64], c_ref: f64, _c_ratio: f64) {
+    fn set_capacitors(
+        &self,
+        _t: &Target,
+        v: &mut [f64],
+        c_ref: f64,
+        _c_ratio: f64,
+        _c_series: Series,
+    ) {
         v[0] = c_ref;
     }
 }
@@ -185,7 +200,14 @@ impl Realization for InvertingLowPass {
     fn hint_of(&self, _v: &[f64]) -> Option<f64> {
         None
     }
-    fn set_capacitors(&self, _t: &Target, v: &mut [f64], c_ref: f64, _c_ratio: f64) {
+    fn set_capacitors(
+        &self,
+        _t: &Target,
+        v: &mut [f64],
+        c_ref: f64,
+        _c_ratio: f64,
+        _c_series: Series,
+    ) {
         v[2] = c_ref;
     }
 }
@@ -236,7 +258,14 @@ impl Realization for InvertingHighPass {
     fn hint_of(&self, _v: &[f64]) -> Option<f64> {
         None
     }
-    fn set_capacitors(&self, _t: &Target, v: &mut [f64], c_ref: f64, _c_ratio: f64) {
+    fn set_capacitors(
+        &self,
+        _t: &Target,
+        v: &mut [f64],
+        c_ref: f64,
+        _c_ratio: f64,
+        _c_series: Series,
+    ) {
         v[0] = c_ref;
     }
 }

@@ -26,6 +26,7 @@
 
 use super::{pick_root, positive_roots, slot, Achieved, Layout, RatioRule, Realization, Target};
 use crate::eseries::PartClass::{Capacitor, Resistor};
+use crate::eseries::Series;
 use std::f64::consts::PI;
 
 /// The multiple-feedback low-pass.
@@ -134,7 +135,14 @@ impl Realization for LowPass {
         (v.len() == 5).then(|| v[2] / v[1])
     }
 
-    fn set_capacitors(&self, _t: &Target, v: &mut [f64], c_ref: f64, c_ratio: f64) {
+    fn set_capacitors(
+        &self,
+        _t: &Target,
+        v: &mut [f64],
+        c_ref: f64,
+        c_ratio: f64,
+        _c_series: Series,
+    ) {
         v[3] = c_ratio;
         v[4] = c_ref;
     }
@@ -220,10 +228,18 @@ impl Realization for HighPass {
         None
     }
 
-    fn set_capacitors(&self, t: &Target, v: &mut [f64], c_ref: f64, c_ratio: f64) {
+    fn set_capacitors(
+        &self,
+        t: &Target,
+        v: &mut [f64],
+        c_ref: f64,
+        c_ratio: f64,
+        c_series: Series,
+    ) {
         v[0] = c_ref;
         v[1] = c_ratio;
-        v[2] = c_ref / t.gain;
+        // The gain is C1/C3: C3 from the series, the level scan picks a C1 that divides well.
+        v[2] = c_series.nearest(c_ref / t.gain);
     }
 }
 
@@ -340,7 +356,14 @@ impl Realization for BandPass {
         None
     }
 
-    fn set_capacitors(&self, _t: &Target, v: &mut [f64], c_ref: f64, c_ratio: f64) {
+    fn set_capacitors(
+        &self,
+        _t: &Target,
+        v: &mut [f64],
+        c_ref: f64,
+        c_ratio: f64,
+        _c_series: Series,
+    ) {
         v[2] = c_ratio;
         v[3] = c_ref;
     }

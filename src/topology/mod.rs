@@ -342,7 +342,16 @@ pub(crate) trait Realization: Sync {
     fn hint_of(&self, values: &[f64]) -> Option<f64>;
     /// Sets the free capacitors from the level-setting capacitor `c_ref` and the ratio capacitor
     /// value `c_ratio` (already `n · c_ref` or a series value near it).
-    fn set_capacitors(&self, target: &Target, values: &mut [f64], c_ref: f64, c_ratio: f64);
+    /// `c_series` rounds a capacitor whose value sets the gain (the MFB high-pass C3 = C1/K),
+    /// so the gain rests on standard parts.
+    fn set_capacitors(
+        &self,
+        target: &Target,
+        values: &mut [f64],
+        c_ref: f64,
+        c_ratio: f64,
+        c_series: Series,
+    );
 }
 
 /// The design freedoms a stage needs (the board's choices without the op amp and overrides).
@@ -666,7 +675,7 @@ fn choose_level(
         } else {
             freedoms.c_series.ceil(ratio * c_ref)
         };
-        realization.set_capacitors(target, &mut values, c_ref, c_ratio);
+        realization.set_capacitors(target, &mut values, c_ref, c_ratio, freedoms.c_series);
         set_gain_ground_resistor(layout, &mut values, target, level, freedoms.r_series);
         if !realization.solve(target, &mut values, hint) {
             return None;
@@ -696,9 +705,14 @@ fn choose_level(
         let Some(values) = attempt(c_ref) else {
             continue;
         };
-        let Some(cost) = level_cost(layout, &values, level, auto_level) else {
+        let Some(mut cost) = level_cost(layout, &values, level, auto_level) else {
             continue;
         };
+        // Where a capacitor ratio sets the gain, the standard values chosen here decide the
+        // gain error: weigh it so that 1 % of gain counts like a 10 % step of level.
+        if let Some(achieved) = realization.achieved(&values) {
+            cost += 1000.0 * achieved.cost(target);
+        }
         if best.as_ref().map_or(true, |(b, _)| cost < *b) {
             best = Some((cost, values));
         }
@@ -819,7 +833,7 @@ fn level_warnings(
         warnings.push(format!(
             "stage {stage_no}: {} ({}) {what}: {reason}",
             slot.role,
-            crate::units::format_si_unit(
+            crate::board::format_value(
                 v,
                 3,
                 if slot.class == PartClass::Resistor {

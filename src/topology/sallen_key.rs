@@ -24,6 +24,7 @@ use super::{
     pick_root, positive_roots, slot, Achieved, Layout, RatioRule, Realization, Slot, Target,
 };
 use crate::eseries::PartClass::{Capacitor, Resistor};
+use crate::eseries::Series;
 use std::f64::consts::PI;
 
 /// The Sallen-Key low-pass.
@@ -187,7 +188,14 @@ impl Realization for LowPass {
         (v.len() >= 2).then(|| v[0] / v[1])
     }
 
-    fn set_capacitors(&self, _t: &Target, v: &mut [f64], c_ref: f64, c_ratio: f64) {
+    fn set_capacitors(
+        &self,
+        _t: &Target,
+        v: &mut [f64],
+        c_ref: f64,
+        c_ratio: f64,
+        _c_series: Series,
+    ) {
         v[2] = c_ratio;
         v[3] = c_ref;
     }
@@ -281,7 +289,14 @@ impl Realization for HighPass {
         None
     }
 
-    fn set_capacitors(&self, _t: &Target, v: &mut [f64], c_ref: f64, c_ratio: f64) {
+    fn set_capacitors(
+        &self,
+        _t: &Target,
+        v: &mut [f64],
+        c_ref: f64,
+        c_ratio: f64,
+        _c_series: Series,
+    ) {
         v[0] = c_ratio;
         v[1] = c_ref;
     }

@@ -1,0 +1,71 @@
+//! Helpers shared by the circuit tests: sections, boards, part lookup by role, sweeps.
+#![allow(dead_code)]
+
+use num_complex::Complex64;
+use rolloff::board::{Board, BuildChoices};
+use rolloff::netlist::StageNetlist;
+use rolloff::opamp::OpAmp;
+use rolloff::sections::{Section, SectionKind};
+use rolloff::topology::Topology;
+use std::f64::consts::PI;
+
+/// A section with the given kind, f0, Q (None for first order) and gain.
+pub fn section(kind: SectionKind, f0_hz: f64, q: Option<f64>, gain: f64) -> Section {
+    Section {
+        kind,
+        f0_hz,
+        q,
+        gain,
+    }
+}
+
+/// Default choices with a topology and an op amp.
+pub fn choices(topology: Topology, op_amp: OpAmp) -> BuildChoices {
+    BuildChoices {
+        topology,
+        op_amp,
+        ..BuildChoices::default()
+    }
+}
+
+/// A one-stage board (panics with the error if the build fails: tests only).
+pub fn one_stage(section: Section, topology: Topology, op_amp: OpAmp) -> Board {
+    Board::build(&[section], &choices(topology, op_amp))
+        .unwrap_or_else(|e| panic!("build {section:?}: {e}"))
+}
+
+/// The value of the part with this role in a stage netlist (panics when absent: tests only).
+pub fn role(net: &StageNetlist, role: &str) -> f64 {
+    net.parts
+        .iter()
+        .find(|p| p.role == role)
+        .unwrap_or_else(|| panic!("no part with role {role:?} in {:?}", net.parts))
+        .value
+}
+
+/// The value of an optional part (the gain divider).
+pub fn role_opt(net: &StageNetlist, role: &str) -> Option<f64> {
+    net.parts.iter().find(|p| p.role == role).map(|p| p.value)
+}
+
+/// s = j·2πf.
+pub fn jw(f_hz: f64) -> Complex64 {
+    Complex64::new(0.0, 2.0 * PI * f_hz)
+}
+
+/// `n` log-spaced frequencies from `lo` to `hi`, inclusive.
+pub fn log_sweep(lo: f64, hi: f64, n: usize) -> Vec<f64> {
+    (0..n)
+        .map(|k| lo * (hi / lo).powf(k as f64 / (n - 1) as f64))
+        .collect()
+}
+
+/// |a − b| / |b|.
+pub fn rel_err(a: Complex64, b: Complex64) -> f64 {
+    (a - b).norm() / b.norm()
+}
+
+/// 20·log10|h|.
+pub fn db(h: Complex64) -> f64 {
+    20.0 * h.norm().log10()
+}
