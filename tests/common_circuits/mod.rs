@@ -69,3 +69,56 @@ pub fn rel_err(a: Complex64, b: Complex64) -> f64 {
 pub fn db(h: Complex64) -> f64 {
     20.0 * h.norm().log10()
 }
+
+/// One section per circuit (with the topology choice that selects it), gains chosen to exercise
+/// the gain networks.
+pub fn circuit_cases() -> Vec<(&'static str, Section, Topology)> {
+    use SectionKind::*;
+    use Topology::*;
+    vec![
+        (
+            "sk-lp-unity",
+            section(LowPass, 1e3, Some(0.7071), 1.0),
+            SallenKey,
+        ),
+        (
+            "sk-lp-gain",
+            section(LowPass, 2e3, Some(1.3), 2.5),
+            SallenKey,
+        ),
+        (
+            "sk-hp-unity",
+            section(HighPass, 1e3, Some(0.7071), 1.0),
+            SallenKey,
+        ),
+        (
+            "sk-hp-gain",
+            section(HighPass, 500.0, Some(2.0), 3.0),
+            SallenKey,
+        ),
+        (
+            "mfb-lp",
+            section(LowPass, 1e3, Some(0.7071), 2.0),
+            MultipleFeedback,
+        ),
+        (
+            "mfb-hp",
+            section(HighPass, 3e3, Some(0.9), 1.5),
+            MultipleFeedback,
+        ),
+        (
+            "mfb-bp",
+            section(BandPass, 10e3, Some(5.0), 2.0),
+            MultipleFeedback,
+        ),
+        ("rc-lp", section(LowPass, 1e3, None, 1.0), SallenKey),
+        ("rc-lp-gain", section(LowPass, 1e3, None, 2.0), SallenKey),
+        ("rc-hp", section(HighPass, 100.0, None, 1.0), SallenKey),
+        ("inv-lp", section(LowPass, 5e3, None, 3.0), MultipleFeedback),
+        (
+            "inv-hp",
+            section(HighPass, 50.0, None, 0.5),
+            MultipleFeedback,
+        ),
+    ]
+}
