@@ -1,4 +1,8 @@
 //! Sections: the filter split into second-order and first-order pieces (f0, Q, gain).
+//!
+//! [`from_target`] turns the transformed pole groups into sections (one per conjugate pair, real
+//! pair or real pole), [`distribute_gain`] spreads the overall passband gain evenly in dB, and
+//! [`arrange`] puts them in the chosen [`StageOrder`] (ascending Q by default).
 
 use serde::Serialize;
 
