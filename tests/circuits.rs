@@ -1043,3 +1043,187 @@ fn defaults_follow_common_practice_and_warn_when_broken() {
     let geo = (role(n, "input resistor") * role(n, "second resistor")).sqrt();
     assert!(geo > 47e3 / 2.0 && geo < 47e3 * 2.0, "{geo}");
 }
+
+#[test]
+fn design_freedoms_are_honoured() {
+    // The closed forms of each circuit (module docs) with `exact` parts: an asked ratio comes
+    // out exactly, and f0/Q/gain still meet the target to 1e-9.
+    let exact = BuildChoices {
+        r_series: Series::Exact,
+        c_series: Series::Exact,
+        ..BuildChoices::default()
+    };
+    let q = 0.9;
+    let lp = [section(SectionKind::LowPass, 1e3, Some(q), 1.0)];
+    // Equal resistors in a unity-gain Sallen-Key low-pass force C1/C2 = 4Q² (its limit).
+    let b = Board::build(
+        &lp,
+        &BuildChoices {
+            r_ratio: Some(1.0),
+            ..exact.clone()
+        },
+    )
+    .unwrap();
+    let n = &b.stages[0].netlist;
+    assert!((role(n, "input resistor") / role(n, "second resistor") - 1.0).abs() < 1e-6);
+    let n_c = role(n, "feedback capacitor") / role(n, "ground capacitor");
+    assert!((n_c / (4.0 * q * q) - 1.0).abs() < 1e-9, "{n_c}");
+    // cratio on an MFB low-pass and on an SK high-pass.
+    let mfb = BuildChoices {
+        topology: Topology::MultipleFeedback,
+        c_ratio: Some(20.0),
+        ..exact.clone()
+    };
+    let b = Board::build(&lp, &mfb).unwrap();
+    let n = &b.stages[0].netlist;
+    assert!(
+        (role(n, "ground capacitor") / role(n, "feedback capacitor") / 20.0 - 1.0).abs() < 1e-12
+    );
+    let hp = [section(SectionKind::HighPass, 1e3, Some(q), 1.0)];
+    let b = Board::build(
+        &hp,
+        &BuildChoices {
+            c_ratio: Some(2.0),
+            ..exact.clone()
+        },
+    )
+    .unwrap();
+    let n = &b.stages[0].netlist;
+    assert!((role(n, "input capacitor") / role(n, "second capacitor") / 2.0 - 1.0).abs() < 1e-12);
+    // rratio on every second-order circuit.
+    for (sec, topology, num, den, m) in [
+        (
+            lp[0],
+            Topology::SallenKey,
+            "second resistor",
+            "input resistor",
+            3.0,
+        ),
+        (
+            hp[0],
+            Topology::SallenKey,
+            "ground resistor",
+            "feedback resistor",
+            8.0,
+        ),
+        (
+            lp[0],
+            Topology::MultipleFeedback,
+            "feedback resistor",
+            "resistor to the inverting input",
+            2.0,
+        ),
+        (
+            hp[0],
+            Topology::MultipleFeedback,
+            "feedback resistor",
+            "ground resistor",
+            20.0,
+        ),
+        (
+            section(SectionKind::BandPass, 1e3, Some(3.0), 2.0),
+            Topology::MultipleFeedback,
+            "feedback resistor",
+            "input resistor",
+            5.0,
+        ),
+    ] {
+        let ch = BuildChoices {
+            topology,
+            r_ratio: Some(m),
+            ..exact.clone()
+        };
+        let b = Board::build(&[sec], &ch).unwrap_or_else(|e| panic!("{sec:?} {topology:?}: {e}"));
+        let st = &b.stages[0];
+        let got = role(&st.netlist, num) / role(&st.netlist, den);
+        assert!(
+            (got / m - 1.0).abs() < 1e-6,
+            "{sec:?} {topology:?}: ratio {got} vs {m}"
+        );
+        assert!(
+            st.f0_error.abs() < 1e-9 && st.q_error.unwrap().abs() < 1e-9,
+            "{st:?}"
+        );
+    }
+}
+
+#[test]
+fn a_grid_of_requests_gives_a_sound_board_or_a_named_error() {
+    // Robustness over a deterministic grid (Q 0.5–12, gain 1–20, f0 1 Hz–200 kHz, every ratio
+    // choice, both topologies and all three section kinds): either an InputError with one of the
+    // keys of a design freedom, or a board whose every part is finite, positive, inside the
+    // buildable range, with f0 within 3 % and Q within 6 % of target (E96/E12, search).
+    let mut n_boards = 0;
+    for &f0 in &[1.0, 150.0, 10e3, 200e3] {
+        for &q in &[0.5, 0.7071, 2.0, 12.0] {
+            for &gain in &[1.0, 1.7, 20.0] {
+                for kind in [
+                    SectionKind::LowPass,
+                    SectionKind::HighPass,
+                    SectionKind::BandPass,
+                ] {
+                    for topology in [Topology::SallenKey, Topology::MultipleFeedback] {
+                        for (c_ratio, r_ratio) in [
+                            (None, None),
+                            (Some(3.0), None),
+                            (None, Some(3.0)),
+                            (Some(500.0), None),
+                        ] {
+                            let ch = BuildChoices {
+                                topology,
+                                c_ratio,
+                                r_ratio,
+                                ..BuildChoices::default()
+                            };
+                            let secs = [
+                                section(kind, f0, Some(q), gain),
+                                section(kind, f0, None, 1.0),
+                            ];
+                            let secs: &[Section] = if kind == SectionKind::BandPass {
+                                &secs[..1]
+                            } else {
+                                &secs
+                            };
+                            match Board::build(secs, &ch) {
+                                Err(e) => assert!(
+                                    ["cratio", "rratio", "gain", "rlevel"]
+                                        .contains(&e.key.as_str()),
+                                    "{e}"
+                                ),
+                                Ok(board) => {
+                                    n_boards += 1;
+                                    for p in board.parts() {
+                                        let class = match p.kind {
+                                            PartKind::Resistor => PartClass::Resistor,
+                                            PartKind::Capacitor => PartClass::Capacitor,
+                                            PartKind::OpAmp => continue,
+                                        };
+                                        assert!(
+                                            class.in_range(p.value),
+                                            "{} = {} in {secs:?} {ch:?}",
+                                            p.reference,
+                                            p.value
+                                        );
+                                    }
+                                    for st in &board.stages {
+                                        assert!(
+                                            st.f0_error.abs() < 0.03,
+                                            "f0 {} {secs:?} {ch:?} {:?}",
+                                            st.f0_error,
+                                            st.netlist.parts
+                                        );
+                                        if let Some(eq) = st.q_error {
+                                            assert!(eq.abs() < 0.06, "Q {eq} {secs:?} {ch:?}");
+                                        }
+                                    }
+                                }
+                            }
+                        }
+                    }
+                }
+            }
+        }
+    }
+    eprintln!("grid: {n_boards} boards built");
+    assert!(n_boards > 300, "most requests build: {n_boards}");
+}
