@@ -7,6 +7,7 @@
 //! only `wasm` (built for wasm32) knows JavaScript types.
 
 pub mod analysis;
+pub mod cli;
 pub mod board;
 pub mod design;
 pub mod error;
@@ -17,6 +18,7 @@ pub mod mna;
 pub mod netlist;
 pub mod opamp;
 pub mod order;
+pub mod pipeline;
 pub mod plot;
 pub mod prototype;
 pub mod response;

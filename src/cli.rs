@@ -1,0 +1,306 @@
+//! The command line: argument reading, the three commands and their exit status.
+//!
+//! [`run`] takes the arguments and two writers so that tests (and the fuzzer) drive it in-process.
+//! Exit status: 0 success; 2 bad input, with one line on stderr naming the key or flag and what
+//! it accepts; 1 any other failure.
+
+use crate::link::{self, LinkReport};
+use crate::pipeline::{self, Design};
+use std::io::Write;
+
+/// What went wrong, and so which exit status to give.
+#[derive(Debug)]
+enum Failure {
+    /// Bad input: exit 2.
+    Input(String),
+    /// Anything else: exit 1.
+    Other(String),
+}
+
+impl From<crate::error::InputError> for Failure {
+    fn from(e: crate::error::InputError) -> Self {
+        Failure::Input(e.to_string())
+    }
+}
+
+const USAGE: &str = "usage:
+  rolloff design LINK [--format text|json|bom|spice]
+  rolloff sweep  LINK [--from HZ] [--to HZ] [--points N] [--ideal]
+  rolloff spread LINK [--runs N] [--seed S] [--format text|json]
+LINK is a Rolloff query string or a whole URL (quote it in the shell).";
+
+/// Runs one command line. Returns the exit status.
+pub fn run(args: &[String], out: &mut dyn Write, err: &mut dyn Write) -> u8 {
+    match dispatch(args, out, err) {
+        Ok(()) => 0,
+        Err(Failure::Input(message)) => {
+            let _ = writeln!(err, "rolloff: {message}");
+            2
+        }
+        Err(Failure::Other(message)) => {
+            let _ = writeln!(err, "rolloff: {message}");
+            1
+        }
+    }
+}
+
+/// The flags a command accepts, read into one place.
+#[derive(Debug, Default)]
+struct Flags {
+    link: Option<String>,
+    format: Option<String>,
+    from_hz: Option<f64>,
+    to_hz: Option<f64>,
+    points: Option<usize>,
+    ideal: bool,
+    runs: Option<usize>,
+    seed: Option<u64>,
+}
+
+fn dispatch(args: &[String], out: &mut dyn Write, err: &mut dyn Write) -> Result<(), Failure> {
+    let Some(command) = args.first() else {
+        return Err(Failure::Input(format!("no command given\n{USAGE}")));
+    };
+    match command.as_str() {
+        "-h" | "--help" | "help" => {
+            writeln!(out, "{USAGE}").map_err(io_failure)?;
+            return Ok(());
+        }
+        "-V" | "--version" => {
+            writeln!(out, "rolloff {}", env!("CARGO_PKG_VERSION")).map_err(io_failure)?;
+            return Ok(());
+        }
+        _ => {}
+    }
+    let flags = read_flags(command, &args[1..])?;
+    let Some(link_text) = flags.link.clone() else {
+        return Err(Failure::Input(format!(
+            "{command}: LINK is missing\n{USAGE}"
+        )));
+    };
+    let report = link::parse(&link_text);
+    check_link(&report, err)?;
+    match command.as_str() {
+        "design" => cmd_design(&report, &flags, out),
+        "sweep" => cmd_sweep(&report, &flags, out),
+        "spread" => cmd_spread(&report, &flags, out),
+        other => Err(Failure::Input(format!(
+            "'{other}' is not a command; use design, sweep or spread"
+        ))),
+    }
+}
+
+fn io_failure(e: std::io::Error) -> Failure {
+    Failure::Other(format!("cannot write output: {e}"))
+}
+
+/// Reads the flags of `command`; a flag the command does not take, or a bad value, is bad input.
+fn read_flags(command: &str, rest: &[String]) -> Result<Flags, Failure> {
+    use lexopt::prelude::*;
+    let allowed: &[&str] = match command {
+        "design" => &["format"],
+        "sweep" => &["from", "to", "points", "ideal"],
+        "spread" => &["runs", "seed", "format"],
+        other => {
+            return Err(Failure::Input(format!(
+                "'{other}' is not a command; use design, sweep or spread"
+            )))
+        }
+    };
+    let mut flags = Flags::default();
+    let mut parser = lexopt::Parser::from_args(rest.iter().cloned());
+    loop {
+        let arg = parser.next().map_err(|e| Failure::Input(e.to_string()))?;
+        let Some(arg) = arg else { break };
+        match arg {
+            Long(name) if allowed.contains(&name) => {
+                let name = name.to_string();
+                if name == "ideal" {
+                    flags.ideal = true;
+                    continue;
+                }
+                let value = parser
+                    .value()
+                    .map_err(|e| Failure::Input(format!("--{name}: {e}")))?;
+                let value = value
+                    .into_string()
+                    .map_err(|_| Failure::Input(format!("--{name}: not valid text")))?;
+                set_flag(&mut flags, &name, &value)?;
+            }
+            Long(name) => {
+                return Err(Failure::Input(format!(
+                    "--{name} is not a flag of '{command}'; it takes {}",
+                    allowed
+                        .iter()
+                        .map(|a| format!("--{a}"))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                )))
+            }
+            Short(c) => return Err(Failure::Input(format!("-{c} is not a flag of '{command}'"))),
+            Value(v) if flags.link.is_none() => {
+                flags.link = Some(
+                    v.into_string()
+                        .map_err(|_| Failure::Input("LINK: not valid text".into()))?,
+                );
+            }
+            Value(v) => {
+                return Err(Failure::Input(format!(
+                    "unexpected argument '{}'; give one LINK",
+                    v.to_string_lossy()
+                )))
+            }
+        }
+    }
+    Ok(flags)
+}
+
+fn set_flag(flags: &mut Flags, name: &str, value: &str) -> Result<(), Failure> {
+    let frequency = |v: &str| {
+        crate::units::parse_si(v)
+            .ok()
+            .filter(|f| *f > 0.0 && *f <= 1e11)
+            .ok_or_else(|| {
+                Failure::Input(format!(
+                    "--{name}: '{v}' is not accepted; a frequency in Hz above 0, such as 10 or 1M"
+                ))
+            })
+    };
+    match name {
+        "format" => flags.format = Some(value.to_string()),
+        "from" => flags.from_hz = Some(frequency(value)?),
+        "to" => flags.to_hz = Some(frequency(value)?),
+        "points" => {
+            flags.points = Some(
+                value
+                    .trim()
+                    .parse::<usize>()
+                    .ok()
+                    .filter(|n| (2..=100_000).contains(n))
+                    .ok_or_else(|| {
+                        Failure::Input(format!(
+                            "--points: '{value}' is not accepted; a whole number from 2 to 100000"
+                        ))
+                    })?,
+            )
+        }
+        "runs" => {
+            flags.runs = Some(
+                value
+                    .trim()
+                    .parse::<usize>()
+                    .ok()
+                    .filter(|n| (1..=100_000).contains(n))
+                    .ok_or_else(|| {
+                        Failure::Input(format!(
+                            "--runs: '{value}' is not accepted; a whole number from 1 to 100000"
+                        ))
+                    })?,
+            )
+        }
+        "seed" => {
+            flags.seed = Some(value.trim().parse::<u64>().map_err(|_| {
+                Failure::Input(format!(
+                    "--seed: '{value}' is not accepted; a whole number from 0 to {}",
+                    u64::MAX
+                ))
+            })?)
+        }
+        _ => {
+            return Err(Failure::Other(format!(
+                "flag --{name} is accepted but not handled"
+            )))
+        }
+    }
+    Ok(())
+}
+
+/// The command line is strict: any bad key is refused; unknown keys and notes are warnings.
+fn check_link(report: &LinkReport, err: &mut dyn Write) -> Result<(), Failure> {
+    if let Some(first) = report
+        .errors
+        .iter()
+        .find(|e| e.key == "v")
+        .or(report.errors.first())
+    {
+        return Err(Failure::Input(first.to_string()));
+    }
+    for key in &report.unknown_keys {
+        let _ = writeln!(
+            err,
+            "rolloff: warning: link key '{key}' is not known to this version; ignored"
+        );
+    }
+    for note in &report.notes {
+        let _ = writeln!(err, "rolloff: warning: {note}");
+    }
+    Ok(())
+}
+
+fn format_choice<'a>(flags: &'a Flags, allowed: &[&'a str]) -> Result<&'a str, Failure> {
+    let format = flags.format.as_deref().unwrap_or("text");
+    if allowed.contains(&format) {
+        Ok(format)
+    } else {
+        Err(Failure::Input(format!(
+            "--format: '{format}' is not accepted; use {}",
+            allowed.join(", ")
+        )))
+    }
+}
+
+fn compose(report: &LinkReport) -> Result<Design, Failure> {
+    pipeline::compose(&report.state).map_err(Failure::from)
+}
+
+fn cmd_design(report: &LinkReport, flags: &Flags, out: &mut dyn Write) -> Result<(), Failure> {
+    let format = format_choice(flags, &["text", "json", "bom", "spice"])?;
+    let design = compose(report)?;
+    let text = match format {
+        "json" => crate::export::json::design_json(&design),
+        "bom" => crate::export::bom::csv(&design.board, &pipeline::bom_tolerances(&design)),
+        "spice" => crate::export::spice::netlist(&design.board, &pipeline::spice_sweep(&design))?,
+        _ => crate::export::text::design_text(&design),
+    };
+    out.write_all(text.as_bytes()).map_err(io_failure)
+}
+
+fn cmd_sweep(report: &LinkReport, flags: &Flags, out: &mut dyn Write) -> Result<(), Failure> {
+    let design = compose(report)?;
+    let (default_from, default_to) = design.span_hz;
+    let from = flags.from_hz.unwrap_or(default_from);
+    let to = flags.to_hz.unwrap_or(default_to);
+    if from >= to {
+        return Err(Failure::Input(format!(
+            "--from: {from} Hz is not below --to {to} Hz"
+        )));
+    }
+    let points = flags.points.unwrap_or(200);
+    let rows = pipeline::sweep(&design, from, to, points, flags.ideal).map_err(Failure::Other)?;
+    let mut text = String::from("freq_hz,gain_db,phase_deg,delay_s\n");
+    for row in rows {
+        text.push_str(&format!(
+            "{},{},{},{}\n",
+            row.freq_hz, row.gain_db, row.phase_deg, row.delay_s
+        ));
+    }
+    out.write_all(text.as_bytes()).map_err(io_failure)
+}
+
+fn cmd_spread(report: &LinkReport, flags: &Flags, out: &mut dyn Write) -> Result<(), Failure> {
+    let format = format_choice(flags, &["text", "json"])?;
+    let mut state = report.state.clone();
+    if let Some(runs) = flags.runs {
+        state.study.runs = runs;
+    }
+    if let Some(seed) = flags.seed {
+        state.study.seed = seed;
+    }
+    let design = pipeline::compose(&state)?;
+    let spread = pipeline::spread(&design).map_err(Failure::Other)?;
+    let text = match format {
+        "json" => crate::export::json::spread_json(&design, &spread),
+        _ => crate::export::text::spread_text(&design, &spread),
+    };
+    out.write_all(text.as_bytes()).map_err(io_failure)
+}

@@ -1,0 +1,176 @@
+//! Design JSON: the `rolloff design --format json` output and the page's export (same bytes).
+//!
+//! The shape is a contract (see the README): top-level `order`, `family`, `resp`, `stages` in
+//! signal order (each with `order`, `f0_hz`, `q`, `gain`, `topology`, `parts`, `achieved`), `parts`
+//! (every part of the board) and `warnings`, plus the requirement, the mask, the poles, the family
+//! comparison and the analyses. Non-finite numbers are written as `null`.
+
+use crate::analysis::montecarlo::Summary;
+use crate::link::FORMAT_VERSION;
+use crate::netlist::{Part, PartKind};
+use crate::order::family_name;
+use crate::pipeline::Design;
+use crate::spec::{Edge, Family, OrderChoice};
+use serde::Serialize;
+use serde_json::{json, Value};
+
+/// A part as the JSON shows it.
+#[derive(Serialize)]
+struct PartDto<'a> {
+    #[serde(rename = "ref")]
+    reference: &'a str,
+    kind: &'static str,
+    value: Option<f64>,
+    ideal: Option<f64>,
+    formatted: String,
+    role: &'a str,
+}
+
+fn finite(x: f64) -> Option<f64> {
+    x.is_finite().then_some(x)
+}
+
+fn part_dto(part: &Part) -> PartDto<'_> {
+    let (kind, unit) = match part.kind {
+        PartKind::Resistor => ("resistor", "Ω"),
+        PartKind::Capacitor => ("capacitor", "F"),
+        PartKind::OpAmp => ("opamp", ""),
+    };
+    let is_opamp = part.kind == PartKind::OpAmp;
+    PartDto {
+        reference: &part.reference,
+        kind,
+        value: if is_opamp { None } else { finite(part.value) },
+        ideal: if is_opamp { None } else { finite(part.ideal) },
+        formatted: if is_opamp {
+            "op amp".into()
+        } else {
+            crate::board::format_value(part.value, 3, unit)
+        },
+        role: &part.role,
+    }
+}
+
+fn edge_json(edge: Edge) -> Value {
+    match edge {
+        Edge::Single(f) => json!(f),
+        Edge::Pair(lo, hi) => json!([lo, hi]),
+    }
+}
+
+/// The design as a JSON value.
+pub fn design_value(design: &Design) -> Value {
+    let req = &design.state.requirement;
+    let syn = &design.synthesis;
+    let ripple = match req.family {
+        Family::Chebyshev { ripple_db } => Some(ripple_db),
+        _ => None,
+    };
+    let stages: Vec<Value> = design
+        .board
+        .stages
+        .iter()
+        .enumerate()
+        .map(|(index, stage)| {
+            let parts: Vec<PartDto> = stage.netlist.parts.iter().map(part_dto).collect();
+            json!({
+                "index": index + 1,
+                "order": stage.section.order(),
+                "kind": format!("{:?}", stage.section.kind).to_lowercase(),
+                "f0_hz": finite(stage.section.f0_hz),
+                "q": stage.section.q.and_then(finite),
+                "gain": finite(stage.section.gain),
+                "topology": stage.circuit.key(),
+                "parts": parts,
+                "achieved": {
+                    "f0_hz": finite(stage.achieved_f0_hz),
+                    "q": stage.achieved_q.and_then(finite),
+                    "gain": finite(stage.achieved_gain),
+                    "f0_error": finite(stage.f0_error),
+                    "q_error": stage.q_error.and_then(finite),
+                    "gain_error": finite(stage.gain_error),
+                },
+                "warnings": stage.warnings,
+            })
+        })
+        .collect();
+    let parts: Vec<PartDto> = design.board.parts().into_iter().map(part_dto).collect();
+    let poles: Vec<Value> = syn
+        .poles
+        .iter()
+        .map(|p| json!({"re": p.re, "im": p.im}))
+        .collect();
+    let mask = req.mask.map(|m| {
+        json!({
+            "fpass_hz": edge_json(m.pass),
+            "apass_db": m.apass_db,
+            "fstop_hz": edge_json(m.stop),
+            "astop_db": m.astop_db,
+        })
+    });
+    let family_orders: Option<Vec<Value>> = design.family_orders.as_ref().map(|rows| {
+        rows.iter()
+            .map(|row| match &row.result {
+                Ok(min) => json!({"family": row.family.key(), "name": family_name(row.family), "order": min.order, "reason": null}),
+                Err(e) => json!({"family": row.family.key(), "name": family_name(row.family), "order": null, "reason": e.to_input_error().message}),
+            })
+            .collect()
+    });
+    let op = &design.board.op_amp;
+    json!({
+        "format": FORMAT_VERSION,
+        "title": design.state.title,
+        "resp": req.class.key(),
+        "family": req.family.key(),
+        "ripple_db": ripple,
+        "order": syn.order,
+        "order_from_mask": req.order == OrderChoice::FromMask,
+        "fc_hz": finite(syn.fc_hz),
+        "bw_hz": syn.bw_hz.and_then(finite),
+        "gain_db": req.gain_db,
+        "mask": mask,
+        "family_orders": family_orders,
+        "poles": poles,
+        "op_amp": {
+            "gbw_hz": finite(op.gbw_hz),
+            "a0_db": finite(op.a0_db),
+            "rout_ohm": finite(op.rout_ohm),
+            "vnoise_v_per_rthz": op.en_v_per_rthz,
+            "inoise_a_per_rthz": op.in_a_per_rthz,
+            "slew_v_per_s": finite(op.slew_v_per_s),
+        },
+        "series": {"resistors": design.board.r_series.key(), "capacitors": design.board.c_series.key()},
+        "tolerance_pct": {"resistors": design.state.rtol_pct, "capacitors": design.state.ctol_pct},
+        "stages": stages,
+        "parts": parts,
+        "warnings": design.warnings,
+    })
+}
+
+/// The design JSON text (pretty-printed, with a final newline).
+pub fn design_json(design: &Design) -> String {
+    to_text(&design_value(design))
+}
+
+/// The tolerance study as JSON: `runs`, `seed`, `yield` (0–1 or null) and the full summary.
+pub fn spread_json(design: &Design, summary: &Summary) -> String {
+    let mut value = serde_json::to_value(summary).unwrap_or(Value::Null);
+    if let Value::Object(map) = &mut value {
+        map.insert("title".into(), json!(design.state.title));
+        map.insert("order".into(), json!(design.synthesis.order));
+        map.insert(
+            "family".into(),
+            json!(design.state.requirement.family.key()),
+        );
+        map.insert("resp".into(), json!(design.state.requirement.class.key()));
+    }
+    to_text(&value)
+}
+
+fn to_text(value: &Value) -> String {
+    // serde_json writes non-finite floats as null already; pretty printing cannot fail on a Value.
+    let mut text =
+        serde_json::to_string_pretty(value).unwrap_or_else(|e| format!("{{\"error\": \"{e}\"}}"));
+    text.push('\n');
+    text
+}

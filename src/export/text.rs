@@ -1,0 +1,237 @@
+//! The text report of `rolloff design` and `rolloff spread`: the design in words and tables.
+
+use crate::analysis::montecarlo::Summary;
+use crate::board::format_value;
+use crate::netlist::PartKind;
+use crate::order::family_name;
+use crate::pipeline::Design;
+use crate::spec::{Edge, OrderChoice, ResponseClass};
+use crate::units::format_si;
+use std::fmt::Write;
+
+/// The one-line summary of a design: "4th-order Butterworth low-pass at 1 kHz, 2 Sallen-Key
+/// stages, 9 parts".
+pub fn summary_line(design: &Design) -> String {
+    let syn = &design.synthesis;
+    let class = match syn.class {
+        ResponseClass::LowPass => "low-pass",
+        ResponseClass::HighPass => "high-pass",
+        ResponseClass::BandPass => "band-pass",
+    };
+    let place = match syn.bw_hz {
+        Some(bw) => format!("centred on {}Hz, {}Hz wide", spaced(syn.fc_hz), spaced(bw)),
+        None => format!("at {}Hz", spaced(syn.fc_hz)),
+    };
+    let n_stages = design.board.stages.len();
+    let n_parts = design.board.parts().len();
+    let topology = match design.state.topology {
+        crate::topology::Topology::SallenKey => "Sallen-Key",
+        crate::topology::Topology::MultipleFeedback => "multiple-feedback",
+    };
+    let stage_word = if n_stages == 1 { "stage" } else { "stages" };
+    format!(
+        "{} {} {class} {place}, {n_stages} {topology} {stage_word}, {n_parts} parts",
+        ordinal(syn.order),
+        family_name(syn.family)
+    )
+}
+
+fn spaced(value: f64) -> String {
+    let text = format_si(value, 4);
+    match text.chars().last() {
+        Some(c) if c.is_alphabetic() || c == 'µ' => {
+            let number = &text[..text.len() - c.len_utf8()];
+            format!("{number} {c}")
+        }
+        _ => format!("{text} "),
+    }
+}
+
+fn ordinal(n: usize) -> String {
+    let suffix = match (n % 10, n % 100) {
+        (1, 11) | (2, 12) | (3, 13) => "th",
+        (1, _) => "st",
+        (2, _) => "nd",
+        (3, _) => "rd",
+        _ => "th",
+    };
+    format!("{n}{suffix}-order")
+}
+
+fn edge_text(edge: Edge) -> String {
+    match edge {
+        Edge::Single(f) => format!("{}Hz", spaced(f)),
+        Edge::Pair(lo, hi) => format!("{}Hz … {}Hz", spaced(lo), spaced(hi)),
+    }
+}
+
+/// The text report of a design.
+pub fn design_text(design: &Design) -> String {
+    let mut out = String::new();
+    let req = &design.state.requirement;
+    if let Some(title) = &design.state.title {
+        let _ = writeln!(out, "{title}");
+    }
+    let _ = writeln!(out, "{}", summary_line(design));
+    let _ = writeln!(out);
+    match (&req.mask, req.order) {
+        (Some(m), choice) => {
+            let how = if choice == OrderChoice::FromMask {
+                "order from these limits"
+            } else {
+                "checked against these limits"
+            };
+            let _ = writeln!(
+                out,
+                "Limits ({how}): at most {} dB loss up to {}, at least {} dB from {}",
+                m.apass_db,
+                edge_text(m.pass),
+                m.astop_db,
+                edge_text(m.stop)
+            );
+        }
+        (None, _) => {}
+    }
+    if let Some(rows) = &design.family_orders {
+        let _ = writeln!(out, "\nOrder each family needs for these limits:");
+        for row in rows {
+            let text = match &row.result {
+                Ok(min) => format!("{}", min.order),
+                Err(e) => format!("none up to 20 ({})", e.to_input_error().message),
+            };
+            let _ = writeln!(out, "  {:<24} {text}", family_name(row.family));
+        }
+    }
+    let _ = writeln!(out, "\nStages (signal order):");
+    let _ = writeln!(
+        out,
+        "  {:<3} {:<7} {:>11} {:>11} {:>8} {:>8} {:>9}  parts",
+        "#", "circuit", "f0 target", "f0 built", "Q target", "Q built", "gain V/V"
+    );
+    for (index, stage) in design.board.stages.iter().enumerate() {
+        let q_target = stage.section.q.map_or("-".into(), |q| format!("{q:.4}"));
+        let q_built = stage.achieved_q.map_or("-".into(), |q| format!("{q:.4}"));
+        let parts: Vec<String> = stage
+            .netlist
+            .parts
+            .iter()
+            .filter(|p| p.kind != PartKind::OpAmp)
+            .map(|p| {
+                let unit = if p.kind == PartKind::Resistor {
+                    "Ω"
+                } else {
+                    "F"
+                };
+                format!(
+                    "{}={}",
+                    p.reference,
+                    format_value(p.value, 3, unit).replace(' ', "")
+                )
+            })
+            .collect();
+        let _ = writeln!(
+            out,
+            "  {:<3} {:<7} {:>11} {:>11} {:>8} {:>8} {:>9.4}  {}",
+            index + 1,
+            stage.circuit.key(),
+            format!("{}Hz", spaced(stage.section.f0_hz)),
+            format!("{}Hz", spaced(stage.achieved_f0_hz)),
+            q_target,
+            q_built,
+            stage.achieved_gain,
+            parts.join(" ")
+        );
+    }
+    let op = &design.board.op_amp;
+    let _ = writeln!(
+        out,
+        "\nOp amp: GBW {}Hz, A0 {} dB, Rout {}Ω",
+        spaced(op.gbw_hz),
+        if op.a0_db.is_finite() {
+            format!("{}", op.a0_db)
+        } else {
+            "∞".into()
+        },
+        spaced(op.rout_ohm)
+    );
+    if !design.warnings.is_empty() {
+        let _ = writeln!(out, "\nWarnings:");
+        for w in &design.warnings {
+            let _ = writeln!(out, "  - {w}");
+        }
+    }
+    let _ = writeln!(
+        out,
+        "\nRolloff computes; it does not certify. Verify on a prototype."
+    );
+    out
+}
+
+/// The text report of a tolerance study.
+pub fn spread_text(design: &Design, summary: &Summary) -> String {
+    let mut out = String::new();
+    let _ = writeln!(out, "{}", summary_line(design));
+    let _ = writeln!(
+        out,
+        "Tolerance study: {} runs, seed {}",
+        summary.runs, summary.seed
+    );
+    match summary.yield_fraction {
+        Some(y) => {
+            let _ = writeln!(
+                out,
+                "Yield against the limits: {:.2} % ({} of {} runs pass)",
+                100.0 * y,
+                summary.n_pass.unwrap_or(0),
+                summary.runs
+            );
+        }
+        None => {
+            let _ = writeln!(
+                out,
+                "Yield: no limits in the link (add fpass, fstop, astop)"
+            );
+        }
+    }
+    for cutoff in &summary.cutoffs {
+        let s = &cutoff.hz;
+        let _ = writeln!(
+            out,
+            "Cutoff ({:?} edge): nominal {}Hz, mean {}Hz, σ {}Hz, range {}Hz … {}Hz",
+            cutoff.side,
+            spaced(s.nominal),
+            spaced(s.mean),
+            spaced(s.std_dev),
+            spaced(s.min),
+            spaced(s.max)
+        );
+    }
+    let g = &summary.passband_gain_db;
+    let _ = writeln!(
+        out,
+        "Passband gain: nominal {:.3} dB, mean {:.3} dB, σ {:.3} dB, range {:.3} … {:.3} dB",
+        g.nominal, g.mean, g.std_dev, g.min, g.max
+    );
+    if let Some(a) = &summary.stopband_attenuation_db {
+        let _ = writeln!(
+            out,
+            "Stopband attenuation: nominal {:.2} dB, worst {:.2} dB",
+            a.nominal, a.min
+        );
+    }
+    for (index, stage) in summary.stages.iter().enumerate() {
+        let q = stage.q.as_ref().map_or(String::new(), |q| {
+            format!(", Q σ {:.3} %", 100.0 * q.std_dev / q.nominal)
+        });
+        let _ = writeln!(
+            out,
+            "  stage {}: f0 σ {:.3} %{q}",
+            index + 1,
+            100.0 * stage.f0_hz.std_dev / stage.f0_hz.nominal
+        );
+    }
+    for w in &summary.warnings {
+        let _ = writeln!(out, "  - {w}");
+    }
+    out
+}

@@ -1,0 +1,283 @@
+//! The composer: a link's state → a [`Design`] with everything the views show.
+//!
+//! It reads like the path a design takes:
+//! 1. [`crate::design::synthesize`]: requirement → order → prototype → transform → sections;
+//! 2. [`crate::board::Board::build`]: sections → stages with standard values and overrides;
+//! 3. the plot span, the family comparison and the warnings gathered from every step.
+//! Sweeps ([`sweep`]) and the tolerance study ([`spread`]) run on a composed design.
+
+use crate::analysis::montecarlo::{
+    CutoffDefinition, MonteCarlo, MonteCarloSettings, PartDistribution, PartTolerance, Summary,
+    Tolerances,
+};
+use crate::board::{Board, BuildChoices, ImpedanceLevel};
+use crate::design::{self, Synthesis};
+use crate::error::InputError;
+use crate::link::{Distribution, LinkState};
+use crate::mna;
+use crate::opamp::OpAmp;
+use crate::order::{self, FamilyOrder};
+use crate::spec::{Edge, Family, Mask, ResponseClass};
+use num_complex::Complex64;
+
+const TWO_PI: f64 = 2.0 * std::f64::consts::PI;
+
+/// A composed design: the state it came from, the synthesis, the board and its context.
+#[derive(Debug, Clone)]
+pub struct Design {
+    /// The validated link state.
+    pub state: LinkState,
+    /// Poles and sections.
+    pub synthesis: Synthesis,
+    /// The board as built (rounded parts, overrides, op-amp model).
+    pub board: Board,
+    /// Frequency span of the plots and sweeps, Hz.
+    pub span_hz: (f64, f64),
+    /// Minimum order of every family for the mask, when there is one.
+    pub family_orders: Option<Vec<FamilyOrder>>,
+    /// Every soft problem of every step, in pipeline order.
+    pub warnings: Vec<String>,
+}
+
+/// One row of a sweep.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct SweepRow {
+    /// Frequency, Hz.
+    pub freq_hz: f64,
+    /// 20·log10|H|, dB.
+    pub gain_db: f64,
+    /// Phase, degrees, unwrapped along the sweep.
+    pub phase_deg: f64,
+    /// Group delay −d(arg H)/dω, s.
+    pub delay_s: f64,
+}
+
+/// The build choices the link asks for.
+pub fn build_choices(state: &LinkState) -> BuildChoices {
+    BuildChoices {
+        topology: state.topology,
+        r_series: state.r_series,
+        c_series: state.c_series,
+        impedance: state
+            .r_level_ohm
+            .map_or(ImpedanceLevel::Auto, ImpedanceLevel::Ohms),
+        c_ratio: state.c_ratio,
+        r_ratio: state.r_ratio,
+        rounding: state.rounding,
+        overrides: state.overrides.clone(),
+        op_amp: state.op_amp,
+    }
+}
+
+/// Composes the design a link state describes.
+///
+/// # Errors
+/// The first hard problem of any step, naming its link key (an infeasible stage, an order above
+/// 20, an unknown part in `set` …).
+pub fn compose(state: &LinkState) -> Result<Design, InputError> {
+    let synthesis = design::synthesize(&state.requirement, &state.stage_order)?;
+    let board = Board::build(&synthesis.sections, &build_choices(state))?;
+    let family_orders = state.requirement.mask.as_ref().map(|mask| {
+        let ripple = match state.requirement.family {
+            Family::Chebyshev { ripple_db } => Some(ripple_db),
+            _ => None,
+        };
+        order::compare_families(state.requirement.class, mask, ripple)
+    });
+    let mut warnings = synthesis.warnings.clone();
+    warnings.extend(board.warnings.iter().cloned());
+    for stage in &board.stages {
+        warnings.extend(
+            stage
+                .warnings
+                .iter()
+                .map(|w| format!("stage {}: {w}", index + 1)),
+        );
+    }
+    let span_hz = state
+        .span_hz
+        .unwrap_or_else(|| auto_span(&synthesis, state.requirement.mask.as_ref()));
+    Ok(Design {
+        state: state.clone(),
+        synthesis,
+        board,
+        span_hz,
+        family_orders,
+        warnings,
+    })
+}
+
+/// The plot span: two decades below and above the frequencies that matter, on decade bounds.
+fn auto_span(synthesis: &Synthesis, mask: Option<&Mask>) -> (f64, f64) {
+    let mut key = vec![synthesis.fc_hz];
+    if let Some(bw) = synthesis.bw_hz {
+        key.push(synthesis.fc_hz + bw / 2.0);
+        key.push((synthesis.fc_hz - bw / 2.0).max(synthesis.fc_hz / 10.0));
+    }
+    if let Some(m) = mask {
+        for edge in [m.pass, m.stop] {
+            match edge {
+                Edge::Single(f) => key.push(f),
+                Edge::Pair(lo, hi) => key.extend([lo, hi]),
+            }
+        }
+    }
+    let lo = key.iter().cloned().fold(f64::INFINITY, f64::min);
+    let hi = key.iter().cloned().fold(0.0, f64::max);
+    let lo = 10f64.powf((lo / 10.0).log10().floor());
+    let hi = 10f64.powf((hi * 10.0).log10().ceil());
+    (lo.max(1e-4), hi.min(1e11))
+}
+
+/// The board with exact (unrounded) part values and an ideal op amp: the design as synthesized.
+pub fn ideal_board(board: &Board) -> Board {
+    let mut ideal = board.with_ideal_parts();
+    ideal.op_amp = OpAmp::ideal();
+    ideal
+}
+
+/// Gain, unwrapped phase and group delay of the board (or, with `ideal`, of [`ideal_board`]) at
+/// `n_points` log-spaced frequencies.
+///
+/// The group delay is −Δarg H/Δω over a symmetric step of ±10⁻⁴·ω around each point, with the
+/// phase difference taken from the ratio H(ω+δ)/H(ω−δ) so it never wraps.
+///
+/// # Errors
+/// A message when the nodal analysis meets a singular circuit.
+pub fn sweep(
+    design: &Design,
+    from_hz: f64,
+    to_hz: f64,
+    n_points: usize,
+    ideal: bool,
+) -> Result<Vec<SweepRow>, String> {
+    let freqs =
+        crate::response::log_frequencies(from_hz, to_hz, n_points).map_err(|e| e.to_string())?;
+    let board = if ideal {
+        ideal_board(&design.board)
+    } else {
+        design.board.clone()
+    };
+    let h_at = |f: f64| -> Result<Complex64, String> {
+        mna::board_response(&board, Complex64::new(0.0, TWO_PI * f))
+            .map(|(h, _)| h)
+            .map_err(|e| e.message)
+    };
+    let mut rows = Vec::with_capacity(freqs.len());
+    let mut previous: Option<(Complex64, f64)> = None;
+    for f in freqs {
+        let h = h_at(f)?;
+        let step = 1e-4;
+        let ratio = h_at(f * (1.0 + step))? / h_at(f * (1.0 - step))?;
+        let delay_s = -ratio.arg() / (TWO_PI * f * 2.0 * step);
+        // Unwrap: add the phase change from the last point, which is small on a fine sweep.
+        let phase_rad = match previous {
+            Some((h_prev, phase_prev)) => phase_prev + (h / h_prev).arg(),
+            None => h.arg(),
+        };
+        previous = Some((h, phase_rad));
+        rows.push(SweepRow {
+            freq_hz: f,
+            gain_db: 20.0 * h.norm().log10(),
+            phase_deg: phase_rad.to_degrees(),
+            delay_s,
+        });
+    }
+    Ok(rows)
+}
+
+/// How the tolerance study reads a run's cutoff for this family: the ripple-band edge for
+/// Chebyshev, −6.02 dB for Linkwitz-Riley, −3.01 dB otherwise.
+pub fn cutoff_definition(family: Family) -> CutoffDefinition {
+    let db = match family {
+        Family::Chebyshev { ripple_db } => ripple_db,
+        Family::LinkwitzRiley => 20.0 * 2f64.log10(),
+        _ => 10.0 * 2f64.log10(),
+    };
+    CutoffDefinition::Attenuation { db }
+}
+
+/// The settings of the tolerance study the link asks for, over `n_points` frequencies.
+pub fn study_settings(design: &Design, n_points: usize) -> Result<MonteCarloSettings, String> {
+    let state = &design.state;
+    let (lo, hi) = design.span_hz;
+    let freqs_hz = crate::response::log_frequencies(lo, hi, n_points).map_err(|e| e.to_string())?;
+    let distribution = match state.study.distribution {
+        Distribution::Gaussian => PartDistribution::Gaussian {
+            sigmas: state.study.sigmas,
+        },
+        Distribution::Uniform => PartDistribution::Uniform,
+    };
+    let class = state.requirement.class;
+    let passband_ref_hz = match class {
+        ResponseClass::LowPass => 0.0,
+        ResponseClass::HighPass => design.synthesis.fc_hz * 1e3,
+        ResponseClass::BandPass => design.synthesis.fc_hz,
+    };
+    Ok(MonteCarloSettings {
+        runs: state.study.runs,
+        seed: state.study.seed,
+        tolerances: Tolerances {
+            distribution,
+            resistor_pct: state.rtol_pct,
+            capacitor_pct: state.ctol_pct,
+            overrides: state
+                .tolerance_overrides
+                .iter()
+                .map(|(reference, pct)| PartTolerance {
+                    reference: reference.clone(),
+                    pct: *pct,
+                })
+                .collect(),
+        },
+        freqs_hz,
+        percentiles: vec![5.0, 50.0, 95.0],
+        cutoff: cutoff_definition(state.requirement.family),
+        class,
+        reference_gain: 10f64.powf(state.requirement.gain_db / 20.0),
+        passband_ref_hz,
+    })
+}
+
+/// Prepares the tolerance study of a design (chunked: call `step` until done, then `finish`).
+///
+/// # Errors
+/// A message naming the setting or the circuit problem.
+pub fn start_spread(design: &Design, n_points: usize) -> Result<MonteCarlo, String> {
+    let settings = study_settings(design, n_points)?;
+    MonteCarlo::new(
+        &design.board,
+        design.state.requirement.mask.as_ref(),
+        settings,
+    )
+    .map_err(|e| e.to_string())
+}
+
+/// Runs the whole tolerance study of a design at 200 frequencies.
+///
+/// # Errors
+/// As [`start_spread`].
+pub fn spread(design: &Design) -> Result<Summary, String> {
+    let mut study = start_spread(design, 200)?;
+    while !study.is_done() {
+        study.step(1000);
+    }
+    Ok(study.finish())
+}
+
+/// The part tolerances the parts list states (`rtol`, `ctol`).
+pub fn bom_tolerances(design: &Design) -> crate::export::bom::Tolerances {
+    crate::export::bom::Tolerances {
+        resistor_pct: design.state.rtol_pct,
+        capacitor_pct: design.state.ctol_pct,
+    }
+}
+
+/// The `.ac` sweep written into the SPICE netlist: the plot span at 50 points per decade.
+pub fn spice_sweep(design: &Design) -> crate::export::spice::AcSweep {
+    crate::export::spice::AcSweep {
+        points_per_decade: 50,
+        f_start_hz: design.span_hz.0,
+        f_stop_hz: design.span_hz.1,
+    }
+}
