@@ -87,12 +87,8 @@ pub fn compose(state: &LinkState) -> Result<Design, InputError> {
     let mut warnings = synthesis.warnings.clone();
     warnings.extend(board.warnings.iter().cloned());
     for stage in &board.stages {
-        warnings.extend(
-            stage
-                .warnings
-                .iter()
-                .map(|w| format!("stage {}: {w}", index + 1)),
-        );
+        // Stage warnings already name their stage.
+        warnings.extend(stage.warnings.iter().cloned());
     }
     let span_hz = state
         .span_hz
