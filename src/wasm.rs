@@ -1,1 +1,341 @@
 //! The wasm facade: the only module that knows JavaScript types.
+//!
+//! One export per page action. Each converts its arguments by hand, calls the native core
+//! ([`crate::plot::page`], [`crate::plot`], [`crate::schematic`], the tolerance study) and returns
+//! plain values: errors cross the boundary as `{ ok: false, message }` objects or as rejected
+//! `Result`s with a message, never as panics. A panic hook writes any defect into the page's
+//! `#defect` element and the console, so a broken page says so.
+//!
+//! The facade keeps the last good design (the one drawn) and the running tolerance study.
+
+use std::cell::RefCell;
+
+use serde::Serialize;
+use wasm_bindgen::prelude::*;
+use web_sys::HtmlCanvasElement;
+
+use crate::analysis::montecarlo::MonteCarlo;
+use crate::plot::page::{self, PageModel, View};
+use crate::plot::{self, Look, PlotKind, Theme};
+use crate::schematic;
+
+#[derive(Default)]
+struct Sheet {
+    /// The design on screen (the last evaluation that was committed).
+    model: Option<PageModel>,
+    /// The tolerance study in progress, for `model`.
+    study: Option<MonteCarlo>,
+}
+
+thread_local! {
+    static SHEET: RefCell<Sheet> = RefCell::new(Sheet::default());
+}
+
+fn to_js<T: Serialize>(value: &T) -> JsValue {
+    let serializer = serde_wasm_bindgen::Serializer::json_compatible();
+    value
+        .serialize(&serializer)
+        .unwrap_or_else(|e| JsValue::from_str(&format!("serialization failed: {e}")))
+}
+
+#[derive(Serialize)]
+struct Outcome<'a> {
+    ok: bool,
+    message: &'a str,
+}
+
+fn failure(message: &str) -> JsValue {
+    to_js(&Outcome { ok: false, message })
+}
+
+fn look(dark: bool, dpr: f64, compact: bool) -> Look {
+    Look {
+        theme: if dark { Theme::Dark } else { Theme::Light },
+        scale: dpr,
+        compact,
+    }
+}
+
+/// Installs the panic hook. Runs once when the module starts.
+#[wasm_bindgen(start)]
+pub fn start() {
+    std::panic::set_hook(Box::new(|info| {
+        let message = format!("internal defect (please report): {info}");
+        web_sys::console::error_1(&JsValue::from_str(&message));
+        if let Some(element) = web_sys::window()
+            .and_then(|w| w.document())
+            .and_then(|d| d.get_element_by_id("defect"))
+        {
+            element.set_text_content(Some(&message));
+            let _ = element.remove_attribute("hidden");
+        }
+    }));
+}
+
+/// Evaluates a link (query string) and returns the page's view model.
+///
+/// The design replaces the one on screen (`committed: true`) when it composed and either the link
+/// had no bad value or `accept_errors` is set (opening a link: what is valid loads). Otherwise the
+/// last good design stays and the view carries the errors.
+#[wasm_bindgen]
+pub fn evaluate(query: &str, accept_errors: bool) -> JsValue {
+    let evaluation = page::evaluate(query);
+    let mut view: View = evaluation.view;
+    if let Some(model) = evaluation.model {
+        if accept_errors || view.errors.is_empty() {
+            view.committed = true;
+            SHEET.with(|sheet| {
+                let mut sheet = sheet.borrow_mut();
+                sheet.model = Some(model);
+                sheet.study = None;
+            });
+        }
+    }
+    to_js(&view)
+}
+
+/// Draws plot `kind` (`magnitude`, `phase`, … see [`PlotKind::key`]) of the design on screen onto
+/// `canvas` (sized by the caller in device pixels).
+///
+/// # Errors
+/// A message for an unknown kind, no design yet, or a canvas without a 2D context.
+#[wasm_bindgen]
+pub fn draw_plot(
+    kind: &str,
+    canvas: HtmlCanvasElement,
+    dark: bool,
+    dpr: f64,
+    compact: bool,
+) -> Result<(), JsValue> {
+    let kind = PlotKind::from_key(kind)
+        .ok_or_else(|| JsValue::from_str(&format!("unknown plot '{kind}'")))?;
+    let figure = SHEET.with(|sheet| sheet.borrow().model.as_ref().map(|m| m.figure(kind)));
+    let figure = figure.ok_or_else(|| JsValue::from_str("no design to draw yet"))?;
+    let mut backend = plotters_canvas::CanvasBackend::with_canvas_object(canvas)
+        .ok_or_else(|| JsValue::from_str("the canvas has no 2D context"))?;
+    plot::draw(&mut backend, &figure, &look(dark, dpr, compact))
+        .map_err(|e| JsValue::from_str(&e.to_string()))
+}
+
+/// The crosshair readout of plot `kind` at device pixel `(x, y)` of a `width` × `height` canvas;
+/// `null` outside the plot area or with no design.
+#[wasm_bindgen]
+pub fn read_plot(
+    kind: &str,
+    width: u32,
+    height: u32,
+    dpr: f64,
+    compact: bool,
+    x: f64,
+    y: f64,
+) -> JsValue {
+    let Some(kind) = PlotKind::from_key(kind) else {
+        return JsValue::NULL;
+    };
+    let read = SHEET.with(|sheet| {
+        let sheet = sheet.borrow();
+        let model = sheet.model.as_ref()?;
+        plot::readout(
+            &model.figure(kind),
+            width,
+            height,
+            &look(false, dpr, compact),
+            x,
+            y,
+        )
+    });
+    match read {
+        Some(r) => to_js(&r),
+        None => JsValue::NULL,
+    }
+}
+
+/// Draws the schematic of stage `stage` (0-based) of the design on screen onto `canvas`. Parts
+/// the link types over are drawn in the target colour.
+///
+/// # Errors
+/// A message for a stage that does not exist or a canvas without a 2D context.
+#[wasm_bindgen]
+pub fn draw_schematic(
+    stage: usize,
+    canvas: HtmlCanvasElement,
+    dark: bool,
+    dpr: f64,
+) -> Result<(), JsValue> {
+    SHEET.with(|sheet| {
+        let sheet = sheet.borrow();
+        let model = sheet
+            .model
+            .as_ref()
+            .ok_or_else(|| JsValue::from_str("no design to draw yet"))?;
+        let netlist = &model
+            .board
+            .stages
+            .get(stage)
+            .ok_or_else(|| JsValue::from_str(&format!("there is no stage {}", stage + 1)))?
+            .netlist;
+        let typed: Vec<String> = model
+            .state
+            .overrides
+            .iter()
+            .map(|(reference, _)| reference.clone())
+            .collect();
+        let mut backend = plotters_canvas::CanvasBackend::with_canvas_object(canvas)
+            .ok_or_else(|| JsValue::from_str("the canvas has no 2D context"))?;
+        schematic::draw(&mut backend, netlist, &typed, &look(dark, dpr, false))
+            .map(|_| ())
+            .map_err(|e| JsValue::from_str(&e.to_string()))
+    })
+}
+
+#[derive(Serialize)]
+struct StudyStart {
+    ok: bool,
+    total: usize,
+    message: String,
+}
+
+/// Starts the tolerance study of the design on screen with the link's settings. Returns
+/// `{ ok, total, message }`.
+#[wasm_bindgen]
+pub fn study_start() -> JsValue {
+    SHEET.with(|sheet| {
+        let mut sheet = sheet.borrow_mut();
+        let Some(model) = sheet.model.as_ref() else {
+            return failure("no design to study yet");
+        };
+        match model.start_study() {
+            Ok(study) => {
+                let total = study.progress().total;
+                sheet.study = Some(study);
+                to_js(&StudyStart {
+                    ok: true,
+                    total,
+                    message: String::new(),
+                })
+            }
+            Err(e) => to_js(&StudyStart {
+                ok: false,
+                total: 0,
+                message: format!("{}: {}", e.key, e.message),
+            }),
+        }
+    })
+}
+
+#[derive(Serialize)]
+struct StudyProgress {
+    done: usize,
+    total: usize,
+    finished: bool,
+    status: String,
+    summary: String,
+}
+
+/// Runs up to `n_runs` more runs of the study in progress and reports
+/// `{ done, total, finished, status, summary }`. When the last run is done the results go into
+/// the plots (envelope, histograms) and the summary.
+#[wasm_bindgen]
+pub fn study_step(n_runs: usize) -> JsValue {
+    SHEET.with(|sheet| {
+        let mut sheet = sheet.borrow_mut();
+        let Some(study) = sheet.study.as_mut() else {
+            return to_js(&StudyProgress {
+                done: 0,
+                total: 0,
+                finished: true,
+                status: "no study running".into(),
+                summary: String::new(),
+            });
+        };
+        let progress = study.step(n_runs.max(1));
+        if !study.is_done() {
+            return to_js(&StudyProgress {
+                done: progress.done,
+                total: progress.total,
+                finished: false,
+                status: format!("{} of {} runs", progress.done, progress.total),
+                summary: String::new(),
+            });
+        }
+        let summary = sheet.study.take().map(MonteCarlo::finish);
+        let (status, line) = match (sheet.model.as_mut(), summary) {
+            (Some(model), Some(summary)) => {
+                model.apply_study(summary);
+                (model.study_line(), model.summary_with_study())
+            }
+            _ => (
+                "the design changed during the study".to_string(),
+                String::new(),
+            ),
+        };
+        to_js(&StudyProgress {
+            done: progress.done,
+            total: progress.total,
+            finished: true,
+            status,
+            summary: line,
+        })
+    })
+}
+
+/// Stops the study in progress; its partial results are dropped.
+#[wasm_bindgen]
+pub fn study_cancel() {
+    SHEET.with(|sheet| sheet.borrow_mut().study = None);
+}
+
+#[derive(Serialize)]
+struct Text {
+    ok: bool,
+    text: String,
+    message: String,
+}
+
+/// A download of the design on screen: `bom` (parts list CSV), `spice` (netlist) or `json`.
+/// Returns `{ ok, text, message }`.
+#[wasm_bindgen]
+pub fn export_text(kind: &str) -> JsValue {
+    SHEET.with(|sheet| {
+        let sheet = sheet.borrow();
+        let Some(model) = sheet.model.as_ref() else {
+            return failure("no design to save yet");
+        };
+        match model.export(kind) {
+            Ok(text) => to_js(&Text {
+                ok: true,
+                text,
+                message: String::new(),
+            }),
+            Err(e) => to_js(&Text {
+                ok: false,
+                text: String::new(),
+                message: e.message,
+            }),
+        }
+    })
+}
+
+#[derive(Serialize)]
+struct Imported {
+    ok: bool,
+    query: String,
+    message: String,
+}
+
+/// Reads a design JSON file and returns the link it was made from: `{ ok, query, message }`.
+#[wasm_bindgen]
+pub fn import_json(text: &str) -> JsValue {
+    match page::link_of_json(text) {
+        Ok(query) => to_js(&Imported {
+            ok: true,
+            query,
+            message: String::new(),
+        }),
+        Err(e) => to_js(&Imported {
+            ok: false,
+            query: String::new(),
+            message: e.message,
+        }),
+    }
+}

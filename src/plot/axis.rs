@@ -139,9 +139,15 @@ impl Axis {
     /// The ticks of the axis: labelled major ticks and unlabelled minor grid lines, all inside
     /// `[min, max]`, in ascending order.
     pub fn ticks(&self) -> Vec<Tick> {
+        self.ticks_about(6)
+    }
+
+    /// Ticks with about `target` labelled steps on a linear axis; on a log axis a small target
+    /// (below 4, for thumbnails) labels decades only.
+    pub fn ticks_about(&self, target: usize) -> Vec<Tick> {
         match self.scale {
-            Scale::Linear => linear_ticks(self.min, self.max, 6, self.format),
-            Scale::Log => log_ticks(self.min, self.max, self.format),
+            Scale::Linear => linear_ticks(self.min, self.max, target, self.format),
+            Scale::Log => log_ticks(self.min, self.max, self.format, target >= 4),
         }
     }
 
@@ -152,12 +158,10 @@ impl Axis {
             TickFormat::Engineering => engineering(value, 4),
             TickFormat::Plain => significant(value, 4),
         };
-        if self.unit.is_empty() {
-            number
-        } else if self.format == TickFormat::Engineering {
-            format!("{number}{}", self.unit)
-        } else {
-            format!("{number} {}", self.unit)
+        match self.format {
+            TickFormat::Engineering => engineering_unit(value, 4, &self.unit),
+            TickFormat::Plain if self.unit.is_empty() => number,
+            TickFormat::Plain => format!("{number} {}", self.unit),
         }
     }
 }
@@ -224,9 +228,9 @@ fn linear_ticks(min: f64, max: f64, target: usize, format: TickFormat) -> Vec<Ti
 
 /// Logarithmic ticks: decades labelled, 2 … 9 as grid lines; with less than two decades the
 /// 2 and 5 lines are labelled too, so a narrow axis still reads.
-fn log_ticks(min: f64, max: f64, format: TickFormat) -> Vec<Tick> {
+fn log_ticks(min: f64, max: f64, format: TickFormat, allow_125: bool) -> Vec<Tick> {
     let decades = (max / min).log10();
-    let label_125 = decades < 2.2;
+    let label_125 = allow_125 && decades < 2.2;
     let first = min.log10().floor() as i32;
     let last = max.log10().ceil() as i32;
     let mut ticks = Vec::new();
@@ -300,6 +304,24 @@ pub fn engineering(value: f64, digits: usize) -> String {
     format!("{sign}{text}{prefix}")
 }
 
+/// Formats `value` in engineering notation followed by a space, the prefix and the unit, as the
+/// SI writes quantities: 2000 Hz → "2 kHz", 4990 Ω → "4.99 kΩ", 0.25 s → "250 ms". An empty unit
+/// gives the number with its prefix alone.
+pub fn engineering_unit(value: f64, digits: usize, unit: &str) -> String {
+    let text = engineering(value, digits);
+    if unit.is_empty() {
+        return text;
+    }
+    // The prefix is the trailing letter, when there is one.
+    match text.chars().last() {
+        Some(c) if c.is_alphabetic() && !matches!(c, '∞') => {
+            let number = &text[..text.len() - c.len_utf8()];
+            format!("{number} {c}{unit}")
+        }
+        _ => format!("{text} {unit}"),
+    }
+}
+
 /// Formats `value` with `digits` significant digits in plain decimal notation (no exponent for
 /// magnitudes between 1e-4 and 1e9), trimming trailing zeros.
 pub fn significant(value: f64, digits: usize) -> String {
@@ -369,6 +391,10 @@ mod tests {
         assert_eq!(engineering(999.96, 4), "1k");
         assert_eq!(engineering(-0.25, 3), "−250m");
         assert_eq!(engineering(123.456, 4), "123.5");
+        assert_eq!(engineering_unit(2000.0, 4, "Hz"), "2 kHz");
+        assert_eq!(engineering_unit(4990.0, 3, "Ω"), "4.99 kΩ");
+        assert_eq!(engineering_unit(100.0, 3, "Hz"), "100 Hz");
+        assert_eq!(engineering_unit(2.2e-9, 3, "F"), "2.2 nF");
     }
 
     #[test]

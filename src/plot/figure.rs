@@ -522,7 +522,8 @@ pub fn draw<DB: DrawingBackend>(
     let tick_font = if look.compact { 8.5 } else { 10.5 };
     let grid_minor = ShapeStyle::from(palette.grid_minor).stroke_width(1);
     let grid_major = ShapeStyle::from(palette.grid_major).stroke_width(1);
-    for tick in x_axis.ticks() {
+    let (x_target, y_target) = if look.compact { (3, 3) } else { (8, 6) };
+    for tick in x_axis.ticks_about(x_target) {
         let Some(x) = frame.px(&x_axis, tick.value) else {
             continue;
         };
@@ -546,7 +547,7 @@ pub fn draw<DB: DrawingBackend>(
                 .map_err(backend_err)?;
         }
     }
-    for tick in y_axis.ticks() {
+    for tick in y_axis.ticks_about(y_target) {
         let Some(y) = frame.py(&y_axis, tick.value) else {
             continue;
         };
@@ -794,9 +795,16 @@ fn draw_layer<DB: DrawingBackend>(
                 let (Some(top), Some(base)) = (clamp_y(count), clamp_y(y_axis.min)) else {
                     continue;
                 };
-                if count <= 0.0 || b - a < 1.0 {
+                if count <= 0.0 {
                     continue;
                 }
+                // A bin narrower than a pixel still shows as a 2 px bar around its centre.
+                let (a, b) = if b - a < 3.0 {
+                    let centre = (a + b) / 2.0;
+                    (centre - 1.5, centre + 1.5)
+                } else {
+                    (a, b)
+                };
                 let ul = round((a + 0.5, top));
                 let br = round((b - 0.5, base));
                 backend
@@ -882,7 +890,7 @@ fn draw_layer<DB: DrawingBackend>(
                 }
             };
             draw_dashed(backend, &[round(a), round(b)], &style, 4.0 * s, 3.0 * s)?;
-            if !label.is_empty() {
+            if !label.is_empty() && !look.compact {
                 let text = text_style(look, 10.0, color, anchor);
                 backend
                     .draw_text(label, &text, round(text_at))
@@ -1121,7 +1129,7 @@ mod tests {
         let px = (frame.left + frame.right) / 2.0;
         let read = readout(&figure, w, h, &LOOK, px, frame.top + 10.0);
         let read = read.unwrap_or_else(|| panic!("pointer inside the frame gave no readout"));
-        assert_eq!(read.x, "1kHz");
+        assert_eq!(read.x, "1 kHz");
         let built = read.entries.iter().find(|e| e.label == "built");
         // A first-order low-pass is 3.01 dB down at its corner (10·log10 2, circuit theory).
         assert_eq!(built.map(|e| e.value.as_str()), Some("−3.01 dB"));

@@ -255,11 +255,13 @@ pub fn build(kind: PlotKind, data: &PlotData) -> Figure {
             data.hist_cutoff.as_ref(),
             "cutoff spread",
             Axis::linear("cutoff", "Hz", 0.0, 1.0, TickFormat::Engineering),
+            1e-3,
         ),
         PlotKind::HistGain => histogram(
             data.hist_gain.as_ref(),
             "passband gain spread",
             Axis::linear("passband gain", "dB", 0.0, 1.0, TickFormat::Plain),
+            0.0,
         ),
     }
 }
@@ -579,7 +581,10 @@ fn levels(data: &PlotData) -> Figure {
     }
 }
 
-fn histogram(hist: Option<&Histogram>, title: &str, mut x: Axis) -> Figure {
+/// A histogram figure. The x axis spans the bins and the limits, and at least `min_relative` of
+/// the values' magnitude (or 0.05 axis units when that is zero), so that a spread far below the
+/// axis resolution (the DC gain of a unity-gain stage) still draws as one readable bar.
+fn histogram(hist: Option<&Histogram>, title: &str, mut x: Axis, min_relative: f64) -> Figure {
     let mut layers = Vec::new();
     let mut y = Axis::linear("runs", "", 0.0, 1.0, TickFormat::Plain);
     if let Some(h) = hist {
@@ -590,7 +595,12 @@ fn histogram(hist: Option<&Histogram>, title: &str, mut x: Axis) -> Figure {
                 lo = lo.min(*v);
                 hi = hi.max(*v);
             }
-            let (a, b) = padded(lo, hi, 0.04, (hi.abs() * 1e-9).max(1e-12));
+            let min_span = if min_relative > 0.0 {
+                hi.abs().max(lo.abs()) * min_relative
+            } else {
+                0.05
+            };
+            let (a, b) = padded(lo, hi, 0.04, min_span.max(1e-12));
             x.min = a;
             x.max = b;
         }

@@ -1,0 +1,934 @@
+//! The page's model: everything the design sheet shows for one link, computed natively.
+//!
+//! [`evaluate`] reads a link leniently (valid keys load, bad ones are listed), composes the design
+//! (synthesis → board → analyses), and returns a [`View`] (text for the form, the summary, the
+//! stage cards and the family comparison, ready to serialize for the page) together with the
+//! [`PageModel`] that the plots, the exports and the tolerance study are drawn from. The wasm
+//! facade only keeps the last good model and converts values at the boundary; the same functions
+//! run in native tests, so the page shows exactly what the core computes.
+
+use num_complex::Complex64;
+use serde::Serialize;
+use std::f64::consts::PI;
+
+use super::figure::Figure;
+use super::figures::{self, Curve, Histogram, PlotData, PlotKind, Sweep};
+use crate::analysis::montecarlo::{
+    CutoffDefinition, MonteCarlo, MonteCarloSettings, PartDistribution, PartTolerance, Summary,
+    Tolerances,
+};
+use crate::board::{Board, BuildChoices, ImpedanceLevel};
+use crate::design::{self, Synthesis};
+use crate::error::InputError;
+use crate::export;
+use crate::link::{self, Distribution, LinkReport, LinkState};
+use crate::mna;
+use crate::netlist::PartKind;
+use crate::order;
+use crate::schematic;
+use crate::spec::{Edge, Family, OrderChoice, ResponseClass};
+use crate::topology::Topology;
+use crate::units::format_si;
+
+use super::axis::engineering_unit;
+
+/// Frequencies of the plots and of the tolerance envelope.
+pub const N_POINTS: usize = 241;
+
+/// An error shown beside its field.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FieldError {
+    /// The link key (or `set:R3`) the message belongs to.
+    pub key: String,
+    /// What is wrong and what is accepted.
+    pub message: String,
+}
+
+impl From<&InputError> for FieldError {
+    fn from(e: &InputError) -> Self {
+        FieldError {
+            key: e.key.clone(),
+            message: e.message.clone(),
+        }
+    }
+}
+
+/// One row of a stage card's target table.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct TargetRow {
+    /// `f0`, `Q` or `gain`.
+    pub what: String,
+    /// The section's target, formatted.
+    pub target: String,
+    /// The value of the parts on the board, formatted.
+    pub achieved: String,
+    /// The relative error, formatted (`+0.12 %`).
+    pub error: String,
+    /// True when the error is large enough to call out (above 2 %).
+    pub large: bool,
+}
+
+/// One part of a stage card.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PartRow {
+    /// Reference designator.
+    pub reference: String,
+    /// Value on the board in engineering notation without unit (`4.99k`, `22n`), as the field
+    /// shows it and the link's `set` key reads it.
+    pub value: String,
+    /// The value the synthesis asked for, with unit.
+    pub ideal: String,
+    /// What the part does.
+    pub role: String,
+}
+
+/// Sensitivities of a stage's f0 and Q to one part, formatted.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SensitivityRow {
+    /// Reference designator.
+    pub reference: String,
+    /// `S f0`, two decimals.
+    pub f0: String,
+    /// `S Q`, two decimals, or `–` for first order.
+    pub q: String,
+}
+
+/// A stage card.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct StageView {
+    /// Changes when the card's structure (circuit and part list) changes.
+    pub key: String,
+    /// 0-based index.
+    pub index: usize,
+    /// 1-based number.
+    pub number: usize,
+    /// "Stage 2 · second order".
+    pub title: String,
+    /// The circuit in words.
+    pub circuit: String,
+    /// f0, Q and gain: target against the board.
+    pub rows: Vec<TargetRow>,
+    /// The parts, in netlist order (op amps left out).
+    pub parts: Vec<PartRow>,
+    /// Sensitivities (empty when not computed).
+    pub sensitivities: Vec<SensitivityRow>,
+    /// What the op amp must have, in words (empty when not computed).
+    pub needs: String,
+    /// The stage's warnings.
+    pub warnings: Vec<String>,
+}
+
+/// One family of the comparison.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FamilyRow {
+    /// Family name (Chebyshev with its ripple).
+    pub family: String,
+    /// Minimum order, or `—`.
+    pub order: String,
+    /// Why there is none, or a remark.
+    pub note: String,
+    /// True for the family of the design.
+    pub current: bool,
+}
+
+/// What the page shows in text for one evaluation.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct View {
+    /// True when this evaluation replaced the drawn design (set by the caller that keeps models).
+    pub committed: bool,
+    /// Problems with fields, each naming its key.
+    pub errors: Vec<FieldError>,
+    /// Link keys that were not used (unknown keys and notes), as sentences.
+    pub ignored: Vec<String>,
+    /// The design in one sentence.
+    pub summary: String,
+    /// Figures of merit in one line (cutoff, overshoot, noise …).
+    pub figures: String,
+    /// Design and board warnings.
+    pub warnings: Vec<String>,
+    /// One card per stage, in signal order.
+    pub stages: Vec<StageView>,
+    /// Minimum order per family for the mask.
+    pub comparison: Vec<FamilyRow>,
+    /// A line above the comparison.
+    pub comparison_hint: String,
+}
+
+/// A design that was composed successfully, with everything the plots and exports need.
+#[derive(Debug, Clone)]
+pub struct PageModel {
+    /// The link state the design came from.
+    pub state: LinkState,
+    /// The synthesized response.
+    pub synthesis: Synthesis,
+    /// The board as built.
+    pub board: Board,
+    /// The plot curves.
+    pub data: PlotData,
+    /// The text view.
+    pub view: View,
+    /// The last finished tolerance study of this design.
+    pub study: Option<Summary>,
+}
+
+/// The outcome of [`evaluate`].
+#[derive(Debug, Clone)]
+pub struct Evaluation {
+    /// The text view (errors included).
+    pub view: View,
+    /// The composed design, when there is one (also when some keys fell back to defaults).
+    pub model: Option<PageModel>,
+    /// True when the link must be refused as a whole (a `v` newer than this build).
+    pub refused: bool,
+}
+
+/// Reads `query` and composes the design.
+///
+/// Never fails: problems are in `view.errors` (one per bad key, plus the design's own error);
+/// `model` is `None` when no design could be made.
+pub fn evaluate(query: &str) -> Evaluation {
+    let report = link::parse(query);
+    let mut errors: Vec<FieldError> = report.errors.iter().map(FieldError::from).collect();
+    let ignored = ignored_of(&report);
+    if report.refused() {
+        return Evaluation {
+            view: empty_view(errors, ignored),
+            model: None,
+            refused: true,
+        };
+    }
+    match compose(&report.state) {
+        Ok(mut model) => {
+            model.view.errors = errors;
+            model.view.ignored = ignored;
+            Evaluation {
+                view: model.view.clone(),
+                model: Some(model),
+                refused: false,
+            }
+        }
+        Err(error) => {
+            errors.push(FieldError::from(&error));
+            Evaluation {
+                view: empty_view(errors, ignored),
+                model: None,
+                refused: false,
+            }
+        }
+    }
+}
+
+fn empty_view(errors: Vec<FieldError>, ignored: Vec<String>) -> View {
+    View {
+        committed: false,
+        errors,
+        ignored,
+        summary: String::new(),
+        figures: String::new(),
+        warnings: Vec::new(),
+        stages: Vec::new(),
+        comparison: Vec::new(),
+        comparison_hint: String::new(),
+    }
+}
+
+fn ignored_of(report: &LinkReport) -> Vec<String> {
+    let mut out: Vec<String> = report
+        .unknown_keys
+        .iter()
+        .map(|key| format!("“{key}” is not a key this version knows"))
+        .collect();
+    out.extend(report.notes.iter().cloned());
+    out
+}
+
+/// The build choices of a link state (the freedoms of [`Board::build`]).
+pub fn build_choices(state: &LinkState) -> BuildChoices {
+    BuildChoices {
+        topology: state.topology,
+        r_series: state.r_series,
+        c_series: state.c_series,
+        impedance: match state.r_level_ohm {
+            Some(r) => ImpedanceLevel::Ohms(r),
+            None => ImpedanceLevel::Auto,
+        },
+        c_ratio: state.c_ratio,
+        r_ratio: state.r_ratio,
+        rounding: state.rounding,
+        overrides: state.overrides.clone(),
+        op_amp: state.op_amp,
+    }
+}
+
+/// The frequency span of the plots: the link's `span`, or two decades either side of the band
+/// that takes in the cutoff and every mask edge.
+pub fn plot_span(state: &LinkState, synthesis: &Synthesis) -> (f64, f64) {
+    if let Some(span) = state.span_hz {
+        return span;
+    }
+    let mut lo = synthesis.fc_hz;
+    let mut hi = synthesis.fc_hz;
+    if let Some(bw) = synthesis.bw_hz {
+        let half = bw / 2.0;
+        let upper = half + (half * half + synthesis.fc_hz * synthesis.fc_hz).sqrt();
+        lo = lo.min(synthesis.fc_hz * synthesis.fc_hz / upper);
+        hi = hi.max(upper);
+    }
+    if let Some(mask) = &state.requirement.mask {
+        for edge in [mask.pass, mask.stop] {
+            let (a, b) = match edge {
+                Edge::Single(f) => (f, f),
+                Edge::Pair(a, b) => (a, b),
+            };
+            lo = lo.min(a);
+            hi = hi.max(b);
+        }
+    }
+    (lo / 30.0, hi * 30.0)
+}
+
+fn log_grid(lo: f64, hi: f64, n: usize) -> Vec<f64> {
+    let (a, b) = (lo.ln(), hi.ln());
+    (0..n)
+        .map(|i| (a + (b - a) * i as f64 / (n - 1) as f64).exp())
+        .collect()
+}
+
+/// Unwraps a phase sequence (degrees) so that no step exceeds 180°.
+fn unwrap_deg(phase: &mut [f64]) {
+    let mut offset = 0.0;
+    for i in 1..phase.len() {
+        let raw = phase[i] + offset;
+        let step = raw - phase[i - 1];
+        let turns = (step / 360.0).round();
+        offset -= turns * 360.0;
+        phase[i] = raw - turns * 360.0;
+    }
+}
+
+/// Group delay −dφ/dω from an unwrapped phase (degrees) on a frequency grid (Hz), by central
+/// differences (one-sided at the ends).
+fn delay_of(freq_hz: &[f64], phase_deg: &[f64]) -> Vec<f64> {
+    let n = freq_hz.len();
+    (0..n)
+        .map(|i| {
+            let (a, b) = (i.saturating_sub(1), (i + 1).min(n - 1));
+            if a == b {
+                return f64::NAN;
+            }
+            let dphi = (phase_deg[b] - phase_deg[a]).to_radians();
+            let dw = 2.0 * PI * (freq_hz[b] - freq_hz[a]);
+            -dphi / dw
+        })
+        .collect()
+}
+
+/// The ideal response of the synthesized sections on `freqs`.
+fn ideal_sweep(synthesis: &Synthesis, freqs: &[f64]) -> Sweep {
+    let points: Vec<_> = freqs
+        .iter()
+        .map(|&f| crate::response::point(&synthesis.sections, f))
+        .collect();
+    Sweep {
+        freq_hz: freqs.to_vec(),
+        gain_db: points.iter().map(|p| p.gain_db).collect(),
+        phase_deg: points.iter().map(|p| p.phase_deg).collect(),
+        delay_s: points.iter().map(|p| p.delay_s).collect(),
+    }
+}
+
+/// The board's response by nodal analysis of the whole cascade, with each stage's output level.
+fn built_sweep(board: &Board, freqs: &[f64]) -> Result<(Sweep, Vec<Vec<f64>>), InputError> {
+    let mut gain_db = Vec::with_capacity(freqs.len());
+    let mut phase_deg = Vec::with_capacity(freqs.len());
+    let mut levels = vec![Vec::with_capacity(freqs.len()); board.stages.len()];
+    for &f in freqs {
+        let s = Complex64::new(0.0, 2.0 * PI * f);
+        let (h, outputs) = mna::board_response(board, s)
+            .map_err(|e| InputError::new("topo", format!("the board cannot be analysed: {e:?}")))?;
+        gain_db.push(20.0 * h.norm().log10());
+        phase_deg.push(h.arg().to_degrees());
+        for (k, v) in outputs.iter().enumerate() {
+            if let Some(level) = levels.get_mut(k) {
+                level.push(20.0 * v.norm().log10());
+            }
+        }
+    }
+    unwrap_deg(&mut phase_deg);
+    let delay_s = delay_of(freqs, &phase_deg);
+    Ok((
+        Sweep {
+            freq_hz: freqs.to_vec(),
+            gain_db,
+            phase_deg,
+            delay_s,
+        },
+        levels,
+    ))
+}
+
+fn input_impedance(board: &Board, freqs: &[f64]) -> Option<Curve> {
+    let merged = board.netlist();
+    let mut y = Vec::with_capacity(freqs.len());
+    for &f in freqs {
+        let s = Complex64::new(0.0, 2.0 * PI * f);
+        y.push(
+            mna::input_impedance(&merged.netlist, &board.op_amp, s)
+                .map(|z| z.norm())
+                .unwrap_or(f64::NAN),
+        );
+    }
+    Some(Curve {
+        label: "|Z in|".into(),
+        x: freqs.to_vec(),
+        y,
+    })
+}
+
+/// Composes the design of `state`: synthesis, board, sweeps and the text view.
+///
+/// # Errors
+/// The first [`InputError`] of the synthesis or the board.
+pub fn compose(state: &LinkState) -> Result<PageModel, InputError> {
+    let synthesis = design::synthesize(&state.requirement, &state.stage_order)?;
+    let board = Board::build(&synthesis.sections, &build_choices(state))?;
+    let (lo, hi) = plot_span(state, &synthesis);
+    let freqs = log_grid(lo, hi, N_POINTS);
+    let ideal = ideal_sweep(&synthesis, &freqs);
+    let (built, level_curves) = built_sweep(&board, &freqs)?;
+    let to_hz = |p: &Complex64| p / (2.0 * PI);
+    let data = PlotData {
+        class: Some(synthesis.class),
+        gain_db: state.requirement.gain_db,
+        mask: state.requirement.mask,
+        ideal,
+        built: Some(built),
+        envelope_db: None,
+        envelope_label: String::new(),
+        target_poles_hz: synthesis.poles.iter().map(to_hz).collect(),
+        built_poles_hz: Vec::new(),
+        zeros_hz: vec![Complex64::new(0.0, 0.0); synthesis.zeros_at_origin.min(1)],
+        step_ideal: None,
+        step_built: None,
+        impedance: input_impedance(&board, &freqs),
+        noise_total: None,
+        noise_parts: Vec::new(),
+        levels: level_curves
+            .into_iter()
+            .enumerate()
+            .map(|(k, y)| Curve {
+                label: format!("stage {}", k + 1),
+                x: freqs.clone(),
+                y,
+            })
+            .collect(),
+        level_limit_db: Some(20.0 * (state.signal.swing_pk / state.signal.vin_pk).log10()),
+        hist_cutoff: None,
+        hist_gain: None,
+    };
+    let view = text_view(state, &synthesis, &board, &data);
+    Ok(PageModel {
+        state: state.clone(),
+        synthesis,
+        board,
+        data,
+        view,
+        study: None,
+    })
+}
+
+fn ordinal(n: usize) -> String {
+    let suffix = match (n % 10, n % 100) {
+        (1, 11) | (2, 12) | (3, 13) => "th",
+        (1, _) => "st",
+        (2, _) => "nd",
+        (3, _) => "rd",
+        _ => "th",
+    };
+    format!("{n}{suffix}")
+}
+
+fn class_words(class: ResponseClass) -> &'static str {
+    match class {
+        ResponseClass::LowPass => "low-pass",
+        ResponseClass::HighPass => "high-pass",
+        ResponseClass::BandPass => "band-pass",
+    }
+}
+
+fn topology_words(topology: Topology, n: usize) -> String {
+    let name = match topology {
+        Topology::SallenKey => "Sallen-Key",
+        Topology::MultipleFeedback => "multiple-feedback",
+    };
+    if n == 1 {
+        format!("1 {name} stage")
+    } else {
+        format!("{n} {name} stages")
+    }
+}
+
+/// Where the design's cutoff sits, in words: "−3 dB at 1 kHz", "ripple band to 20 kHz",
+/// "centred on 6.3 kHz, 18 kHz wide".
+fn cutoff_words(synthesis: &Synthesis) -> String {
+    let fc = engineering_unit(synthesis.fc_hz, 4, "Hz");
+    if let Some(bw) = synthesis.bw_hz {
+        return format!("centred on {fc}, {} wide", engineering_unit(bw, 3, "Hz"));
+    }
+    match synthesis.family {
+        Family::Chebyshev { .. } => format!("ripple band edge {fc}"),
+        Family::LinkwitzRiley => format!("−6 dB at {fc}"),
+        _ => format!("−3 dB at {fc}"),
+    }
+}
+
+fn pct(x: f64) -> String {
+    format!("{:+.2} %", x * 100.0)
+}
+
+fn text_view(state: &LinkState, synthesis: &Synthesis, board: &Board, data: &PlotData) -> View {
+    let n_parts = board.parts().len();
+    let mut summary = format!(
+        "{}-order {} {} · {} · {} · {} parts",
+        ordinal(synthesis.order),
+        order::family_name(synthesis.family),
+        class_words(synthesis.class),
+        cutoff_words(synthesis),
+        topology_words(state.topology, board.stages.len()),
+        n_parts
+    );
+    if state.requirement.gain_db != 0.0 {
+        summary.push_str(&format!(
+            " · gain {} dB",
+            format_si(state.requirement.gain_db, 3)
+        ));
+    }
+    if let OrderChoice::FromMask = state.requirement.order {
+        summary.push_str(" · order from the limits");
+    }
+
+    let mut warnings = synthesis.warnings.clone();
+    warnings.extend(board.warnings.iter().cloned());
+
+    let stages = board
+        .stages
+        .iter()
+        .enumerate()
+        .map(|(index, stage)| {
+            let section = &stage.section;
+            let mut rows = vec![TargetRow {
+                what: "f0".into(),
+                target: engineering_unit(section.f0_hz, 4, "Hz"),
+                achieved: engineering_unit(stage.achieved_f0_hz, 4, "Hz"),
+                error: pct(stage.f0_error),
+                large: stage.f0_error.abs() > 0.02,
+            }];
+            if let (Some(q), Some(aq)) = (section.q, stage.achieved_q) {
+                let q_error = stage.q_error.unwrap_or(f64::NAN);
+                rows.push(TargetRow {
+                    what: "Q".into(),
+                    target: format!("{q:.4}"),
+                    achieved: format!("{aq:.4}"),
+                    error: pct(q_error),
+                    large: q_error.abs() > 0.02,
+                });
+            }
+            rows.push(TargetRow {
+                what: "gain".into(),
+                target: format!("{:.4} V/V", section.gain),
+                achieved: format!("{:.4} V/V", stage.achieved_gain),
+                error: pct(stage.gain_error),
+                large: stage.gain_error.abs() > 0.02,
+            });
+            let parts: Vec<PartRow> = stage
+                .netlist
+                .parts
+                .iter()
+                .filter(|p| p.kind != PartKind::OpAmp)
+                .map(|p| PartRow {
+                    reference: p.reference.clone(),
+                    value: format_si(p.value, 4),
+                    ideal: schematic::value_label(p.kind, p.ideal),
+                    role: p.role.clone(),
+                })
+                .collect();
+            let key = format!(
+                "{}:{}",
+                stage.circuit.key(),
+                parts
+                    .iter()
+                    .map(|p| p.reference.as_str())
+                    .collect::<Vec<_>>()
+                    .join(",")
+            );
+            let order_words = if section.q.is_some() {
+                "second order"
+            } else {
+                "first order"
+            };
+            StageView {
+                key,
+                index,
+                number: index + 1,
+                title: format!("Stage {} · {order_words}", index + 1),
+                circuit: stage.circuit.describe().to_string(),
+                rows,
+                parts,
+                sensitivities: Vec::new(),
+                needs: String::new(),
+                warnings: stage.warnings.clone(),
+            }
+        })
+        .collect();
+
+    let (comparison, comparison_hint) = match &state.requirement.mask {
+        Some(mask) => {
+            let ripple = match synthesis.family {
+                Family::Chebyshev { ripple_db } => Some(ripple_db),
+                _ => None,
+            };
+            let rows = order::compare_families(synthesis.class, mask, ripple)
+                .into_iter()
+                .map(|row| {
+                    let current = row.family.key() == synthesis.family.key();
+                    let (order_text, note) = match &row.result {
+                        Ok(min) => (
+                            min.order.to_string(),
+                            if current && min.order != synthesis.order {
+                                format!("this design has order {}", synthesis.order)
+                            } else {
+                                String::new()
+                            },
+                        ),
+                        Err(e) => ("—".to_string(), e.to_input_error().message),
+                    };
+                    FamilyRow {
+                        family: order::family_name(row.family),
+                        order: order_text,
+                        note,
+                        current,
+                    }
+                })
+                .collect();
+            (
+                rows,
+                "The fewest poles each family needs to meet these limits.".to_string(),
+            )
+        }
+        None => (
+            Vec::new(),
+            "Give limits (pass edge, stop edge and the depth needed) to see the order each \
+             family needs."
+                .to_string(),
+        ),
+    };
+
+    View {
+        committed: false,
+        errors: Vec::new(),
+        ignored: Vec::new(),
+        summary,
+        figures: figures_line(data),
+        warnings,
+        stages,
+        comparison,
+        comparison_hint,
+    }
+}
+
+/// Figures of merit read off the built response: the frequency where it has fallen 3 dB below
+/// the passband gain, and the peaking above it.
+fn figures_line(data: &PlotData) -> String {
+    let Some(built) = &data.built else {
+        return String::new();
+    };
+    let peak = built
+        .gain_db
+        .iter()
+        .copied()
+        .filter(|v| v.is_finite())
+        .fold(f64::NEG_INFINITY, f64::max);
+    let mut parts = Vec::new();
+    let reference = data.gain_db;
+    let crossings: Vec<f64> = built
+        .freq_hz
+        .windows(2)
+        .zip(built.gain_db.windows(2))
+        .filter_map(|(f, g)| {
+            let level = reference - 3.0103;
+            let (a, b) = (g[0] - level, g[1] - level);
+            if a == 0.0 || a.signum() != b.signum() {
+                let t = a / (a - b);
+                Some((f[0].ln() + t * (f[1].ln() - f[0].ln())).exp())
+            } else {
+                None
+            }
+        })
+        .collect();
+    if !crossings.is_empty() {
+        let list: Vec<String> = crossings
+            .iter()
+            .map(|f| engineering_unit(*f, 4, "Hz"))
+            .collect();
+        parts.push(format!("built −3 dB at {}", list.join(" and ")));
+    }
+    if peak.is_finite() {
+        parts.push(format!(
+            "peak {} dB re passband",
+            format!("{:+.2}", peak - reference).replace('-', "−")
+        ));
+    }
+    parts.join(" · ")
+}
+
+impl PageModel {
+    /// The figure of `kind` for this design.
+    pub fn figure(&self, kind: PlotKind) -> Figure {
+        figures::build(kind, &self.data)
+    }
+
+    /// The settings of the tolerance study the link asks for (`runs`, `seed`, `dist`, `sigmas`,
+    /// `rtol`, `ctol`, `tolset`), on the plot grid.
+    pub fn study_settings(&self) -> MonteCarloSettings {
+        let state = &self.state;
+        let db = match self.synthesis.family {
+            Family::Chebyshev { ripple_db } => ripple_db,
+            Family::LinkwitzRiley => 20.0 * 2f64.log10(),
+            _ => 10.0 * 2f64.log10(),
+        };
+        let passband_ref_hz = match self.synthesis.class {
+            ResponseClass::LowPass => 0.0,
+            ResponseClass::HighPass => self.synthesis.fc_hz * 100.0,
+            ResponseClass::BandPass => self.synthesis.fc_hz,
+        };
+        MonteCarloSettings {
+            runs: state.study.runs,
+            seed: state.study.seed,
+            tolerances: Tolerances {
+                distribution: match state.study.distribution {
+                    Distribution::Gaussian => PartDistribution::Gaussian {
+                        sigmas: state.study.sigmas,
+                    },
+                    Distribution::Uniform => PartDistribution::Uniform,
+                },
+                resistor_pct: state.rtol_pct,
+                capacitor_pct: state.ctol_pct,
+                overrides: state
+                    .tolerance_overrides
+                    .iter()
+                    .map(|(reference, pct)| PartTolerance {
+                        reference: reference.clone(),
+                        pct: *pct,
+                    })
+                    .collect(),
+            },
+            freqs_hz: self.data.ideal.freq_hz.clone(),
+            percentiles: vec![1.0, 50.0, 99.0],
+            cutoff: CutoffDefinition::Attenuation { db },
+            class: self.synthesis.class,
+            reference_gain: 10f64.powf(state.requirement.gain_db / 20.0),
+            passband_ref_hz,
+        }
+    }
+
+    /// Prepares the tolerance study of this design.
+    ///
+    /// # Errors
+    /// An [`InputError`] naming the study setting that is out of range.
+    pub fn start_study(&self) -> Result<MonteCarlo, InputError> {
+        MonteCarlo::new(
+            &self.board,
+            self.state.requirement.mask.as_ref(),
+            self.study_settings(),
+        )
+        .map_err(|e| InputError::new("runs", format!("the tolerance study cannot start: {e:?}")))
+    }
+
+    /// Takes a finished study into the plots (envelope, histograms) and the summary.
+    pub fn apply_study(&mut self, summary: Summary) {
+        let envelope = &summary.envelope;
+        let pick = |p: f64| {
+            envelope
+                .percentiles
+                .iter()
+                .find(|c| (c.percentile - p).abs() < 1e-9)
+                .map(|c| c.db.clone())
+        };
+        if let (Some(lo), Some(hi)) = (pick(1.0), pick(99.0)) {
+            if lo.len() == self.data.ideal.freq_hz.len() {
+                self.data.envelope_db = Some((lo, hi));
+                self.data.envelope_label = "1–99 % of runs".into();
+            }
+        }
+        let mask = self.state.requirement.mask;
+        if let Some(cut) = summary.cutoffs.first() {
+            let mut limits = Vec::new();
+            if let Some(m) = mask {
+                let (lo, hi) = match m.pass {
+                    Edge::Single(f) => (f, f),
+                    Edge::Pair(a, b) => (a, b),
+                };
+                let edge = match cut.side {
+                    crate::analysis::montecarlo::CutoffSide::Lower => lo,
+                    crate::analysis::montecarlo::CutoffSide::Upper => hi,
+                };
+                limits.push(("pass edge".to_string(), edge));
+            }
+            self.data.hist_cutoff = Some(Histogram {
+                edges: cut.hz.histogram.edges.clone(),
+                counts: cut.hz.histogram.counts.iter().map(|&c| c as f64).collect(),
+                nominal: Some(cut.hz.nominal),
+                limits,
+            });
+        }
+        let gain = &summary.passband_gain_db;
+        let mut limits = Vec::new();
+        if let Some(m) = mask {
+            limits.push((
+                "loss limit".to_string(),
+                self.state.requirement.gain_db - m.apass_db,
+            ));
+        }
+        self.data.hist_gain = Some(Histogram {
+            edges: gain.histogram.edges.clone(),
+            counts: gain.histogram.counts.iter().map(|&c| c as f64).collect(),
+            nominal: Some(gain.nominal),
+            limits,
+        });
+        self.study = Some(summary);
+    }
+
+    /// One line about the finished study: yield and the cutoff's spread.
+    pub fn study_line(&self) -> String {
+        let Some(summary) = &self.study else {
+            return String::new();
+        };
+        let mut parts = Vec::new();
+        match summary.yield_fraction {
+            Some(y) => parts.push(format!(
+                "yield {:.1} % ({} of {} runs meet the limits)",
+                y * 100.0,
+                summary.n_pass.unwrap_or(0),
+                summary.runs
+            )),
+            None => parts.push(format!("{} runs (no limits to check)", summary.runs)),
+        }
+        if let Some(cut) = summary.cutoffs.first() {
+            let p = |q: f64| {
+                cut.hz
+                    .percentiles
+                    .iter()
+                    .find(|v| (v.percentile - q).abs() < 1e-9)
+                    .map(|v| v.value)
+            };
+            if let (Some(lo), Some(hi)) = (p(1.0), p(99.0)) {
+                parts.push(format!(
+                    "cutoff {} … {} (1–99 %)",
+                    engineering_unit(lo, 4, "Hz"),
+                    engineering_unit(hi, 4, "Hz")
+                ));
+            }
+        }
+        parts.join(" · ")
+    }
+
+    /// The summary sentence with the study's yield appended once a study has finished.
+    pub fn summary_with_study(&self) -> String {
+        match self.study.as_ref().and_then(|s| s.yield_fraction) {
+            Some(y) => format!(
+                "{} · yield {:.1} % ({} runs)",
+                self.view.summary,
+                y * 100.0,
+                self.study.as_ref().map_or(0, |s| s.runs)
+            ),
+            None => self.view.summary.clone(),
+        }
+    }
+
+    /// A download: `bom` (parts list CSV), `spice` (netlist) or `json` (design).
+    ///
+    /// # Errors
+    /// `format` for an unknown kind; the exporter's own errors.
+    pub fn export(&self, kind: &str) -> Result<String, InputError> {
+        match kind {
+            "bom" => Ok(export::bom::csv(
+                &self.board,
+                &export::bom::Tolerances {
+                    resistor_pct: self.state.rtol_pct,
+                    capacitor_pct: self.state.ctol_pct,
+                },
+            )),
+            "spice" => export::spice::netlist(&self.board, &export::spice::AcSweep::default()),
+            other => Err(InputError::new(
+                "format",
+                format!("'{other}' is not a download this page offers (bom, spice)"),
+            )),
+        }
+    }
+}
+
+/// The link a design JSON file was made from: its `link` field (a query string or a whole URL).
+///
+/// # Errors
+/// `json` when the text is not JSON or has no `link` string.
+pub fn link_of_json(text: &str) -> Result<String, InputError> {
+    let value: serde_json::Value = serde_json::from_str(text)
+        .map_err(|e| InputError::new("json", format!("the file is not JSON: {e}")))?;
+    match value.get("link").and_then(|v| v.as_str()) {
+        Some(link) => Ok(link::query_of(link).to_string()),
+        None => Err(InputError::new(
+            "json",
+            "the file has no \"link\" field; open a design saved by Rolloff",
+        )),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_demo_link_composes_and_names_every_stage() {
+        let ev = evaluate("v=1&resp=lp&family=butterworth&order=4&fc=1k");
+        assert!(ev.view.errors.is_empty(), "{:?}", ev.view.errors);
+        let model = ev.model.unwrap_or_else(|| panic!("no design"));
+        assert_eq!(model.view.stages.len(), 2);
+        assert!(model
+            .view
+            .summary
+            .starts_with("4th-order Butterworth low-pass"));
+        // A Butterworth low-pass is 3.01 dB down at its cutoff (definition of the family); the
+        // built board with E96/E12 parts lands within a few percent of 1 kHz.
+        assert!(
+            model.view.figures.contains("built −3 dB at 9")
+                || model.view.figures.contains("built −3 dB at 1"),
+            "{}",
+            model.view.figures
+        );
+        for kind in PlotKind::ALL {
+            let _ = model.figure(kind);
+        }
+    }
+
+    #[test]
+    fn a_bad_value_is_reported_on_its_key_and_the_rest_loads() {
+        let ev = evaluate("v=1&fc=abc&order=4&family=bessel&zzz=1");
+        assert!(
+            ev.view.errors.iter().any(|e| e.key == "fc"),
+            "{:?}",
+            ev.view.errors
+        );
+        assert!(ev.view.ignored.iter().any(|t| t.contains("zzz")));
+        let model = ev
+            .model
+            .unwrap_or_else(|| panic!("the defaults still design"));
+        assert!(model.view.summary.contains("Bessel"));
+    }
+
+    #[test]
+    fn phase_unwrapping_removes_wraps() {
+        let mut phase = vec![170.0, -170.0, -150.0, 179.0];
+        unwrap_deg(&mut phase);
+        assert_eq!(phase, vec![170.0, 190.0, 210.0, 179.0]);
+    }
+}

@@ -1,0 +1,690 @@
+/* Rolloff page glue. It reads the form, calls one export of the wasm core per action, sizes the
+ * canvases and shows status. Every computation and every pixel of the plots comes from Rust.
+ * Text that can come from a link is only ever set with textContent. */
+(function () {
+  'use strict';
+
+  var $ = function (selector, root) { return (root || document).querySelector(selector); };
+  var $$ = function (selector, root) { return Array.prototype.slice.call((root || document).querySelectorAll(selector)); };
+
+  var form = $('#req');
+  var engine = null;
+  var state = {
+    mainPlot: 'magnitude',
+    overrides: new Map(),   // part reference → text typed over it
+    committed: false,       // a design has been drawn at least once
+    stale: false,
+    frame: 0,
+    study: null,            // { cancelled, chunk }
+    studyTimer: 0,
+    cursor: null,           // keyboard crosshair position (CSS px) on the main plot
+  };
+  var dark = window.matchMedia ? window.matchMedia('(prefers-color-scheme: dark)') : null;
+  var isDark = function () { return !!(dark && dark.matches); };
+
+  // ---- defects: a panic in Rust or an exception here is shown on the page, never swallowed ----
+  function showDefect(text) {
+    var box = $('#defect');
+    box.hidden = false;
+    box.textContent = 'Rolloff hit an internal defect, please report it: ' + text;
+  }
+  window.addEventListener('error', function (event) { showDefect(String(event.message || event.error)); });
+  window.addEventListener('unhandledrejection', function (event) { showDefect(String(event.reason)); });
+
+  // ---- the form ⇄ the link ----
+  function fields() {
+    return Array.prototype.filter.call(form.elements, function (el) { return el.name; });
+  }
+  /* Defaults are read once from the markup, before any link is applied (a hidden input's
+   * defaultValue follows its value, so it cannot be asked later). */
+  var defaults = new Map();
+  function recordDefaults() {
+    fields().forEach(function (el) {
+      if (el.type === 'radio') return;
+      if (el.tagName === 'SELECT') {
+        var chosen = Array.prototype.find.call(el.options, function (o) { return o.defaultSelected; });
+        defaults.set(el, chosen ? chosen.value : (el.options[0] ? el.options[0].value : ''));
+      } else {
+        defaults.set(el, el.value);
+      }
+    });
+  }
+  function fieldDefault(el) {
+    return defaults.has(el) ? defaults.get(el) : '';
+  }
+  function radioValue(name) {
+    var checked = $$('input[name="' + name + '"]', form).find(function (r) { return r.checked; });
+    return checked ? checked.value : '';
+  }
+  function setRadio(name, value) {
+    var radios = $$('input[name="' + name + '"]', form);
+    var hit = radios.find(function (r) { return r.value === value; });
+    radios.forEach(function (r) { r.checked = (r === hit) ? true : r.defaultChecked && !hit; });
+    return !!hit;
+  }
+
+  /* The query string of the form: `v=1`, then every field that differs from its default, the
+   * order when it is fixed, and the parts typed over. */
+  function readForm() {
+    var params = new URLSearchParams();
+    params.set('v', '1');
+    var mode = radioValue('ordermode');
+    var seen = {};
+    fields().forEach(function (el) {
+      var name = el.name;
+      if (name === 'ordermode' || seen[name]) return;
+      if (el.type === 'radio') {
+        seen[name] = true;
+        var value = radioValue(name);
+        var def = ($$('input[name="' + name + '"]', form).find(function (r) { return r.defaultChecked; }) || {}).value;
+        if (value && value !== def) params.set(name, value);
+        return;
+      }
+      var text = el.value.trim();
+      if (name === 'order') {
+        if (mode === 'fixed' && text) params.set('order', text);
+        return;
+      }
+      if (text && text !== fieldDefault(el)) params.set(name, text);
+    });
+    if (state.overrides.size) {
+      var list = [];
+      state.overrides.forEach(function (text, ref) { list.push(ref + ':' + text); });
+      params.set('set', list.join(','));
+    }
+    return params.toString();
+  }
+
+  /* Puts a link's values into the form. Unknown keys and bad values are left to the core, which
+   * reports them; a select keeps its default when the link's value is not one of its options. */
+  function applyQuery(params) {
+    fields().forEach(function (el) {
+      if (el.type === 'radio') {
+        el.checked = el.defaultChecked;
+      } else {
+        el.value = fieldDefault(el);
+      }
+    });
+    state.overrides = new Map();
+    params.forEach(function (value, key) {
+      if (key === 'set') {
+        value.split(',').forEach(function (pair) {
+          var at = pair.indexOf(':');
+          if (at > 0) state.overrides.set(pair.slice(0, at).trim(), pair.slice(at + 1).trim());
+        });
+        return;
+      }
+      var els = fields().filter(function (el) { return el.name === key; });
+      if (!els.length) return;
+      if (els[0].type === 'radio') { setRadio(key, value); return; }
+      var el = els[0];
+      if (el.tagName === 'SELECT') {
+        if (Array.prototype.some.call(el.options, function (o) { return o.value === value; })) el.value = value;
+      } else {
+        el.value = value;
+      }
+    });
+    var hasLimits = params.has('fpass') || params.has('fstop') || params.has('fsample');
+    setRadio('ordermode', params.has('order') || !hasLimits ? 'fixed' : 'limits');
+    if (params.has('fsample') || params.has('adcbits') || params.has('fsignal')) $('#converter').open = true;
+    var title = params.get('title');
+    var titleBox = $('#design-title');
+    titleBox.hidden = !title;
+    titleBox.textContent = title || '';
+    syncVisibility();
+  }
+
+  function syncVisibility() {
+    var values = { resp: radioValue('resp'), ordermode: radioValue('ordermode'), family: form.elements.family.value };
+    $$('[data-show]', form).forEach(function (el) {
+      var rule = el.getAttribute('data-show').split('=');
+      el.hidden = values[rule[0]] !== rule[1];
+    });
+    $$('[data-text-resp]', form).forEach(function (el) {
+      var parts = el.getAttribute('data-text-resp').split(':');
+      var texts = parts[1].split('|');
+      el.textContent = values.resp === parts[0] ? texts[0] : texts[1];
+    });
+  }
+
+  // ---- field messages ----
+  function fieldBox(key) {
+    if (key.indexOf('set:') === 0) {
+      var row = $('tr[data-ref="' + CSS.escape(key.slice(4)) + '"]');
+      return row ? { box: row.querySelector('td.value'), input: row.querySelector('input') } : null;
+    }
+    var el = fields().find(function (e) { return e.name === key; });
+    if (!el) return null;
+    var box = el.closest('.field');
+    if (!box || box.hidden || box.closest('[hidden]')) {
+      if (key === 'order') box = $('#l-order').closest('.field');
+      else return null;
+    }
+    return { box: box, input: el };
+  }
+  function clearMessages() {
+    $$('.field.bad, td.value.bad').forEach(function (b) { b.classList.remove('bad'); });
+    $$('.field .msg, td.value .msg').forEach(function (m) { m.remove(); });
+    $$('[aria-invalid]').forEach(function (i) { i.removeAttribute('aria-invalid'); });
+  }
+  function showMessages(errors) {
+    clearMessages();
+    var loose = [];
+    errors.forEach(function (error, index) {
+      var target = fieldBox(error.key);
+      if (!target) { loose.push(error); return; }
+      target.box.classList.add('bad');
+      var msg = document.createElement('span');
+      msg.className = 'msg';
+      msg.id = 'msg-' + index;
+      msg.textContent = error.message;
+      target.box.appendChild(msg);
+      if (target.input) {
+        target.input.setAttribute('aria-invalid', 'true');
+        target.input.setAttribute('aria-describedby', msg.id);
+      }
+    });
+    return loose;
+  }
+
+  function showNotice(items) {
+    var notice = $('#notice');
+    var list = $('#notice-list');
+    list.textContent = '';
+    items.forEach(function (item) {
+      var li = document.createElement('li');
+      li.textContent = item;
+      list.appendChild(li);
+    });
+    notice.hidden = items.length === 0;
+  }
+
+  // ---- canvases ----
+  function dpr() { return Math.min(Math.max(window.devicePixelRatio || 1, 1), 3); }
+  function fitCanvas(canvas) {
+    var ratio = dpr();
+    var w = Math.max(1, Math.round(canvas.clientWidth * ratio));
+    var h = Math.max(1, Math.round(canvas.clientHeight * ratio));
+    if (canvas.width !== w) canvas.width = w;
+    if (canvas.height !== h) canvas.height = h;
+  }
+  function plotOf(canvas) {
+    return canvas.id === 'plot-main' ? state.mainPlot : canvas.getAttribute('data-plot');
+  }
+  function drawCanvas(canvas) {
+    if (!canvas.clientWidth) return;
+    fitCanvas(canvas);
+    engine.draw_plot(plotOf(canvas), canvas, isDark(), dpr(), canvas.hasAttribute('data-compact'));
+  }
+  function drawAll() {
+    $$('canvas[data-plot]').forEach(drawCanvas);
+    $$('.card canvas').forEach(function (canvas) {
+      fitCanvas(canvas);
+      engine.draw_schematic(Number(canvas.getAttribute('data-stage')), canvas, isDark(), dpr());
+    });
+  }
+
+  // ---- rendering the view model ----
+  function el(tag, className, text) {
+    var node = document.createElement(tag);
+    if (className) node.className = className;
+    if (text !== undefined && text !== null) node.textContent = String(text);
+    return node;
+  }
+
+  function renderStages(stages) {
+    var host = $('#stage-cards');
+    var cards = $$('.card', host);
+    stages.forEach(function (stage, i) {
+      var key = stage.key;
+      var card = cards[i];
+      if (!card || card.getAttribute('data-key') !== key) {
+        var fresh = buildCard(stage);
+        if (card) host.replaceChild(fresh, card); else host.appendChild(fresh);
+        card = fresh;
+      }
+      fillCard(card, stage);
+    });
+    cards.slice(stages.length).forEach(function (c) { c.remove(); });
+  }
+
+  function buildCard(stage) {
+    var card = el('article', 'card');
+    card.setAttribute('data-key', stage.key);
+    card.setAttribute('aria-label', 'stage ' + stage.number);
+    var h = el('h3');
+    h.appendChild(el('span', 'name'));
+    h.appendChild(el('span', 'kind'));
+    card.appendChild(h);
+    var canvas = el('canvas');
+    canvas.setAttribute('data-stage', String(stage.index));
+    canvas.setAttribute('role', 'img');
+    card.appendChild(canvas);
+
+    var table = el('table', 'targets');
+    var head = el('tr');
+    ['', 'target', 'on the board', 'error'].forEach(function (t) { var th = el('th', null, t); th.scope = 'col'; head.appendChild(th); });
+    table.appendChild(head);
+    stage.rows.forEach(function () {
+      var tr = el('tr');
+      var th = el('th'); th.scope = 'row'; tr.appendChild(th);
+      tr.appendChild(el('td', 'num')); tr.appendChild(el('td', 'num')); tr.appendChild(el('td', 'num'));
+      table.appendChild(tr);
+    });
+    card.appendChild(table);
+
+    var parts = el('table', 'parts');
+    var ph = el('tr');
+    ['part', 'value', 'designed', ''].forEach(function (t) { var th = el('th', null, t); th.scope = 'col'; ph.appendChild(th); });
+    parts.appendChild(ph);
+    stage.parts.forEach(function (part) {
+      var tr = el('tr');
+      tr.setAttribute('data-ref', part.reference);
+      var th = el('th', null, part.reference); th.scope = 'row'; th.title = part.role; tr.appendChild(th);
+      var td = el('td', 'value');
+      var input = el('input');
+      input.setAttribute('aria-label', part.reference + ' value (' + part.role + ')');
+      input.setAttribute('data-ref', part.reference);
+      input.setAttribute('spellcheck', 'false');
+      input.addEventListener('input', function () {
+        var text = input.value.trim();
+        if (text) state.overrides.set(part.reference, text); else state.overrides.delete(part.reference);
+        schedule();
+      });
+      td.appendChild(input);
+      tr.appendChild(td);
+      tr.appendChild(el('td', 'num ideal'));
+      var reset = el('button', null, 'reset');
+      reset.type = 'button';
+      reset.setAttribute('aria-label', 'use the designed value for ' + part.reference);
+      reset.addEventListener('click', function () { state.overrides.delete(part.reference); schedule(); });
+      var rc = el('td'); rc.appendChild(reset); tr.appendChild(rc);
+      parts.appendChild(tr);
+    });
+    card.appendChild(parts);
+
+    var sens = el('details', 'sens');
+    sens.appendChild(el('summary', null, 'sensitivities of f0 and Q'));
+    var st = el('table');
+    var sh = el('tr');
+    ['part', 'S f0', 'S Q'].forEach(function (t) { var th = el('th', null, t); th.scope = 'col'; sh.appendChild(th); });
+    st.appendChild(sh);
+    sens.appendChild(st);
+    card.appendChild(sens);
+    card.appendChild(el('p', 'needs'));
+    card.appendChild(el('ul', 'warnings'));
+    return card;
+  }
+
+  function fillCard(card, stage) {
+    $('.name', card).textContent = stage.title;
+    $('.kind', card).textContent = stage.circuit;
+    $('canvas', card).setAttribute('aria-label', 'schematic of stage ' + stage.number + ': ' + stage.circuit);
+    var rows = $$('table.targets tr', card).slice(1);
+    stage.rows.forEach(function (row, i) {
+      var cells = rows[i].children;
+      cells[0].textContent = row.what;
+      cells[1].textContent = row.target;
+      cells[2].textContent = row.achieved;
+      cells[3].textContent = row.error;
+      cells[3].className = 'num ' + (row.large ? 'err-big' : 'err-ok');
+    });
+    stage.parts.forEach(function (part) {
+      var tr = $('tr[data-ref="' + CSS.escape(part.reference) + '"]', card);
+      if (!tr) return;
+      var input = $('input', tr);
+      var typed = state.overrides.has(part.reference);
+      tr.classList.toggle('typed', typed);
+      if (document.activeElement !== input) input.value = typed ? state.overrides.get(part.reference) : part.value;
+      $('.ideal', tr).textContent = part.ideal;
+      $('button', tr).disabled = !typed;
+    });
+    var st = $('.sens table', card);
+    $$('tr', st).slice(1).forEach(function (r) { r.remove(); });
+    stage.sensitivities.forEach(function (s) {
+      var tr = el('tr');
+      tr.appendChild(el('th', null, s.reference));
+      tr.appendChild(el('td', 'num', s.f0));
+      tr.appendChild(el('td', 'num', s.q));
+      st.appendChild(tr);
+    });
+    $('.sens', card).hidden = stage.sensitivities.length === 0;
+    $('.needs', card).textContent = stage.needs;
+    var warn = $('ul.warnings', card);
+    warn.textContent = '';
+    stage.warnings.forEach(function (w) { warn.appendChild(el('li', null, w)); });
+  }
+
+  function renderCompare(view) {
+    var body = $('#compare tbody');
+    body.textContent = '';
+    view.comparison.forEach(function (row) {
+      var tr = el('tr', row.current ? 'current' : '');
+      tr.appendChild(el('td', null, row.family));
+      tr.appendChild(el('td', 'num', row.order));
+      tr.appendChild(el('td', null, row.note));
+      body.appendChild(tr);
+    });
+    $('#compare-hint').textContent = view.comparison_hint;
+  }
+
+  function renderWarnings(list) {
+    var ul = $('#warnings');
+    ul.textContent = '';
+    list.forEach(function (w) { ul.appendChild(el('li', null, w)); });
+  }
+
+  function setStale(stale) {
+    state.stale = stale;
+    document.body.classList.toggle('stale', stale);
+  }
+
+  function render(view, initial) {
+    var loose = showMessages(view.errors);
+    var notes = view.ignored.slice();
+    if (initial) view.errors.forEach(function (e) { notes.push(e.key + ': ' + e.message); });
+    else loose.forEach(function (e) { notes.push(e.key + ': ' + e.message); });
+    if (initial || notes.length || !$('#notice').hidden) showNotice(notes);
+    if (view.committed) {
+      $('#summary').textContent = view.summary;
+      $('#figures').textContent = view.figures;
+      renderWarnings(view.warnings);
+      renderStages(view.stages);
+      renderCompare(view);
+      drawAll();
+      state.committed = true;
+      setStale(false);
+    } else {
+      setStale(state.committed);
+      if (!state.committed) $('#summary').textContent = 'No design yet: ' + (view.errors[0] ? view.errors[0].message : 'check the fields');
+    }
+    return view.committed;
+  }
+
+  // ---- the live loop: every edit recomputes on the next frame ----
+  function update(initial) {
+    var query = readForm();
+    var url = window.location.pathname + '?' + query + window.location.hash;
+    if (window.location.search !== '?' + query) window.history.replaceState(null, '', url);
+    var view = engine.evaluate(query, !!initial);
+    var committed = render(view, initial);
+    if (committed) scheduleStudy();
+    return view;
+  }
+  function schedule() {
+    if (state.frame) return;
+    state.frame = window.requestAnimationFrame(function () {
+      state.frame = 0;
+      syncVisibility();
+      update(false);
+    });
+  }
+
+  /* Opens a link: loads what is valid; a field whose value was refused goes back to its default
+   * (the value the design used) and the refusal is listed in the notice. */
+  function openQuery(search) {
+    var params = new URLSearchParams(search);
+    applyQuery(params);
+    var view = engine.evaluate(readForm(), true);
+    var reset = false;
+    view.errors.forEach(function (error) {
+      var target = fields().filter(function (e) { return e.name === error.key; });
+      target.forEach(function (e) {
+        if (e.type === 'radio') e.checked = e.defaultChecked;
+        else e.value = fieldDefault(e);
+        reset = true;
+      });
+      if (error.key === 'set' || error.key.indexOf('set:') === 0) { state.overrides = new Map(); reset = true; }
+    });
+    syncVisibility();
+    var query = readForm();
+    window.history.replaceState(null, '', window.location.pathname + '?' + query + window.location.hash);
+    var final = reset ? engine.evaluate(query, true) : view;
+    var notes = final.ignored.slice();
+    view.errors.forEach(function (e) { notes.push(e.key + ': ' + e.message + ' (the default is used)'); });
+    render(final, false);
+    showNotice(notes);
+    if (final.committed) scheduleStudy();
+  }
+
+  // ---- crosshair readout ----
+  function readoutAt(figure, canvas, x, y) {
+    var ratio = dpr();
+    var line = $('.crosshair', figure);
+    var box = $('.readout', figure);
+    var r = engine.read_plot(plotOf(canvas), canvas.width, canvas.height, ratio, false, x * ratio, y * ratio);
+    if (!r) { line.style.display = 'none'; box.style.display = 'none'; return; }
+    line.style.display = 'block';
+    line.style.left = x + 'px';
+    box.textContent = '';
+    var head = el('div');
+    head.appendChild(el('b', null, r.x));
+    head.appendChild(document.createTextNode('  ·  ' + r.y));
+    box.appendChild(head);
+    r.entries.forEach(function (entry) { box.appendChild(el('div', null, entry.label + ': ' + entry.value)); });
+    box.style.display = 'block';
+    var w = box.offsetWidth;
+    var left = x + 14 + w > canvas.clientWidth ? x - 14 - w : x + 14;
+    box.style.left = Math.max(2, left) + 'px';
+    box.style.top = Math.max(2, Math.min(y + 10, canvas.clientHeight - box.offsetHeight - 2)) + 'px';
+  }
+  function hideReadout(figure) {
+    $('.crosshair', figure).style.display = 'none';
+    $('.readout', figure).style.display = 'none';
+  }
+  function wireReadout(figure) {
+    var canvas = $('canvas', figure);
+    canvas.addEventListener('pointermove', function (event) {
+      var rect = canvas.getBoundingClientRect();
+      readoutAt(figure, canvas, event.clientX - rect.left, event.clientY - rect.top);
+    });
+    canvas.addEventListener('pointerleave', function () { hideReadout(figure); });
+    canvas.tabIndex = 0;
+    canvas.addEventListener('keydown', function (event) {
+      var step = event.shiftKey ? 20 : 4;
+      var w = canvas.clientWidth;
+      var h = canvas.clientHeight;
+      if (!state.cursor || state.cursor.canvas !== canvas) state.cursor = { canvas: canvas, x: w / 2, y: h / 2 };
+      if (event.key === 'ArrowLeft') state.cursor.x = Math.max(0, state.cursor.x - step);
+      else if (event.key === 'ArrowRight') state.cursor.x = Math.min(w, state.cursor.x + step);
+      else if (event.key === 'ArrowUp') state.cursor.y = Math.max(0, state.cursor.y - step);
+      else if (event.key === 'ArrowDown') state.cursor.y = Math.min(h, state.cursor.y + step);
+      else if (event.key === 'Escape') { hideReadout(figure); return; }
+      else return;
+      event.preventDefault();
+      readoutAt(figure, canvas, state.cursor.x, state.cursor.y);
+    });
+    canvas.addEventListener('blur', function () { hideReadout(figure); });
+  }
+
+  function chooseMain(kind) {
+    state.mainPlot = kind;
+    $$('.thumb').forEach(function (b) { b.setAttribute('aria-pressed', String(b.getAttribute('data-plot') === kind)); });
+    var main = $('#plot-main');
+    var label = $('.thumb[data-plot="' + kind + '"] span');
+    main.setAttribute('aria-label', (label ? label.textContent : kind) + ' plot');
+    hideReadout(main.closest('figure'));
+    if (state.committed) drawCanvas(main);
+  }
+
+  // ---- tolerance study, in chunks so the page stays responsive ----
+  function scheduleStudy() {
+    window.clearTimeout(state.studyTimer);
+    cancelStudy(true);
+    if (!$('#study-auto').checked) return;
+    state.studyTimer = window.setTimeout(runStudy, 350);
+  }
+  function cancelStudy(quiet) {
+    if (state.study) {
+      state.study.cancelled = true;
+      engine.study_cancel();
+      state.study = null;
+      if (!quiet) $('#study-status').textContent = 'cancelled';
+    }
+    $('#study-cancel').disabled = true;
+    $('#study-run').disabled = false;
+  }
+  function runStudy() {
+    cancelStudy(true);
+    if (state.stale || !state.committed) return;
+    var started = engine.study_start();
+    if (!started.ok) { $('#study-status').textContent = started.message; return; }
+    var job = { cancelled: false, chunk: 64, t0: performance.now() };
+    state.study = job;
+    $('#study-cancel').disabled = false;
+    $('#study-run').disabled = true;
+    var bar = $('#study-progress');
+    bar.max = started.total;
+    bar.value = 0;
+    var channel = new MessageChannel();
+    channel.port1.onmessage = pump;
+    function pump() {
+      if (job.cancelled) return;
+      var t = performance.now();
+      var p = engine.study_step(job.chunk);
+      var spent = performance.now() - t;
+      // Aim each chunk at about 8 ms so that input and painting get the rest of every frame.
+      if (spent > 0.5) job.chunk = Math.max(8, Math.min(20000, Math.round(job.chunk * 8 / spent)));
+      else job.chunk = Math.min(20000, job.chunk * 2);
+      bar.value = p.done;
+      $('#study-status').textContent = p.status;
+      if (p.finished) {
+        state.study = null;
+        $('#study-cancel').disabled = true;
+        $('#study-run').disabled = false;
+        $('#study-status').textContent = p.status;
+        if (p.summary) $('#summary').textContent = p.summary;
+        document.body.setAttribute('data-study-ms', String(Math.round(performance.now() - job.t0)));
+        drawCanvas($('#plot-main'));
+        $$('canvas[data-plot^="hist-"], .thumb canvas[data-plot="magnitude"]').forEach(drawCanvas);
+        return;
+      }
+      window.setTimeout(function () { channel.port2.postMessage(0); }, 0);
+    }
+    channel.port2.postMessage(0);
+  }
+
+  // ---- outputs ----
+  function fileStem() {
+    var title = form.elements.title.value.trim();
+    var stem = (title || 'rolloff-design').toLowerCase().replace(/[^a-z0-9]+/g, '-').replace(/^-|-$/g, '');
+    return stem || 'rolloff-design';
+  }
+  function download(name, blob) {
+    var a = document.createElement('a');
+    var url = URL.createObjectURL(blob);
+    a.href = url;
+    a.download = name;
+    document.body.appendChild(a);
+    a.click();
+    a.remove();
+    window.setTimeout(function () { URL.revokeObjectURL(url); }, 1000);
+  }
+  function status(text) {
+    $('#study-status').textContent = text;
+  }
+  var exportTypes = {
+    bom: ['.csv', 'text/csv'],
+    spice: ['.cir', 'text/plain'],
+    json: ['.json', 'application/json'],
+  };
+  function exportText(kind) {
+    var result = engine.export_text(kind);
+    if (!result.ok) { showNotice([result.message]); return; }
+    var type = exportTypes[kind];
+    download(fileStem() + type[0], new Blob([result.text], { type: type[1] }));
+    $('#save-menu').open = false;
+  }
+
+  function wire() {
+    form.addEventListener('input', schedule);
+    form.addEventListener('change', schedule);
+    form.addEventListener('submit', function (e) { e.preventDefault(); });
+    $('#example').addEventListener('change', function (event) {
+      var value = event.target.value;
+      if (!value) return;
+      openQuery(value);
+      event.target.value = '';
+    });
+    $$('.thumb').forEach(function (b) {
+      b.addEventListener('click', function () { chooseMain(b.getAttribute('data-plot')); });
+    });
+    $$('figure.plot').forEach(wireReadout);
+    $('#copy-link').addEventListener('click', function () {
+      var href = window.location.href;
+      var done = function () { status('link copied'); };
+      if (navigator.clipboard && navigator.clipboard.writeText) {
+        navigator.clipboard.writeText(href).then(done, function () { status('copy failed: select the address bar'); });
+      } else {
+        status('copy unavailable: select the address bar');
+      }
+    });
+    $$('[data-export]').forEach(function (b) {
+      b.addEventListener('click', function () { exportText(b.getAttribute('data-export')); });
+    });
+    $('#save-png').addEventListener('click', function () {
+      var canvas = $('#plot-main');
+      canvas.toBlob(function (blob) { if (blob) download(fileStem() + '-' + state.mainPlot + '.png', blob); }, 'image/png');
+      $('#save-menu').open = false;
+    });
+    $('#import-json').addEventListener('change', function (event) {
+      var file = event.target.files && event.target.files[0];
+      if (!file) return;
+      file.text().then(function (text) {
+        var result = engine.import_json(text);
+        if (!result.ok) { showNotice(['The file was not opened: ' + result.message]); return; }
+        openQuery(result.query);
+      });
+      event.target.value = '';
+    });
+    $('#print').addEventListener('click', function () { window.print(); });
+    window.addEventListener('beforeprint', preparePrint);
+    $('#notice-close').addEventListener('click', function () { $('#notice').hidden = true; });
+    $('#study-run').addEventListener('click', runStudy);
+    $('#study-cancel').addEventListener('click', function () { cancelStudy(false); });
+    $('#study-auto').addEventListener('change', function () { if ($('#study-auto').checked) scheduleStudy(); });
+    if (dark && dark.addEventListener) dark.addEventListener('change', function () { if (state.committed) drawAll(); });
+    if (window.ResizeObserver) {
+      var pending = 0;
+      new ResizeObserver(function () {
+        if (pending || !state.committed) return;
+        pending = window.requestAnimationFrame(function () { pending = 0; drawAll(); });
+      }).observe($('.work'));
+    }
+  }
+
+  /* The printed report shows every plot at a readable size, not only the one in the large slot. */
+  function preparePrint() {
+    var host = $('.print-plots');
+    if (!host) {
+      host = el('div', 'print-plots');
+      $('#plots').appendChild(host);
+    }
+    host.textContent = '';
+    $$('.thumb').forEach(function (b) {
+      var kind = b.getAttribute('data-plot');
+      if (kind === state.mainPlot) return;
+      var fig = el('figure', 'plot');
+      var canvas = el('canvas');
+      canvas.width = 1040;
+      canvas.height = 440;
+      fig.appendChild(canvas);
+      host.appendChild(fig);
+      engine.draw_plot(kind, canvas, false, 2, false);
+    });
+  }
+
+  // ---- start ----
+  function start(core) {
+    engine = core;
+    recordDefaults();
+    wire();
+    openQuery(window.location.search);
+    document.body.setAttribute('data-ready', '1');
+  }
+  if (typeof rolloffReady === 'undefined') {
+    showDefect('the wasm core (rolloff-wasm.js) is missing: run ./build.sh');
+    return;
+  }
+  rolloffReady.then(start, function (error) { showDefect('the wasm core failed to start: ' + error); });
+})();
