@@ -1,0 +1,208 @@
+//! The command line as a script uses it: exit status, the stable output shapes of the brief
+//! (JSON fields, sweep CSV header, spread JSON), and the sweep checked against the independent
+//! section-cascade response.
+
+use std::process::Command;
+
+fn rolloff(args: &[&str]) -> (i32, String, String) {
+    let output = Command::new(env!("CARGO_BIN_EXE_rolloff"))
+        .args(args)
+        .output()
+        .expect("the rolloff binary runs");
+    (
+        output.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&output.stdout).into_owned(),
+        String::from_utf8_lossy(&output.stderr).into_owned(),
+    )
+}
+
+fn json(args: &[&str]) -> serde_json::Value {
+    let (code, out, err) = rolloff(args);
+    assert_eq!(code, 0, "{args:?}: {err}");
+    serde_json::from_str(&out).unwrap_or_else(|e| panic!("{args:?}: not JSON ({e}): {out}"))
+}
+
+const DEMO: &str =
+    "?v=1&resp=lp&family=chebyshev&ripple=0.5&order=6&fc=2k&rser=e96&cser=e12&topo=mfb";
+
+#[test]
+fn design_json_has_the_fields_of_the_brief() {
+    let v = json(&["design", DEMO, "--format", "json"]);
+    assert_eq!(v["order"], 6);
+    assert_eq!(v["family"], "chebyshev");
+    assert_eq!(v["resp"], "lp");
+    let stages = v["stages"].as_array().expect("stages");
+    assert_eq!(stages.len(), 3, "6th order = three second-order stages");
+    let mut refs = std::collections::BTreeSet::new();
+    for stage in stages {
+        assert_eq!(stage["order"], 2);
+        assert!(stage["f0_hz"].as_f64().is_some_and(|f| f > 0.0));
+        assert!(stage["q"].as_f64().is_some_and(|q| q > 0.5));
+        assert!(stage["gain"].as_f64().is_some());
+        assert!(stage["topology"].is_string());
+        assert!(stage["achieved"]["f0_hz"].as_f64().is_some());
+        assert!(stage["achieved"]["q"].as_f64().is_some());
+        for part in stage["parts"].as_array().expect("parts") {
+            assert!(part["ref"].is_string());
+            assert!(part.get("value").is_some() && part.get("ideal").is_some());
+        }
+    }
+    for part in v["parts"].as_array().expect("top-level parts") {
+        let r = part["ref"].as_str().expect("ref").to_string();
+        assert!(refs.insert(r.clone()), "{r} appears twice on the board");
+    }
+    for prefix in ["R1", "C1", "U1"] {
+        assert!(refs.contains(prefix), "{prefix} missing from {refs:?}");
+    }
+    assert!(v["warnings"].is_array());
+}
+
+#[test]
+fn first_order_stage_has_null_q() {
+    let v = json(&["design", "?v=1&order=3&fc=1k", "--format", "json"]);
+    let stages = v["stages"].as_array().expect("stages");
+    assert_eq!(
+        stages[0]["order"], 1,
+        "ascending Q puts the first-order section first"
+    );
+    assert!(stages[0]["q"].is_null());
+    assert_eq!(stages[1]["order"], 2);
+}
+
+#[test]
+fn ideal_sweep_equals_the_section_cascade() {
+    // Oracle: the nodal analysis of the board with exact parts and an ideal op amp must equal the
+    // product of the section transfer functions (an independent closed-form evaluation).
+    let link = "?v=1&resp=lp&family=butterworth&order=5&fc=3k&gain=6";
+    let (code, out, err) = rolloff(&[
+        "sweep", link, "--from", "10", "--to", "1M", "--points", "61", "--ideal",
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let mut lines = out.lines();
+    assert_eq!(lines.next(), Some("freq_hz,gain_db,phase_deg,delay_s"));
+    let state = rolloff::link::parse(link).state;
+    let synthesis =
+        rolloff::design::synthesize(&state.requirement, &state.stage_order).expect("design");
+    let mut n = 0;
+    for line in lines {
+        let cols: Vec<f64> = line
+            .split(',')
+            .map(|c| c.parse().expect("number"))
+            .collect();
+        let point = rolloff::response::point(&synthesis.sections, cols[0]);
+        assert!(
+            (cols[1] - point.gain_db).abs() < 1e-6,
+            "gain at {} Hz: {} vs {}",
+            cols[0],
+            cols[1],
+            point.gain_db
+        );
+        assert!(
+            (cols[2] - point.phase_deg).abs() < 1e-4,
+            "phase at {} Hz: {} vs {}",
+            cols[0],
+            cols[2],
+            point.phase_deg
+        );
+        assert!(
+            ((cols[3] - point.delay_s) / point.delay_s).abs() < 1e-4,
+            "delay at {} Hz",
+            cols[0]
+        );
+        n += 1;
+    }
+    assert_eq!(n, 61);
+}
+
+#[test]
+fn built_sweep_differs_from_ideal_where_the_op_amp_runs_out() {
+    // Common practice: with a 1 MHz op amp a Sallen-Key low-pass at 20 kHz no longer follows the
+    // ideal response far above f0 (its stopband bottoms out).
+    let link = "?v=1&order=2&fc=20k&gbw=1M";
+    let read = |ideal: bool| -> Vec<f64> {
+        let mut args = vec!["sweep", link, "--from", "1M", "--to", "5M", "--points", "3"];
+        if ideal {
+            args.push("--ideal");
+        }
+        let (code, out, err) = rolloff(&args);
+        assert_eq!(code, 0, "{err}");
+        out.lines()
+            .skip(1)
+            .map(|l| l.split(',').nth(1).unwrap_or("0").parse().unwrap_or(0.0))
+            .collect()
+    };
+    let (ideal, built) = (read(true), read(false));
+    assert!(
+        built[2] > ideal[2] + 10.0,
+        "built {built:?} vs ideal {ideal:?}"
+    );
+}
+
+#[test]
+fn bad_input_exits_2_with_one_line_naming_the_key() {
+    for (args, key) in [
+        (vec!["design", "?v=1&fc=abc"], "fc"),
+        (vec!["design", "?v=1&order=25"], "order"),
+        (vec!["design", "?v=1&fpass=2k&fstop=1k&astop=40"], "fstop"),
+        (
+            vec!["design", "?v=1&fpass=1k&fstop=2k&apass=3&astop=2"],
+            "astop",
+        ),
+        (vec!["design", "?v=1&set=R1:xyz"], "set"),
+        (vec!["design", "?v=1", "--format", "pdf"], "--format"),
+        (vec!["sweep", "?v=1", "--points", "1"], "--points"),
+        (vec!["spread", "?v=1", "--runs", "0"], "--runs"),
+        (vec!["design", "?v=2"], "v"),
+    ] {
+        let (code, _out, err) = rolloff(&args);
+        assert_eq!(code, 2, "{args:?}: {err}");
+        assert_eq!(err.lines().count(), 1, "{args:?}: {err}");
+        assert!(
+            err.contains(key),
+            "{args:?}: message should name {key}: {err}"
+        );
+    }
+}
+
+#[test]
+fn unknown_keys_warn_and_still_design() {
+    let (code, out, err) = rolloff(&["design", "?v=1&fc=1k&colour=teal"]);
+    assert_eq!(code, 0);
+    assert!(!out.is_empty());
+    assert!(err.contains("colour") && err.contains("warning"), "{err}");
+}
+
+#[test]
+fn spread_json_has_runs_seed_and_yield() {
+    let with_mask = json(&[
+        "spread",
+        "?v=1&fpass=1k&apass=1&fstop=4k&astop=30",
+        "--runs",
+        "200",
+        "--seed",
+        "7",
+        "--format",
+        "json",
+    ]);
+    assert_eq!(with_mask["runs"], 200);
+    assert_eq!(with_mask["seed"], 7);
+    let y = with_mask["yield"]
+        .as_f64()
+        .expect("yield is a number with a mask");
+    assert!((0.0..=1.0).contains(&y));
+    let without = json(&["spread", "?v=1&fc=1k", "--runs", "50", "--format", "json"]);
+    assert!(without["yield"].is_null(), "no mask → yield null");
+}
+
+#[test]
+fn a_whole_url_works_like_its_query() {
+    let a = rolloff(&[
+        "design",
+        "https://rolloff.invalid/www/index.html?v=1&fc=2k2&order=3#x",
+        "--format",
+        "json",
+    ]);
+    let b = rolloff(&["design", "v=1&fc=2k2&order=3", "--format", "json"]);
+    assert_eq!(a.0, 0);
+    assert_eq!(a.1, b.1);
+}
