@@ -152,7 +152,7 @@ fn check_choices(choices: &BuildChoices) -> Result<(), InputError> {
         }
     }
     let op = &choices.op_amp;
-    if !(op.gbw_hz > 0.0) {
+    if op.gbw_hz.is_nan() || op.gbw_hz <= 0.0 {
         return Err(InputError::new(
             "gbw",
             format!(
@@ -161,7 +161,7 @@ fn check_choices(choices: &BuildChoices) -> Result<(), InputError> {
             ),
         ));
     }
-    if !(op.a0_db > 0.0) {
+    if op.a0_db.is_nan() || op.a0_db <= 0.0 {
         return Err(InputError::new(
             "a0",
             format!(

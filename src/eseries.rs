@@ -17,11 +17,17 @@ use serde::Serialize;
 /// A preferred-number series, or exact values.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 pub enum Series {
+    /// 6 values per decade (±20 % parts), link value `e6`.
     E6,
+    /// 12 values per decade (±10 %), `e12`.
     E12,
+    /// 24 values per decade (±5 %), `e24`.
     E24,
+    /// 48 values per decade (±2 %), `e48`.
     E48,
+    /// 96 values per decade (±1 %), `e96`.
     E96,
+    /// 192 values per decade (±0.5 % and finer), `e192`.
     E192,
     /// No rounding: the synthesized value is used as is.
     Exact,

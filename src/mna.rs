@@ -403,7 +403,7 @@ pub fn solve_dense(
                     (k, -1.0),
                     |best, cur| if cur.1 > best.1 { cur } else { best },
                 );
-        if !(pivot_norm > 1e-14) {
+        if pivot_norm.is_nan() || pivot_norm <= 1e-14 {
             return Err(Singular { column: k });
         }
         if pivot_row != k {

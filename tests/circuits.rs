@@ -20,7 +20,7 @@ use rolloff::netlist::{Part, PartKind, StageNetlist};
 use rolloff::opamp::OpAmp;
 use rolloff::sections::{Section, SectionKind};
 use rolloff::topology::{Circuit, Topology};
-use std::f64::consts::PI;
+use std::f64::consts::{FRAC_1_SQRT_2, PI};
 
 type Textbook = fn(&StageNetlist, Complex64) -> Complex64;
 
@@ -113,7 +113,7 @@ fn cases() -> Vec<(Circuit, Section, Topology, Textbook)> {
     vec![
         (
             Circuit::SallenKeyLowPass,
-            section(LowPass, 1e3, Some(0.7071), 1.0),
+            section(LowPass, 1e3, Some(FRAC_1_SQRT_2), 1.0),
             SallenKey,
             sk_lp as Textbook,
         ),
@@ -125,7 +125,7 @@ fn cases() -> Vec<(Circuit, Section, Topology, Textbook)> {
         ),
         (
             Circuit::SallenKeyHighPass,
-            section(HighPass, 1e3, Some(0.7071), 1.0),
+            section(HighPass, 1e3, Some(FRAC_1_SQRT_2), 1.0),
             SallenKey,
             sk_hp,
         ),
@@ -137,7 +137,7 @@ fn cases() -> Vec<(Circuit, Section, Topology, Textbook)> {
         ),
         (
             Circuit::MfbLowPass,
-            section(LowPass, 1e3, Some(0.7071), 2.0),
+            section(LowPass, 1e3, Some(FRAC_1_SQRT_2), 2.0),
             MultipleFeedback,
             mfb_lp,
         ),
@@ -490,7 +490,7 @@ fn sallen_key_lowpass_stopband_bottoms_out_and_rises_while_mfb_keeps_falling() {
     // whose impedance rises with frequency, so its stopband has a floor and then rises; the MFB
     // low-pass, whose output node is fed only through the op amp and a grounded capacitor,
     // keeps falling. Generic op amp: 1 MHz GBW, 100 dB, 50 Ω.
-    let sec = section(SectionKind::LowPass, 1e3, Some(0.7071), 1.0);
+    let sec = section(SectionKind::LowPass, 1e3, Some(FRAC_1_SQRT_2), 1.0);
     let freqs = log_sweep(10.0, 10e6, 301);
     let sweep = |topology: Topology| -> Vec<f64> {
         let board = one_stage(sec, topology, OpAmp::GENERIC);
@@ -531,7 +531,7 @@ fn sallen_key_input_impedance_is_far_higher_than_mfb_at_low_frequency() {
     // Common practice: at low frequency the Sallen-Key low-pass input sees R1 + R2 into the
     // op amp's + input and open capacitors (very high impedance), the MFB input sees only R1 to a
     // virtual ground. Physics: MFB |Zin| → R1 as f → 0 (here within 0.1 % at 0.1 Hz).
-    let sec = section(SectionKind::LowPass, 1e3, Some(0.7071), 1.0);
+    let sec = section(SectionKind::LowPass, 1e3, Some(FRAC_1_SQRT_2), 1.0);
     let sk = one_stage(sec, Topology::SallenKey, OpAmp::GENERIC);
     let mfb = one_stage(sec, Topology::MultipleFeedback, OpAmp::GENERIC);
     let z_sk = mna::input_impedance(&sk.stages[0].netlist, &sk.op_amp, jw(10.0)).unwrap();
@@ -789,7 +789,7 @@ fn parts_are_numbered_over_the_board_in_signal_order() {
 fn an_override_replaces_a_value_and_everything_re_analyses() {
     // Physics: f0 = 1/(2π·√(R1R2C1C2)) of the Sallen-Key low-pass; replacing C2 by 12 nF moves
     // the achieved f0 accordingly, and the nodal analysis sees the new part.
-    let sec = section(SectionKind::LowPass, 1e3, Some(0.7071), 1.0);
+    let sec = section(SectionKind::LowPass, 1e3, Some(FRAC_1_SQRT_2), 1.0);
     let plain = one_stage(sec, Topology::SallenKey, OpAmp::ideal());
     let c2_ref = plain.stages[0]
         .netlist
@@ -1007,7 +1007,7 @@ fn defaults_follow_common_practice_and_warn_when_broken() {
     // Common practice: resistors 1 kΩ–100 kΩ, capacitors ≥ 100 pF. At 1 kHz the defaults hold
     // with no warning; at 2 MHz they cannot both hold and a warning says why.
     let ok = one_stage(
-        section(SectionKind::LowPass, 1e3, Some(0.7071), 1.0),
+        section(SectionKind::LowPass, 1e3, Some(FRAC_1_SQRT_2), 1.0),
         Topology::SallenKey,
         OpAmp::GENERIC,
     );
@@ -1017,7 +1017,7 @@ fn defaults_follow_common_practice_and_warn_when_broken() {
         ok.stages[0].warnings
     );
     let high = one_stage(
-        section(SectionKind::LowPass, 2e6, Some(0.7071), 1.0),
+        section(SectionKind::LowPass, 2e6, Some(FRAC_1_SQRT_2), 1.0),
         Topology::SallenKey,
         OpAmp::GENERIC,
     );
@@ -1035,7 +1035,7 @@ fn defaults_follow_common_practice_and_warn_when_broken() {
         ..BuildChoices::default()
     };
     let b = Board::build(
-        &[section(SectionKind::LowPass, 1e3, Some(0.7071), 1.0)],
+        &[section(SectionKind::LowPass, 1e3, Some(FRAC_1_SQRT_2), 1.0)],
         &ch,
     )
     .unwrap();
@@ -1155,7 +1155,7 @@ fn a_grid_of_requests_gives_a_sound_board_or_a_named_error() {
     // buildable range, with f0 within 3 % and Q within 6 % of target (E96/E12, search).
     let mut n_boards = 0;
     for &f0 in &[1.0, 150.0, 10e3, 200e3] {
-        for &q in &[0.5, 0.7071, 2.0, 12.0] {
+        for &q in &[0.5, FRAC_1_SQRT_2, 2.0, 12.0] {
             for &gain in &[1.0, 1.7, 20.0] {
                 for kind in [
                     SectionKind::LowPass,

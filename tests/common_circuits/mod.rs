@@ -7,7 +7,7 @@ use rolloff::netlist::StageNetlist;
 use rolloff::opamp::OpAmp;
 use rolloff::sections::{Section, SectionKind};
 use rolloff::topology::Topology;
-use std::f64::consts::PI;
+use std::f64::consts::{FRAC_1_SQRT_2, PI};
 
 /// A section with the given kind, f0, Q (None for first order) and gain.
 pub fn section(kind: SectionKind, f0_hz: f64, q: Option<f64>, gain: f64) -> Section {
@@ -78,7 +78,7 @@ pub fn circuit_cases() -> Vec<(&'static str, Section, Topology)> {
     vec![
         (
             "sk-lp-unity",
-            section(LowPass, 1e3, Some(0.7071), 1.0),
+            section(LowPass, 1e3, Some(FRAC_1_SQRT_2), 1.0),
             SallenKey,
         ),
         (
@@ -88,7 +88,7 @@ pub fn circuit_cases() -> Vec<(&'static str, Section, Topology)> {
         ),
         (
             "sk-hp-unity",
-            section(HighPass, 1e3, Some(0.7071), 1.0),
+            section(HighPass, 1e3, Some(FRAC_1_SQRT_2), 1.0),
             SallenKey,
         ),
         (
@@ -98,7 +98,7 @@ pub fn circuit_cases() -> Vec<(&'static str, Section, Topology)> {
         ),
         (
             "mfb-lp",
-            section(LowPass, 1e3, Some(0.7071), 2.0),
+            section(LowPass, 1e3, Some(FRAC_1_SQRT_2), 2.0),
             MultipleFeedback,
         ),
         (
