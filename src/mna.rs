@@ -12,7 +12,7 @@
 //! (1/A(s))·V(x) − V+ + V− = 0, so the ideal op amp (1/A = 0, a nullor) is the exact limit rather
 //! than a large number.
 
-use crate::board::Board;
+use crate::board::{Board, BoardNetlist};
 use crate::netlist::{Node, PartKind, StageNetlist};
 use crate::opamp::OpAmp;
 use num_complex::Complex64;
@@ -584,13 +584,30 @@ pub fn board_response(
     board: &Board,
     s: Complex64,
 ) -> Result<(Complex64, Vec<Complex64>), MnaError> {
-    let merged = board.netlist();
+    netlist_response(&board.netlist(), &board.op_amp, s)
+}
+
+/// [`board_response`] on an already merged board netlist ([`Board::netlist`]), for sweeps that
+/// evaluate many frequencies of one board without merging it again each time.
+///
+/// # Errors
+/// As [`transfer`].
+pub fn netlist_response(
+    merged: &BoardNetlist,
+    op: &OpAmp,
+    s: Complex64,
+) -> Result<(Complex64, Vec<Complex64>), MnaError> {
     let v = node_voltages(
         &merged.netlist,
-        &board.op_amp,
+        op,
         s,
         &Drive::Input(Complex64::new(1.0, 0.0)),
     )?;
-    let outputs: Vec<Complex64> = merged.stage_outputs.iter().map(|&i| v[i]).collect();
-    Ok((v[merged.netlist.output], outputs))
+    let outputs: Vec<Complex64> = merged
+        .stage_outputs
+        .iter()
+        .map(|&i| v.get(i).copied().unwrap_or_default())
+        .collect();
+    let h = v.get(merged.netlist.output).copied().unwrap_or_default();
+    Ok((h, outputs))
 }
