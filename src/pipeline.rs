@@ -120,8 +120,9 @@ fn auto_span(synthesis: &Synthesis, mask: Option<&Mask>) -> (f64, f64) {
     }
     let lo = key.iter().cloned().fold(f64::INFINITY, f64::min);
     let hi = key.iter().cloned().fold(0.0, f64::max);
-    let lo = 10f64.powf((lo / 100.0).log10().floor());
-    let hi = 10f64.powf((hi * 100.0).log10().ceil());
+    // A small allowance keeps 999.9999… Hz on the decade of 1 kHz.
+    let lo = 10f64.powf(((lo / 100.0).log10() + 1e-9).floor());
+    let hi = 10f64.powf(((hi * 100.0).log10() - 1e-9).ceil());
     (lo.max(1e-4), hi.min(1e11))
 }
 
