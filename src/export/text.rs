@@ -73,7 +73,6 @@ pub fn design_text(design: &Design) -> String {
         let _ = writeln!(out, "{title}");
     }
     let _ = writeln!(out, "{}", summary_line(design));
-    let _ = writeln!(out);
     match (&req.mask, req.order) {
         (Some(m), choice) => {
             let how = if choice == OrderChoice::FromMask {
@@ -83,10 +82,10 @@ pub fn design_text(design: &Design) -> String {
             };
             let _ = writeln!(
                 out,
-                "Limits ({how}): at most {} dB loss up to {}, at least {} dB from {}",
-                m.apass_db,
+                "\nLimits ({how}): at most {} dB loss up to {}, at least {} dB from {}",
+                format_si(m.apass_db, 5),
                 edge_text(m.pass),
-                m.astop_db,
+                format_si(m.astop_db, 5),
                 edge_text(m.stop)
             );
         }
