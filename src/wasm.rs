@@ -169,12 +169,14 @@ pub fn draw_schematic(
             .as_ref()
             .ok_or_else(|| JsValue::from_str("no design to draw yet"))?;
         let netlist = &model
+            .design
             .board
             .stages
             .get(stage)
             .ok_or_else(|| JsValue::from_str(&format!("there is no stage {}", stage + 1)))?
             .netlist;
         let typed: Vec<String> = model
+            .design
             .state
             .overrides
             .iter()

@@ -13,18 +13,16 @@ use std::f64::consts::PI;
 
 use super::figure::Figure;
 use super::figures::{self, Curve, Histogram, PlotData, PlotKind, Sweep};
-use crate::analysis::montecarlo::{
-    CutoffDefinition, MonteCarlo, MonteCarloSettings, PartDistribution, PartTolerance, Summary,
-    Tolerances,
-};
-use crate::board::{Board, BuildChoices, ImpedanceLevel};
-use crate::design::{self, Synthesis};
+use crate::analysis::montecarlo::{MonteCarlo, Summary};
+use crate::board::Board;
+use crate::design::Synthesis;
 use crate::error::InputError;
 use crate::export;
-use crate::link::{self, Distribution, LinkReport, LinkState};
+use crate::link::{self, LinkReport, LinkState};
 use crate::mna;
 use crate::netlist::PartKind;
 use crate::order;
+use crate::pipeline::{self, Design};
 use crate::schematic;
 use crate::spec::{Edge, Family, OrderChoice, ResponseClass};
 use crate::topology::Topology;
@@ -34,6 +32,10 @@ use super::axis::engineering_unit;
 
 /// Frequencies of the plots and of the tolerance envelope.
 pub const N_POINTS: usize = 241;
+
+/// The percentiles of the tolerance band drawn on the gain plot ([`pipeline::study_settings`]
+/// asks the study for these).
+pub const STUDY_BAND: (f64, f64) = (5.0, 95.0);
 
 /// An error shown beside its field.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -157,12 +159,9 @@ pub struct View {
 /// A design that was composed successfully, with everything the plots and exports need.
 #[derive(Debug, Clone)]
 pub struct PageModel {
-    /// The link state the design came from.
-    pub state: LinkState,
-    /// The synthesized response.
-    pub synthesis: Synthesis,
-    /// The board as built.
-    pub board: Board,
+    /// The composed design (link state, synthesis, board, span, family comparison), as the
+    /// command line composes it.
+    pub design: Design,
     /// The plot curves.
     pub data: PlotData,
     /// The text view.
@@ -240,58 +239,6 @@ fn ignored_of(report: &LinkReport) -> Vec<String> {
         .collect();
     out.extend(report.notes.iter().cloned());
     out
-}
-
-/// The build choices of a link state (the freedoms of [`Board::build`]).
-pub fn build_choices(state: &LinkState) -> BuildChoices {
-    BuildChoices {
-        topology: state.topology,
-        r_series: state.r_series,
-        c_series: state.c_series,
-        impedance: match state.r_level_ohm {
-            Some(r) => ImpedanceLevel::Ohms(r),
-            None => ImpedanceLevel::Auto,
-        },
-        c_ratio: state.c_ratio,
-        r_ratio: state.r_ratio,
-        rounding: state.rounding,
-        overrides: state.overrides.clone(),
-        op_amp: state.op_amp,
-    }
-}
-
-/// The frequency span of the plots: the link's `span`, or two decades either side of the band
-/// that takes in the cutoff and every mask edge.
-pub fn plot_span(state: &LinkState, synthesis: &Synthesis) -> (f64, f64) {
-    if let Some(span) = state.span_hz {
-        return span;
-    }
-    let mut lo = synthesis.fc_hz;
-    let mut hi = synthesis.fc_hz;
-    if let Some(bw) = synthesis.bw_hz {
-        let half = bw / 2.0;
-        let upper = half + (half * half + synthesis.fc_hz * synthesis.fc_hz).sqrt();
-        lo = lo.min(synthesis.fc_hz * synthesis.fc_hz / upper);
-        hi = hi.max(upper);
-    }
-    if let Some(mask) = &state.requirement.mask {
-        for edge in [mask.pass, mask.stop] {
-            let (a, b) = match edge {
-                Edge::Single(f) => (f, f),
-                Edge::Pair(a, b) => (a, b),
-            };
-            lo = lo.min(a);
-            hi = hi.max(b);
-        }
-    }
-    (lo / 30.0, hi * 30.0)
-}
-
-fn log_grid(lo: f64, hi: f64, n: usize) -> Vec<f64> {
-    let (a, b) = (lo.ln(), hi.ln());
-    (0..n)
-        .map(|i| (a + (b - a) * i as f64 / (n - 1) as f64).exp())
-        .collect()
 }
 
 /// Unwraps a phase sequence (degrees) so that no step exceeds 180°.
@@ -385,17 +332,20 @@ fn input_impedance(board: &Board, freqs: &[f64]) -> Option<Curve> {
     })
 }
 
-/// Composes the design of `state`: synthesis, board, sweeps and the text view.
+/// Composes the design of `state` with [`pipeline::compose`] (the command line's composer) and
+/// computes the plot curves and the text view.
 ///
 /// # Errors
-/// The first [`InputError`] of the synthesis or the board.
+/// The first [`InputError`] of the composer or of the analysis of the board.
 pub fn compose(state: &LinkState) -> Result<PageModel, InputError> {
-    let synthesis = design::synthesize(&state.requirement, &state.stage_order)?;
-    let board = Board::build(&synthesis.sections, &build_choices(state))?;
-    let (lo, hi) = plot_span(state, &synthesis);
-    let freqs = log_grid(lo, hi, N_POINTS);
-    let ideal = ideal_sweep(&synthesis, &freqs);
-    let (built, level_curves) = built_sweep(&board, &freqs)?;
+    let design = pipeline::compose(state)?;
+    let (lo, hi) = design.span_hz;
+    // The same grid as the tolerance study's (pipeline::study_settings), so the envelope lines up.
+    let freqs = crate::response::log_frequencies(lo, hi, N_POINTS)?;
+    let synthesis = &design.synthesis;
+    let board = &design.board;
+    let ideal = ideal_sweep(synthesis, &freqs);
+    let (built, level_curves) = built_sweep(board, &freqs)?;
     let to_hz = |p: &Complex64| p / (2.0 * PI);
     let data = PlotData {
         class: Some(synthesis.class),
@@ -410,7 +360,7 @@ pub fn compose(state: &LinkState) -> Result<PageModel, InputError> {
         zeros_hz: vec![Complex64::new(0.0, 0.0); synthesis.zeros_at_origin.min(1)],
         step_ideal: None,
         step_built: None,
-        impedance: input_impedance(&board, &freqs),
+        impedance: input_impedance(board, &freqs),
         noise_total: None,
         noise_parts: Vec::new(),
         levels: level_curves
@@ -426,11 +376,9 @@ pub fn compose(state: &LinkState) -> Result<PageModel, InputError> {
         hist_cutoff: None,
         hist_gain: None,
     };
-    let view = text_view(state, &synthesis, &board, &data);
+    let view = text_view(&design, &data);
     Ok(PageModel {
-        state: state.clone(),
-        synthesis,
-        board,
+        design,
         data,
         view,
         study: None,
@@ -486,7 +434,10 @@ fn pct(x: f64) -> String {
     format!("{:+.2} %", x * 100.0)
 }
 
-fn text_view(state: &LinkState, synthesis: &Synthesis, board: &Board, data: &PlotData) -> View {
+fn text_view(design: &Design, data: &PlotData) -> View {
+    let state = &design.state;
+    let synthesis = &design.synthesis;
+    let board = &design.board;
     let n_parts = board.parts().len();
     let mut summary = format!(
         "{}-order {} {} · {} · {} · {} parts",
@@ -581,14 +532,10 @@ fn text_view(state: &LinkState, synthesis: &Synthesis, board: &Board, data: &Plo
         })
         .collect();
 
-    let (comparison, comparison_hint) = match &state.requirement.mask {
-        Some(mask) => {
-            let ripple = match synthesis.family {
-                Family::Chebyshev { ripple_db } => Some(ripple_db),
-                _ => None,
-            };
-            let rows = order::compare_families(synthesis.class, mask, ripple)
-                .into_iter()
+    let (comparison, comparison_hint) = match &design.family_orders {
+        Some(rows) => {
+            let rows = rows
+                .iter()
                 .map(|row| {
                     let current = row.family.key() == synthesis.family.key();
                     let (order_text, note) = match &row.result {
@@ -636,6 +583,23 @@ fn text_view(state: &LinkState, synthesis: &Synthesis, board: &Board, data: &Plo
     }
 }
 
+/// The frequencies where a sweep's gain crosses `level_db`, interpolated linearly in log f.
+pub fn level_crossings(sweep: &Sweep, level_db: f64) -> Vec<f64> {
+    sweep
+        .freq_hz
+        .windows(2)
+        .zip(sweep.gain_db.windows(2))
+        .filter_map(|(f, g)| {
+            let (a, b) = (g[0] - level_db, g[1] - level_db);
+            if !(a.is_finite() && b.is_finite()) || a.signum() == b.signum() || a == b {
+                return None;
+            }
+            let t = a / (a - b);
+            Some((f[0].ln() + t * (f[1].ln() - f[0].ln())).exp())
+        })
+        .collect()
+}
+
 /// Figures of merit read off the built response: the frequency where it has fallen 3 dB below
 /// the passband gain, and the peaking above it.
 fn figures_line(data: &PlotData) -> String {
@@ -650,21 +614,7 @@ fn figures_line(data: &PlotData) -> String {
         .fold(f64::NEG_INFINITY, f64::max);
     let mut parts = Vec::new();
     let reference = data.gain_db;
-    let crossings: Vec<f64> = built
-        .freq_hz
-        .windows(2)
-        .zip(built.gain_db.windows(2))
-        .filter_map(|(f, g)| {
-            let level = reference - 3.0103;
-            let (a, b) = (g[0] - level, g[1] - level);
-            if a == 0.0 || a.signum() != b.signum() {
-                let t = a / (a - b);
-                Some((f[0].ln() + t * (f[1].ln() - f[0].ln())).exp())
-            } else {
-                None
-            }
-        })
-        .collect();
+    let crossings = level_crossings(built, reference - 10.0 * 2f64.log10());
     if !crossings.is_empty() {
         let list: Vec<String> = crossings
             .iter()
@@ -687,61 +637,18 @@ impl PageModel {
         figures::build(kind, &self.data)
     }
 
-    /// The settings of the tolerance study the link asks for (`runs`, `seed`, `dist`, `sigmas`,
-    /// `rtol`, `ctol`, `tolset`), on the plot grid.
-    pub fn study_settings(&self) -> MonteCarloSettings {
-        let state = &self.state;
-        let db = match self.synthesis.family {
-            Family::Chebyshev { ripple_db } => ripple_db,
-            Family::LinkwitzRiley => 20.0 * 2f64.log10(),
-            _ => 10.0 * 2f64.log10(),
-        };
-        let passband_ref_hz = match self.synthesis.class {
-            ResponseClass::LowPass => 0.0,
-            ResponseClass::HighPass => self.synthesis.fc_hz * 100.0,
-            ResponseClass::BandPass => self.synthesis.fc_hz,
-        };
-        MonteCarloSettings {
-            runs: state.study.runs,
-            seed: state.study.seed,
-            tolerances: Tolerances {
-                distribution: match state.study.distribution {
-                    Distribution::Gaussian => PartDistribution::Gaussian {
-                        sigmas: state.study.sigmas,
-                    },
-                    Distribution::Uniform => PartDistribution::Uniform,
-                },
-                resistor_pct: state.rtol_pct,
-                capacitor_pct: state.ctol_pct,
-                overrides: state
-                    .tolerance_overrides
-                    .iter()
-                    .map(|(reference, pct)| PartTolerance {
-                        reference: reference.clone(),
-                        pct: *pct,
-                    })
-                    .collect(),
-            },
-            freqs_hz: self.data.ideal.freq_hz.clone(),
-            percentiles: vec![1.0, 50.0, 99.0],
-            cutoff: CutoffDefinition::Attenuation { db },
-            class: self.synthesis.class,
-            reference_gain: 10f64.powf(state.requirement.gain_db / 20.0),
-            passband_ref_hz,
-        }
-    }
-
-    /// Prepares the tolerance study of this design.
+    /// Prepares the tolerance study of this design with the link's settings, on the plot grid
+    /// ([`pipeline::start_spread`], as the command line's `spread`).
     ///
     /// # Errors
-    /// An [`InputError`] naming the study setting that is out of range.
+    /// An [`InputError`] on `runs` with the reason the study cannot start.
     pub fn start_study(&self) -> Result<MonteCarlo, InputError> {
-        MonteCarlo::new(
-            &self.board,
-            self.state.requirement.mask.as_ref(),
-            self.study_settings(),
-        )
-        .map_err(|e| InputError::new("runs", format!("the tolerance study cannot start: {e:?}")))
+        pipeline::start_spread(&self.design, N_POINTS).map_err(|message| {
+            InputError::new(
+                "runs",
+                format!("the tolerance study cannot start: {message}"),
+            )
+        })
     }
 
     /// Takes a finished study into the plots (envelope, histograms) and the summary.
@@ -754,13 +661,14 @@ impl PageModel {
                 .find(|c| (c.percentile - p).abs() < 1e-9)
                 .map(|c| c.db.clone())
         };
-        if let (Some(lo), Some(hi)) = (pick(1.0), pick(99.0)) {
+        let (lo_p, hi_p) = (STUDY_BAND.0, STUDY_BAND.1);
+        if let (Some(lo), Some(hi)) = (pick(lo_p), pick(hi_p)) {
             if lo.len() == self.data.ideal.freq_hz.len() {
                 self.data.envelope_db = Some((lo, hi));
-                self.data.envelope_label = "1–99 % of runs".into();
+                self.data.envelope_label = format!("{lo_p}–{hi_p} % of runs");
             }
         }
-        let mask = self.state.requirement.mask;
+        let mask = self.design.state.requirement.mask;
         if let Some(cut) = summary.cutoffs.first() {
             let mut limits = Vec::new();
             if let Some(m) = mask {
@@ -786,7 +694,7 @@ impl PageModel {
         if let Some(m) = mask {
             limits.push((
                 "loss limit".to_string(),
-                self.state.requirement.gain_db - m.apass_db,
+                self.design.state.requirement.gain_db - m.apass_db,
             ));
         }
         self.data.hist_gain = Some(Histogram {
@@ -821,11 +729,13 @@ impl PageModel {
                     .find(|v| (v.percentile - q).abs() < 1e-9)
                     .map(|v| v.value)
             };
-            if let (Some(lo), Some(hi)) = (p(1.0), p(99.0)) {
+            if let (Some(lo), Some(hi)) = (p(STUDY_BAND.0), p(STUDY_BAND.1)) {
                 parts.push(format!(
-                    "cutoff {} … {} (1–99 %)",
+                    "cutoff {} … {} ({}–{} % of runs)",
                     engineering_unit(lo, 4, "Hz"),
-                    engineering_unit(hi, 4, "Hz")
+                    engineering_unit(hi, 4, "Hz"),
+                    STUDY_BAND.0,
+                    STUDY_BAND.1
                 ));
             }
         }
@@ -845,42 +755,203 @@ impl PageModel {
         }
     }
 
-    /// A download: `bom` (parts list CSV), `spice` (netlist) or `json` (design).
+    /// A download: `bom` (parts list CSV), `spice` (netlist) or `json` (design), made by the same
+    /// functions with the same arguments as `rolloff design --format bom|spice|json`.
     ///
     /// # Errors
     /// `format` for an unknown kind; the exporter's own errors.
     pub fn export(&self, kind: &str) -> Result<String, InputError> {
+        let design = &self.design;
         match kind {
             "bom" => Ok(export::bom::csv(
-                &self.board,
-                &export::bom::Tolerances {
-                    resistor_pct: self.state.rtol_pct,
-                    capacitor_pct: self.state.ctol_pct,
-                },
+                &design.board,
+                &pipeline::bom_tolerances(design),
             )),
-            "spice" => export::spice::netlist(&self.board, &export::spice::AcSweep::default()),
+            "spice" => export::spice::netlist(&design.board, &pipeline::spice_sweep(design)),
+            "json" => Ok(export::json::design_json(design)),
             other => Err(InputError::new(
                 "format",
-                format!("'{other}' is not a download this page offers (bom, spice)"),
+                format!("'{other}' is not a download this page offers (bom, spice, json)"),
             )),
         }
     }
 }
 
-/// The link a design JSON file was made from: its `link` field (a query string or a whole URL).
+/// The link a design JSON file describes.
+///
+/// A `link` field (a query string or a whole URL) is used as it is. Otherwise the link is rebuilt
+/// from the JSON's contract fields (class, family, ripple, order, cutoff, bandwidth, gain, mask,
+/// op amp, series, tolerances, title, and the topology read off the stages), and every part whose
+/// value in the file differs from what that link designs is typed over (`set`), so the board that
+/// opens is the board that was saved.
 ///
 /// # Errors
-/// `json` when the text is not JSON or has no `link` string.
+/// `json` when the text is not JSON, lacks the fields a design needs, or does not design.
 pub fn link_of_json(text: &str) -> Result<String, InputError> {
-    let value: serde_json::Value = serde_json::from_str(text)
+    use serde_json::Value;
+    let value: Value = serde_json::from_str(text)
         .map_err(|e| InputError::new("json", format!("the file is not JSON: {e}")))?;
-    match value.get("link").and_then(|v| v.as_str()) {
-        Some(link) => Ok(link::query_of(link).to_string()),
-        None => Err(InputError::new(
-            "json",
-            "the file has no \"link\" field; open a design saved by Rolloff",
-        )),
+    if let Some(link) = value.get("link").and_then(Value::as_str) {
+        return Ok(link::query_of(link).to_string());
     }
+    let missing = |what: &str| {
+        InputError::new(
+            "json",
+            format!("the file has no “{what}”; open a design saved by Rolloff"),
+        )
+    };
+    let number = |v: &Value| v.as_f64().map(|x| format!("{x}"));
+    let edge = |v: &Value| match v {
+        Value::Array(pair) => {
+            let parts: Option<Vec<String>> = pair.iter().map(number).collect();
+            parts.map(|p| p.join(","))
+        }
+        other => number(other),
+    };
+    let mut pairs: Vec<(&str, String)> = vec![("v", "1".into())];
+    let get = |key: &str| value.get(key).filter(|v| !v.is_null());
+    if let Some(title) = get("title").and_then(Value::as_str) {
+        pairs.push(("title", title.to_string()));
+    }
+    let resp = get("resp")
+        .and_then(Value::as_str)
+        .ok_or_else(|| missing("resp"))?;
+    pairs.push(("resp", resp.to_string()));
+    let family = get("family")
+        .and_then(Value::as_str)
+        .ok_or_else(|| missing("family"))?;
+    pairs.push(("family", family.to_string()));
+    if let Some(ripple) = get("ripple_db").and_then(number) {
+        pairs.push(("ripple", ripple));
+    }
+    let from_mask = get("order_from_mask")
+        .and_then(Value::as_bool)
+        .unwrap_or(false);
+    if !from_mask {
+        let order = get("order")
+            .and_then(number)
+            .ok_or_else(|| missing("order"))?;
+        pairs.push(("order", order));
+        if let Some(fc) = get("fc_hz").and_then(number) {
+            pairs.push(("fc", fc));
+        }
+        if let Some(bw) = get("bw_hz").and_then(number) {
+            pairs.push(("bw", bw));
+        }
+    }
+    if let Some(gain) = get("gain_db").and_then(number) {
+        pairs.push(("gain", gain));
+    }
+    if let Some(mask) = get("mask") {
+        for (from, to) in [
+            ("fpass_hz", "fpass"),
+            ("apass_db", "apass"),
+            ("fstop_hz", "fstop"),
+            ("astop_db", "astop"),
+        ] {
+            if let Some(v) = mask.get(from).and_then(edge) {
+                pairs.push((to, v));
+            }
+        }
+    }
+    if let Some(op) = get("op_amp") {
+        for (from, to, ideal) in [
+            ("gbw_hz", "gbw", true),
+            ("a0_db", "a0", true),
+            ("rout_ohm", "rout", false),
+            ("vnoise_v_per_rthz", "vnoise", false),
+            ("inoise_a_per_rthz", "inoise", false),
+            ("slew_v_per_s", "slew", true),
+        ] {
+            match op.get(from) {
+                Some(Value::Null) if ideal => pairs.push((to, "ideal".into())),
+                Some(v) => {
+                    if let Some(x) = number(v) {
+                        pairs.push((to, x));
+                    }
+                }
+                None => {}
+            }
+        }
+    }
+    if let Some(series) = get("series") {
+        for (from, to) in [("resistors", "rser"), ("capacitors", "cser")] {
+            if let Some(v) = series.get(from).and_then(Value::as_str) {
+                pairs.push((to, v.to_string()));
+            }
+        }
+    }
+    if let Some(tol) = get("tolerance_pct") {
+        for (from, to) in [("resistors", "rtol"), ("capacitors", "ctol")] {
+            if let Some(v) = tol.get(from).and_then(number) {
+                pairs.push((to, v));
+            }
+        }
+    }
+    let stages = get("stages")
+        .and_then(Value::as_array)
+        .cloned()
+        .unwrap_or_default();
+    let topologies: Vec<&str> = stages
+        .iter()
+        .filter_map(|s| s.get("topology").and_then(Value::as_str))
+        .collect();
+    if topologies
+        .iter()
+        .any(|t| matches!(*t, "mfb-lp" | "mfb-hp" | "inv-lp" | "inv-hp"))
+    {
+        pairs.push(("topo", "mfb".into()));
+    }
+    let encode = |pairs: &[(&str, String)]| {
+        let mut out = form_urlencoded::Serializer::new(String::new());
+        for (k, v) in pairs {
+            out.append_pair(k, v);
+        }
+        out.finish()
+    };
+    // Type over every part whose saved value is not what the rebuilt link designs.
+    let base = encode(&pairs);
+    let evaluation = evaluate(&base);
+    let model = evaluation.model.ok_or_else(|| {
+        let reason = evaluation
+            .view
+            .errors
+            .first()
+            .map(|e| format!("{}: {}", e.key, e.message))
+            .unwrap_or_default();
+        InputError::new(
+            "json",
+            format!("the saved design does not design again: {reason}"),
+        )
+    })?;
+    let saved: Vec<(String, f64)> = get("parts")
+        .and_then(Value::as_array)
+        .map(|parts| {
+            parts
+                .iter()
+                .filter_map(|p| {
+                    let reference = p.get("ref")?.as_str()?.to_string();
+                    let value = p.get("value")?.as_f64()?;
+                    Some((reference, value))
+                })
+                .collect()
+        })
+        .unwrap_or_default();
+    let mut typed = Vec::new();
+    for part in model.design.board.parts() {
+        if part.kind == PartKind::OpAmp {
+            continue;
+        }
+        if let Some((_, value)) = saved.iter().find(|(r, _)| *r == part.reference) {
+            if (value - part.value).abs() > 1e-12 * part.value.abs() {
+                typed.push(format!("{}:{value}", part.reference));
+            }
+        }
+    }
+    if !typed.is_empty() {
+        pairs.push(("set", typed.join(",")));
+    }
+    Ok(encode(&pairs))
 }
 
 #[cfg(test)]
@@ -923,6 +994,33 @@ mod tests {
             .model
             .unwrap_or_else(|| panic!("the defaults still design"));
         assert!(model.view.summary.contains("Bessel"));
+    }
+
+    #[test]
+    fn a_saved_json_opens_as_the_same_board() {
+        let query =
+            "v=1&resp=lp&family=chebyshev&ripple=0.5&order=5&fc=3k&topo=mfb&rser=e24&set=R2:4k7";
+        let model = evaluate(query)
+            .model
+            .unwrap_or_else(|| panic!("the demo link designs"));
+        let json = model.export("json").unwrap_or_else(|e| panic!("{e}"));
+        let reopened = link_of_json(&json).unwrap_or_else(|e| panic!("{e}"));
+        let again = evaluate(&reopened)
+            .model
+            .unwrap_or_else(|| panic!("the rebuilt link {reopened} designs"));
+        let values = |m: &PageModel| -> Vec<(String, f64)> {
+            m.design
+                .board
+                .parts()
+                .iter()
+                .map(|p| (p.reference.clone(), p.value))
+                .collect()
+        };
+        assert_eq!(values(&again), values(&model), "rebuilt link: {reopened}");
+        assert!(
+            reopened.contains("R2%3A4700"),
+            "the override is kept: {reopened}"
+        );
     }
 
     #[test]
