@@ -155,8 +155,9 @@ pub fn sweep(
     } else {
         design.board.clone()
     };
+    let merged = board.netlist();
     let h_at = |f: f64| -> Result<Complex64, String> {
-        mna::board_response(&board, Complex64::new(0.0, TWO_PI * f))
+        mna::netlist_response(&merged, &board.op_amp, Complex64::new(0.0, TWO_PI * f))
             .map(|(h, _)| h)
             .map_err(|e| e.message)
     };
