@@ -2,5 +2,9 @@
 //! stage levels and op-amp requirements.
 
 pub mod circuit;
+pub mod fastfit;
 pub mod montecarlo;
+pub mod poles;
 pub mod poly;
+pub mod sensitivity;
+pub mod timeresp;

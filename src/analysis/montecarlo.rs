@@ -27,7 +27,9 @@
 //! in the passband is not a violation: the mask states only the attenuation allowed.
 
 use super::circuit::{AnalysisError, Assembled, Compiled};
+use super::fastfit::{magnitude_squared_into, FastFit};
 use super::poly::{FitWork, Poly};
+use crate::board::Board;
 use crate::error::InputError;
 use crate::netlist::{PartKind, StageNetlist};
 use crate::opamp::OpAmp;
@@ -256,7 +258,7 @@ pub struct Summary {
 struct StageRun {
     compiled: Compiled,
     assembled: Assembled,
-    work: FitWork,
+    fast: FastFit,
     /// Index into the run's value vector of this stage's first part.
     value_offset: usize,
     n_parts: usize,
@@ -265,6 +267,9 @@ struct StageRun {
     /// Nominal f0 (rad/s) and Q of the dominant factor, the start of each run's iteration.
     nominal_w0: f64,
     nominal_q: f64,
+    /// Scratch for |N|², |D|².
+    sq_n: Vec<f64>,
+    sq_d: Vec<f64>,
 }
 
 /// A tolerance study in progress. Create with [`MonteCarlo::new`], advance with
@@ -437,18 +442,22 @@ fn mask_edges(mask: &Mask) -> Vec<f64> {
 
 /// The dominant quadratic factor `z² + u·z + v` of `d` (ascending coefficients) by Bairstow's
 /// iteration from `(u, v)`. Returns `None` when it does not converge.
-pub(crate) fn bairstow(d: &[f64], mut u: f64, mut v: f64) -> Option<(f64, f64)> {
+pub(crate) fn bairstow(d: &[f64], u: f64, v: f64) -> Option<(f64, f64)> {
+    const MAXN: usize = 32;
     let n = d.iter().rposition(|&c| c != 0.0)?;
-    if n < 2 {
+    if n < 2 || n >= MAXN {
         return None;
     }
     let lead = d[n];
     if n == 2 {
         return Some((d[1] / lead, d[0] / lead));
     }
-    let a: Vec<f64> = d[..=n].iter().map(|c| c / lead).collect();
-    let mut b = vec![0.0; n + 1];
-    let mut c = vec![0.0; n + 1];
+    let mut a = [0.0; MAXN];
+    for (dst, src) in a.iter_mut().zip(&d[..=n]) {
+        *dst = src / lead;
+    }
+    let mut b = [0.0; MAXN];
+    let mut c = [0.0; MAXN];
     // Divisor z² − r·z − s with r = −u, s = −v.
     let (mut r, mut s) = (-u, -v);
     for _ in 0..60 {
@@ -473,25 +482,28 @@ pub(crate) fn bairstow(d: &[f64], mut u: f64, mut v: f64) -> Option<(f64, f64)> 
         if !(r.is_finite() && s.is_finite()) {
             return None;
         }
-        if dr.abs() <= 1e-15 * r.abs().max(s.abs().sqrt()) && ds.abs() <= 1e-15 * s.abs() {
-            u = -r;
-            v = -s;
-            return Some((u, v));
+        if dr.abs() <= 1e-14 * (r.abs() + s.abs().sqrt()) && ds.abs() <= 1e-14 * s.abs() {
+            return Some((-r, -s));
         }
     }
-    // A last check: accept when the remainder is negligible.
-    if b[1].abs() + b[0].abs() <= 1e-12 * a.iter().fold(0.0f64, |m, x| m.max(x.abs())) {
-        return Some((-r, -s));
-    }
-    None
+    // Accept a factor whose remainder is negligible even if the last steps dithered.
+    let scale = a[..=n].iter().fold(0.0f64, |m, x| m.max(x.abs()));
+    (b[1].abs() + b[0].abs() <= 1e-12 * scale).then_some((-r, -s))
 }
 
 /// The dominant real root of `d` near `z0` by Newton's iteration.
 pub(crate) fn newton_real(d: &[f64], mut z: f64) -> Option<f64> {
-    let p = Poly::new(d.to_vec());
-    let dp = p.derivative();
+    let scale = d.iter().fold(0.0f64, |m, x| m.max(x.abs()));
+    let mut value = f64::NAN;
     for _ in 0..60 {
-        let step = p.eval(z) / dp.eval(z);
+        let mut p = 0.0;
+        let mut dp = 0.0;
+        for &c in d.iter().rev() {
+            dp = dp * z + p;
+            p = p * z + c;
+        }
+        value = p;
+        let step = p / dp;
         if !step.is_finite() {
             return None;
         }
@@ -500,7 +512,7 @@ pub(crate) fn newton_real(d: &[f64], mut z: f64) -> Option<f64> {
             return Some(z);
         }
     }
-    Some(z).filter(|z| p.eval(*z).abs() <= 1e-10 * p.c.iter().fold(0.0f64, |m, x| m.max(x.abs())))
+    (value.abs() <= 1e-10 * scale).then_some(z)
 }
 
 /// f0 (rad/s) and Q of the `order` smallest poles among `poles` (rad/s). Q is NaN for order 1.
@@ -538,6 +550,19 @@ pub(crate) fn dominant_w0_q(poles: &[Complex64], order: usize) -> Option<(f64, f
 }
 
 impl MonteCarlo {
+    /// Prepares a study of `board` (its stages as built, its op-amp model).
+    ///
+    /// # Errors
+    /// As [`MonteCarlo::from_stages`].
+    pub fn new(
+        board: &Board,
+        mask: Option<&Mask>,
+        settings: MonteCarloSettings,
+    ) -> Result<MonteCarlo, AnalysisError> {
+        let stages: Vec<StageNetlist> = board.stages.iter().map(|s| s.netlist.clone()).collect();
+        MonteCarlo::from_stages(&stages, &board.op_amp, mask, settings)
+    }
+
     /// Prepares a study of the board made of `stages` (in signal order) with op amp `op`.
     ///
     /// # Errors
@@ -545,7 +570,7 @@ impl MonteCarlo {
     /// 0–50 %, `sigmas` 1–6, frequencies positive and ascending, percentiles 0–100, an override for
     /// a part that is not on the board: key `tol:REF`); [`AnalysisError::BadNetlist`] or
     /// [`AnalysisError::Singular`] when the nominal board cannot be analysed.
-    pub fn new(
+    pub fn from_stages(
         stages: &[StageNetlist],
         op: &OpAmp,
         mask: Option<&Mask>,
@@ -573,6 +598,10 @@ impl MonteCarlo {
             PartDistribution::Gaussian { sigmas } => sigmas,
             PartDistribution::Uniform => 1.0,
         };
+        let f = &settings.freqs_hz;
+        let n_grid = f.len();
+        let f_g = (f[0] * f[n_grid - 1]).sqrt();
+        let w_g = 2.0 * PI * f_g;
         let mut nominal_values = Vec::new();
         let mut spread = Vec::new();
         let mut is_drawn = Vec::new();
@@ -614,10 +643,14 @@ impl MonteCarlo {
                     if order == 2 { "pair" } else { "" }
                 ))
             })?;
+            let fast = FastFit::new(&compiled, rat.scale_rad_s, w_g);
+            let k = fast.n_coef();
             runs.push(StageRun {
                 compiled,
                 assembled,
-                work,
+                fast,
+                sq_n: vec![0.0; k],
+                sq_d: vec![0.0; k],
                 value_offset,
                 n_parts: net.parts.len(),
                 order,
@@ -625,12 +658,6 @@ impl MonteCarlo {
                 nominal_q: q,
             });
         }
-        let f = &settings.freqs_hz;
-        let n_grid = f.len();
-        let f_lo = f[0];
-        let f_hi = f[n_grid - 1];
-        let f_g = (f_lo * f_hi).sqrt();
-        let w_g = 2.0 * PI * f_g;
         let mut eval_f: Vec<f64> = f.clone();
         let edges = mask.map(mask_edges).unwrap_or_default();
         eval_f.extend(edges.iter().copied());
@@ -776,66 +803,50 @@ impl MonteCarlo {
     /// stage's (f0 rad/s, Q).
     fn form_stages(&mut self, f0q: &mut [(f64, f64)]) -> Result<(), AnalysisError> {
         let width = self.width;
+        let w_g = self.w_g;
         for (k, st) in self.stages.iter_mut().enumerate() {
             let vals = &self.values[st.value_offset..st.value_offset + st.n_parts];
             st.compiled.assemble_into(vals, &mut st.assembled);
-            let base = st.compiled.scale_rad_s * 1.1;
-            let mut rho = base;
-            let mut ok = false;
-            for attempt in 0..4 {
-                rho = base * (1.0 + 0.173 * attempt as f64);
-                if st.work.fit(&st.compiled, &st.assembled, rho) {
-                    ok = true;
-                    break;
-                }
-            }
-            if !ok {
+            if !st.fast.fit(&st.assembled) {
                 return Err(AnalysisError::Singular("a stage of a tolerance run".into()));
             }
-            // Dominant factor, in z = s/ρ.
-            let d = &st.work.den;
+            st.fast.trim();
+            let d = &st.fast.den_u;
+            // Dominant factor, in u = s/ω_g, from the nominal one.
             let (w0, q) = if st.order == 2 {
-                let u0 = st.nominal_w0 / st.nominal_q / rho;
-                let v0 = (st.nominal_w0 / rho) * (st.nominal_w0 / rho);
-                let trimmed = Poly::new(d.clone()).trimmed(super::poly::FIT_TRIM_REL);
-                match bairstow(&trimmed.c, u0, v0) {
-                    Some((u, v)) if v > 0.0 && u != 0.0 => (v.sqrt() * rho, v.sqrt() / u),
+                let u0 = st.nominal_w0 / st.nominal_q / w_g;
+                let v0 = (st.nominal_w0 / w_g) * (st.nominal_w0 / w_g);
+                match bairstow(d, u0, v0) {
+                    Some((u, v)) if v > 0.0 && u != 0.0 => (v.sqrt() * w_g, v.sqrt() / u),
                     _ => {
                         self.fallbacks += 1;
-                        let poles: Vec<Complex64> = trimmed
+                        let poles: Vec<Complex64> = Poly::new(d.clone())
                             .roots()
                             .unwrap_or_default()
                             .into_iter()
-                            .map(|p| p * rho)
+                            .map(|p| p * w_g)
                             .collect();
                         dominant_w0_q(&poles, 2).unwrap_or((f64::NAN, f64::NAN))
                     }
                 }
             } else {
-                let trimmed = Poly::new(d.clone()).trimmed(super::poly::FIT_TRIM_REL);
-                match newton_real(&trimmed.c, -st.nominal_w0 / rho) {
-                    Some(z) => (-z * rho, f64::NAN),
+                match newton_real(d, -st.nominal_w0 / w_g) {
+                    Some(z) => (-z * w_g, f64::NAN),
                     None => (f64::NAN, f64::NAN),
                 }
             };
             f0q[k] = (w0, q);
-            // |N(jω)|², |D(jω)|² in x = (ω/ω_g)²: rescale z = s/ρ to u = s/ω_g.
-            let factor = self.w_g / rho;
-            let n_poly = Poly::new(st.work.num.clone()).rescaled(factor);
-            let d_poly = Poly::new(st.work.den.clone()).rescaled(factor);
-            let pn = n_poly.magnitude_squared_in_x();
-            let pd = d_poly.magnitude_squared_in_x();
-            let norm = pd.c.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+            let n_coef = magnitude_squared_into(&st.fast.num_u, &mut st.sq_n);
+            magnitude_squared_into(&st.fast.den_u, &mut st.sq_d);
+            let norm = st.sq_d.iter().fold(0.0f64, |m, v| m.max(v.abs()));
             let norm = if norm > 0.0 { 1.0 / norm } else { 1.0 };
             let row_n = &mut self.coef_n[k * width..(k + 1) * width];
-            row_n.iter_mut().for_each(|v| *v = 0.0);
-            for (dst, src) in row_n.iter_mut().zip(pn.c.iter()) {
-                *dst = src * norm;
-            }
             let row_d = &mut self.coef_d[k * width..(k + 1) * width];
+            row_n.iter_mut().for_each(|v| *v = 0.0);
             row_d.iter_mut().for_each(|v| *v = 0.0);
-            for (dst, src) in row_d.iter_mut().zip(pd.c.iter()) {
-                *dst = src * norm;
+            for j in 0..n_coef.min(width) {
+                row_n[j] = st.sq_n[j] * norm;
+                row_d[j] = st.sq_d[j] * norm;
             }
             self.deg_n[k] = row_n.iter().rposition(|&v| v != 0.0).unwrap_or(0);
             self.deg_d[k] = row_d.iter().rposition(|&v| v != 0.0).unwrap_or(0);
@@ -862,39 +873,39 @@ impl MonteCarlo {
         let x = (f_hz / fg) * (f_hz / fg);
         let mut num = 1.0;
         let mut den = 1.0;
-        for k in 0..self.stages.len() {
-            let row_n = &self.coef_n[k * self.width..(k + 1) * self.width];
-            let row_d = &self.coef_d[k * self.width..(k + 1) * self.width];
-            num *= row_n[..=self.deg_n[k]]
-                .iter()
-                .rev()
-                .fold(0.0, |a, &c| a * x + c);
-            den *= row_d[..=self.deg_d[k]]
-                .iter()
-                .rev()
-                .fold(0.0, |a, &c| a * x + c);
+        let w = self.width;
+        for (k, (&dn, &dd)) in self.deg_n.iter().zip(&self.deg_d).enumerate() {
+            let row_n = &self.coef_n[k * w..k * w + dn + 1];
+            let row_d = &self.coef_d[k * w..k * w + dd + 1];
+            num *= row_n.iter().rev().fold(0.0, |a, &c| a * x + c);
+            den *= row_d.iter().rev().fold(0.0, |a, &c| a * x + c);
         }
         num / den
     }
 
-    /// The crossing of `level` between grid points `i` and `j` (|H|² on either side of it).
+    /// The crossing of `level` between grid points `i` and `j` (|H|² on either side of it), to a
+    /// relative frequency accuracy of 1e-12: the Illinois variant of regula falsi on
+    /// `|H|²/level − 1` over ln f.
     fn refine_crossing(&self, i: usize, j: usize, level: f64) -> f64 {
         let f = &self.settings.freqs_hz;
-        let g = |u: f64| (self.h2_at(u.exp()) / level).ln();
+        let inv = 1.0 / level;
+        let g = |u: f64| self.h2_at(u.exp()) * inv - 1.0;
         let (mut a, mut b) = (f[i].ln(), f[j].ln());
         let (mut ga, mut gb) = (g(a), g(b));
         if !(ga.is_finite() && gb.is_finite()) || ga * gb > 0.0 {
             return f64::NAN;
         }
-        // Illinois variant of regula falsi on ln|H|² over ln f.
+        if ga == 0.0 {
+            return f[i];
+        }
         let mut side = 0i32;
-        for _ in 0..60 {
+        for _ in 0..100 {
             let c = (a * gb - b * ga) / (gb - ga);
             let gc = g(c);
             if !gc.is_finite() {
                 return f64::NAN;
             }
-            if gc.abs() < 1e-14 || (b - a).abs() < 1e-15 * a.abs().max(1.0) {
+            if gc == 0.0 || (b - a).abs() < 1e-12 {
                 return c.exp();
             }
             if gc * gb > 0.0 {
@@ -911,6 +922,11 @@ impl MonteCarlo {
                     gb *= 0.5;
                 }
                 side = 1;
+            }
+            // Stop when the last step moved the estimate by less than 1e-12 in ln f.
+            let c2 = (a * gb - b * ga) / (gb - ga);
+            if (c2 - c).abs() < 1e-12 {
+                return c2.exp();
             }
         }
         ((a + b) / 2.0).exp()
@@ -1132,7 +1148,46 @@ impl MonteCarlo {
 
 /// The branch-free cascade kernel: `out[f] = Π_k Pn_k(x_f) / Π_k Pd_k(x_f)`, with each stage's
 /// polynomials in a row of `width` coefficients. `x.len()` must be a multiple of 8.
+///
+/// On x86-64 processors with AVX2 the same code is run compiled for AVX2 (selected at run time).
+/// Rust does not fuse multiplies and adds, and every lane does the same operations in the same
+/// order, so the results are bit-identical on every path and on wasm.
 pub fn cascade_kernel(
+    x: &[f64],
+    coef_n: &[f64],
+    coef_d: &[f64],
+    deg_n: &[usize],
+    deg_d: &[usize],
+    width: usize,
+    out: &mut [f64],
+) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the processor supports AVX2, checked on the line above.
+            unsafe { cascade_kernel_avx2(x, coef_n, coef_d, deg_n, deg_d, width, out) };
+            return;
+        }
+    }
+    cascade_kernel_portable(x, coef_n, coef_d, deg_n, deg_d, width, out);
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+unsafe fn cascade_kernel_avx2(
+    x: &[f64],
+    coef_n: &[f64],
+    coef_d: &[f64],
+    deg_n: &[usize],
+    deg_d: &[usize],
+    width: usize,
+    out: &mut [f64],
+) {
+    cascade_kernel_portable(x, coef_n, coef_d, deg_n, deg_d, width, out);
+}
+
+#[inline(always)]
+fn cascade_kernel_portable(
     x: &[f64],
     coef_n: &[f64],
     coef_d: &[f64],

@@ -487,9 +487,9 @@ impl FitWork {
             self.den_samples[k - 1 - i] = det.conj();
             self.num_samples[k - 1 - i] = (det * x).conj();
         }
-        // c_j ρ^j = (1/K) Σ_i p_i · conj(u_i)^j.
+        // The samples are p(u_i) for p(z) = P(ρz), so c_j = (1/K) Σ_i p(u_i) · u_i^(−j) are the
+        // coefficients in z directly.
         let inv_k = 1.0 / k as f64;
-        let mut rho_j = 1.0;
         for j in 0..k {
             let mut acc_n = Complex64::new(0.0, 0.0);
             let mut acc_d = Complex64::new(0.0, 0.0);
@@ -499,9 +499,8 @@ impl FitWork {
                 acc_n += self.num_samples[i] * uij;
                 acc_d += self.den_samples[i] * uij;
             }
-            self.num[j] = acc_n.re * inv_k / rho_j;
-            self.den[j] = acc_d.re * inv_k / rho_j;
-            rho_j *= rho;
+            self.num[j] = acc_n.re * inv_k;
+            self.den[j] = acc_d.re * inv_k;
         }
         true
     }
@@ -509,8 +508,9 @@ impl FitWork {
 
 /// The transfer function of a stage netlist with the op-amp model, as N(z)/D(z), z = s/ρ.
 ///
-/// ρ is the stage's own frequency scale (the geometric mean of 1/(R·C) over its parts, times an
-/// arbitrary 1.1 so that designed pole magnitudes do not coincide with it). The result agrees with
+/// ρ is first the stage's own frequency scale (the geometric mean of 1/(R·C) over its parts,
+/// times an arbitrary 1.1 so that designed pole magnitudes do not coincide with it), then the
+/// geometric mean of the denominator's root magnitudes when that differs by more than 2×. The result agrees with
 /// a direct nodal solve at any frequency to about 1e-12 relative (tests check 1e-9 against
 /// [`crate::mna::transfer`]).
 ///
@@ -533,7 +533,32 @@ pub fn fitted_rational(
     assembled: &Assembled,
     work: &mut FitWork,
 ) -> Result<Rational, AnalysisError> {
-    let base = compiled.scale_rad_s * 1.1;
+    let first = fit_at_some_radius(compiled, assembled, work, compiled.scale_rad_s * 1.1)?;
+    // Refit at the radius that balances the denominator's extreme coefficients (the geometric
+    // mean of its root magnitudes): the rounding error of each coefficient is then smallest
+    // relative to the coefficients that dominate at the highest and lowest frequencies (the
+    // op-amp poles sit far above the filter poles).
+    let d = &first.den.c;
+    let n = first.den.degree();
+    if n >= 1 && d[0] != 0.0 {
+        let ratio = (d[0].abs() / d[n].abs()).powf(1.0 / n as f64);
+        if ratio.is_finite() && !(0.5..=2.0).contains(&ratio) {
+            if let Ok(second) =
+                fit_at_some_radius(compiled, assembled, work, first.scale_rad_s * ratio)
+            {
+                return Ok(second);
+            }
+        }
+    }
+    Ok(first)
+}
+
+fn fit_at_some_radius(
+    compiled: &Compiled,
+    assembled: &Assembled,
+    work: &mut FitWork,
+    base: f64,
+) -> Result<Rational, AnalysisError> {
     for attempt in 0..4 {
         let rho = base * (1.0 + 0.173 * attempt as f64);
         if work.fit(compiled, assembled, rho) {

@@ -1,0 +1,336 @@
+//! The tolerance study's per-run fit of a stage: N(s) and D(s) from real-valued nodal solves at
+//! K positive real frequencies, then `|N(jω)|²` and `|D(jω)|²` as polynomials in
+//! `x = (ω/ω_g)²`, without allocating.
+//!
+//! Why positive real sample points: a stable circuit has no pole in the right half-plane, so the
+//! nodal matrix `G + s·C` is regular for every real `s > 0`, and solving it needs only real
+//! arithmetic (a quarter of the work of a complex solve). The points `z_i = s_i/ρ` are spread
+//! geometrically over [1/4, 4] around the stage's frequency scale ρ; for the K ≤ 8 coefficients
+//! of a stage the interpolation is well conditioned (checked against the circle fit of
+//! [`super::poly`] in `tests/analysis.rs`). The output unknown is moved to the last position, so
+//! the Cramer numerator is `±Π u_ii (i < n) · y_n` of the LU factors and needs no division.
+
+use super::circuit::{Assembled, Compiled};
+
+/// One stage prepared for repeated real-point fits.
+#[derive(Debug, Clone)]
+pub struct FastFit {
+    n: usize,
+    k: usize,
+    /// Sample frequencies s_i (rad/s, real, positive).
+    s_points: Vec<f64>,
+    /// `coef_u[j] = Σ_i interp[j·K + i] · p(s_i)`: coefficients in u = s/ω_g.
+    interp: Vec<f64>,
+    /// Unknown permutation that puts the output last.
+    perm: Vec<usize>,
+    m: Vec<f64>,
+    rhs: Vec<f64>,
+    num_samples: Vec<f64>,
+    den_samples: Vec<f64>,
+    /// Fitted numerator coefficients in u (ascending).
+    pub num_u: Vec<f64>,
+    /// Fitted denominator coefficients in u (ascending).
+    pub den_u: Vec<f64>,
+    /// `(ρ/ω_g)^j`: converts a coefficient in u back to the stage's own scale z = s/ρ.
+    to_z: Vec<f64>,
+}
+
+/// Inverse of a small dense matrix by Gauss–Jordan elimination with partial pivoting; `None` when
+/// singular.
+fn invert(a: &[f64], n: usize) -> Option<Vec<f64>> {
+    let mut m = a.to_vec();
+    let mut inv = vec![0.0; n * n];
+    for i in 0..n {
+        inv[i * n + i] = 1.0;
+    }
+    for col in 0..n {
+        let piv = (col..n).max_by(|&x, &y| {
+            m[x * n + col]
+                .abs()
+                .partial_cmp(&m[y * n + col].abs())
+                .unwrap_or(std::cmp::Ordering::Equal)
+        })?;
+        if m[piv * n + col] == 0.0 {
+            return None;
+        }
+        for c in 0..n {
+            m.swap(col * n + c, piv * n + c);
+            inv.swap(col * n + c, piv * n + c);
+        }
+        let d = 1.0 / m[col * n + col];
+        for c in 0..n {
+            m[col * n + c] *= d;
+            inv[col * n + c] *= d;
+        }
+        for r in 0..n {
+            if r != col {
+                let f = m[r * n + col];
+                if f != 0.0 {
+                    for c in 0..n {
+                        m[r * n + c] -= f * m[col * n + c];
+                        inv[r * n + c] -= f * inv[col * n + c];
+                    }
+                }
+            }
+        }
+    }
+    Some(inv)
+}
+
+impl FastFit {
+    /// Prepares the fit of `compiled` at frequency scale `rho_rad_s`, coefficients in
+    /// `u = s/w_g_rad_s`.
+    pub fn new(compiled: &Compiled, rho_rad_s: f64, w_g_rad_s: f64) -> FastFit {
+        let n = compiled.n;
+        let k = compiled.degree_bound + 1;
+        let z: Vec<f64> = (0..k)
+            .map(|i| {
+                if k == 1 {
+                    1.0
+                } else {
+                    4f64.powf(-1.0 + 2.0 * i as f64 / (k - 1) as f64)
+                }
+            })
+            .collect();
+        let mut vander = vec![0.0; k * k];
+        for (i, &zi) in z.iter().enumerate() {
+            let mut p = 1.0;
+            for j in 0..k {
+                vander[i * k + j] = p;
+                p *= zi;
+            }
+        }
+        // The geometric points of [1/4, 4] always give a regular Vandermonde matrix.
+        let vinv = invert(&vander, k).unwrap_or_else(|| vec![0.0; k * k]);
+        // Coefficients in z to coefficients in u: c_u,j = c_z,j · (ω_g/ρ)^j.
+        let ratio = w_g_rad_s / rho_rad_s;
+        let mut interp = vinv;
+        let mut f = 1.0;
+        for j in 0..k {
+            for i in 0..k {
+                interp[j * k + i] *= f;
+            }
+            f *= ratio;
+        }
+        let mut perm: Vec<usize> = (0..n).collect();
+        if n > 0 {
+            perm.swap(compiled.output_col, n - 1);
+        }
+        FastFit {
+            n,
+            k,
+            s_points: z.iter().map(|zi| zi * rho_rad_s).collect(),
+            interp,
+            perm,
+            m: vec![0.0; n * n],
+            rhs: vec![0.0; n],
+            num_samples: vec![0.0; k],
+            den_samples: vec![0.0; k],
+            num_u: vec![0.0; k],
+            den_u: vec![0.0; k],
+            to_z: (0..k).map(|j| ratio.powi(-(j as i32))).collect(),
+        }
+    }
+
+    /// Sets to zero the coefficients of N and D that are rounding noise: smaller than
+    /// [`super::poly::FIT_TRIM_REL`] times the largest, compared in the stage's own scale z = s/ρ
+    /// (the scale in which the coefficients are balanced).
+    pub fn trim(&mut self) {
+        for poly in [&mut self.num_u, &mut self.den_u] {
+            let max = poly
+                .iter()
+                .zip(&self.to_z)
+                .fold(0.0f64, |m, (c, t)| m.max((c * t).abs()));
+            let thr = super::poly::FIT_TRIM_REL * max;
+            for (c, t) in poly.iter_mut().zip(&self.to_z) {
+                if (*c * t).abs() <= thr {
+                    *c = 0.0;
+                }
+            }
+        }
+    }
+
+    /// Number of coefficients K.
+    pub fn n_coef(&self) -> usize {
+        self.k
+    }
+
+    /// Fits `assembled`; false when a sample point hit a singular matrix.
+    pub fn fit(&mut self, assembled: &Assembled) -> bool {
+        // Fixed sizes let the compiler unroll the elimination completely; the common stages have
+        // 2 to 6 unknowns.
+        let ok = match self.n {
+            1 => self.sample_fixed::<1>(assembled),
+            2 => self.sample_fixed::<2>(assembled),
+            3 => self.sample_fixed::<3>(assembled),
+            4 => self.sample_fixed::<4>(assembled),
+            5 => self.sample_fixed::<5>(assembled),
+            6 => self.sample_fixed::<6>(assembled),
+            7 => self.sample_fixed::<7>(assembled),
+            8 => self.sample_fixed::<8>(assembled),
+            _ => self.sample_any(assembled),
+        };
+        if !ok {
+            return false;
+        }
+        let k = self.k;
+        for j in 0..k {
+            let row = &self.interp[j * k..(j + 1) * k];
+            let mut an = 0.0;
+            let mut ad = 0.0;
+            for ((w, pn), pd) in row.iter().zip(&self.num_samples).zip(&self.den_samples) {
+                an += w * pn;
+                ad += w * pd;
+            }
+            self.num_u[j] = an;
+            self.den_u[j] = ad;
+        }
+        true
+    }
+
+    /// Samples D and N at every point for a stage of exactly `N` unknowns.
+    fn sample_fixed<const N: usize>(&mut self, a: &Assembled) -> bool {
+        let mut g = [[0.0f64; N]; N];
+        let mut c = [[0.0f64; N]; N];
+        let mut g_in = [0.0f64; N];
+        let mut c_in = [0.0f64; N];
+        for r in 0..N {
+            let pr = self.perm[r];
+            for col in 0..N {
+                let pc = self.perm[col];
+                g[pr][pc] = a.g[r * N + col];
+                c[pr][pc] = a.c[r * N + col];
+            }
+            g_in[pr] = a.g_in[r];
+            c_in[pr] = a.c_in[r];
+        }
+        for (si, &s) in self.s_points.iter().enumerate() {
+            let mut m = [[0.0f64; N]; N];
+            let mut rhs = [0.0f64; N];
+            for r in 0..N {
+                for col in 0..N {
+                    m[r][col] = g[r][col] + s * c[r][col];
+                }
+                rhs[r] = -(g_in[r] + s * c_in[r]);
+            }
+            let mut det_head = 1.0;
+            for col in 0..N {
+                let mut piv = col;
+                let mut best = m[col][col].abs();
+                for r in (col + 1)..N {
+                    let v = m[r][col].abs();
+                    if v > best {
+                        best = v;
+                        piv = r;
+                    }
+                }
+                if piv != col {
+                    m.swap(col, piv);
+                    rhs.swap(col, piv);
+                    det_head = -det_head;
+                }
+                if col + 1 == N {
+                    break;
+                }
+                let pivot = m[col][col];
+                if pivot == 0.0 {
+                    return false;
+                }
+                det_head *= pivot;
+                let inv = 1.0 / pivot;
+                let pivot_row = m[col];
+                for r in (col + 1)..N {
+                    let f = m[r][col] * inv;
+                    for cc in (col + 1)..N {
+                        m[r][cc] -= f * pivot_row[cc];
+                    }
+                    rhs[r] -= f * rhs[col];
+                }
+            }
+            self.den_samples[si] = det_head * m[N - 1][N - 1];
+            self.num_samples[si] = det_head * rhs[N - 1];
+        }
+        true
+    }
+
+    /// Samples D and N at every point, any size.
+    fn sample_any(&mut self, assembled: &Assembled) -> bool {
+        let n = self.n;
+        for (si, &s) in self.s_points.iter().enumerate() {
+            for r in 0..n {
+                let pr = self.perm[r];
+                for c in 0..n {
+                    let pc = self.perm[c];
+                    self.m[pr * n + pc] = assembled.g[r * n + c] + s * assembled.c[r * n + c];
+                }
+                self.rhs[pr] = -(assembled.g_in[r] + s * assembled.c_in[r]);
+            }
+            let mut det_head = 1.0; // Π u_ii for i < n−1, with the pivoting sign.
+            for col in 0..n {
+                let mut piv = col;
+                let mut best = self.m[col * n + col].abs();
+                for r in (col + 1)..n {
+                    let v = self.m[r * n + col].abs();
+                    if v > best {
+                        best = v;
+                        piv = r;
+                    }
+                }
+                if piv != col {
+                    for c in col..n {
+                        self.m.swap(col * n + c, piv * n + c);
+                    }
+                    self.rhs.swap(col, piv);
+                    det_head = -det_head;
+                }
+                let pivot = self.m[col * n + col];
+                if col + 1 == n {
+                    break;
+                }
+                if pivot == 0.0 {
+                    return false;
+                }
+                det_head *= pivot;
+                let inv = 1.0 / pivot;
+                for r in (col + 1)..n {
+                    let f = self.m[r * n + col] * inv;
+                    for c in (col + 1)..n {
+                        self.m[r * n + c] -= f * self.m[col * n + c];
+                    }
+                    self.rhs[r] -= f * self.rhs[col];
+                }
+            }
+            let last = if n > 0 { self.m[n * n - 1] } else { 1.0 };
+            let y_last = if n > 0 { self.rhs[n - 1] } else { 0.0 };
+            self.den_samples[si] = det_head * last;
+            self.num_samples[si] = det_head * y_last;
+        }
+        true
+    }
+}
+
+/// `|P(jy)|²` as a polynomial in `x = y²` written into `out` (length ≥ len(p)); see
+/// [`super::poly::Poly::magnitude_squared_in_x`]. Returns the number of coefficients written.
+pub fn magnitude_squared_into(p: &[f64], out: &mut [f64]) -> usize {
+    let len = p.len();
+    out[..len].iter_mut().for_each(|v| *v = 0.0);
+    // |P(jy)|² = Σ_a Σ_b p_a p_b (jy)^a (−jy)^b; with a + b even it is real:
+    // (j)^a (−j)^b = j^(a+b) (−1)^b = (−1)^((a+b)/2 + b).
+    for a in 0..len {
+        if p[a] == 0.0 {
+            continue;
+        }
+        for b in 0..len {
+            if (a + b) % 2 != 0 {
+                continue;
+            }
+            let sign = if ((a + b) / 2 + b) % 2 == 0 {
+                1.0
+            } else {
+                -1.0
+            };
+            out[(a + b) / 2] += sign * p[a] * p[b];
+        }
+    }
+    len
+}
