@@ -1230,3 +1230,70 @@ fn a_grid_of_requests_gives_a_sound_board_or_a_named_error() {
     eprintln!("grid: {n_boards} boards built");
     assert!(n_boards > 300, "most requests build: {n_boards}");
 }
+
+#[test]
+fn parts_list_is_rfc_4180_csv_with_exact_values() {
+    // RFC 4180: CRLF line ends, a field holding a comma or quote is quoted with quotes doubled.
+    // Every part is one row after the header; `value` reads back to the part value exactly.
+    use rolloff::export::bom;
+    let board = Board::build(&butterworth4(2.0), &BuildChoices::default()).unwrap();
+    let text = bom::csv(&board, &bom::Tolerances::default());
+    assert!(text.ends_with("\r\n") && !text.replace("\r\n", "").contains('\n'));
+    let lines: Vec<&str> = text.split("\r\n").filter(|l| !l.is_empty()).collect();
+    assert_eq!(
+        lines[0],
+        "ref,value,formatted,series,tolerance_pct,stage,role"
+    );
+    assert_eq!(lines.len(), board.parts().len() + 1);
+    for (line, part) in lines[1..].iter().zip(board.parts()) {
+        assert!(line.starts_with(&format!("{},", part.reference)), "{line}");
+        if part.kind == PartKind::OpAmp {
+            assert!(
+                line.contains("\"op amp: GBW 1 MHz, A0 100 dB, Rout 50 Ω\""),
+                "{line}"
+            );
+            continue;
+        }
+        let fields: Vec<&str> = line.split(',').collect();
+        assert_eq!(fields.len(), 7, "{line}");
+        assert_eq!(fields[1].parse::<f64>().unwrap(), part.value);
+        let tol = if part.kind == PartKind::Resistor {
+            "1"
+        } else {
+            "5"
+        };
+        assert_eq!(
+            fields[4], tol,
+            "1 % resistors, 5 % capacitors (common practice)"
+        );
+        assert!(["e96", "e12"].contains(&fields[3]), "{line}");
+    }
+    assert_eq!(bom::field("a \"b\", c"), "\"a \"\"b\"\", c\"");
+    // The SPICE export refuses a sweep it cannot write, naming the flag.
+    use rolloff::export::spice::{netlist, AcSweep};
+    let bad = |s: AcSweep| netlist(&board, &s).unwrap_err().key;
+    assert_eq!(
+        bad(AcSweep {
+            f_start_hz: 0.0,
+            ..AcSweep::default()
+        }),
+        "from"
+    );
+    assert_eq!(
+        bad(AcSweep {
+            f_stop_hz: 5.0,
+            ..AcSweep::default()
+        }),
+        "to"
+    );
+    assert_eq!(
+        bad(AcSweep {
+            points_per_decade: 0,
+            ..AcSweep::default()
+        }),
+        "points"
+    );
+    let deck = netlist(&board, &AcSweep::default()).unwrap();
+    assert!(deck.contains("V1 in 0 DC 0 AC 1") && deck.contains(".ac dec 50 1e1 1e7"));
+    assert!(deck.trim_end().ends_with(".end") && deck.is_ascii());
+}
