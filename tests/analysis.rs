@@ -20,7 +20,7 @@ use rolloff::design::synthesize;
 use rolloff::eseries::Series;
 use rolloff::netlist::{Part, PartKind, StageNetlist};
 use rolloff::opamp::OpAmp;
-use rolloff::sections::{Section, SectionKind, StageOrder};
+use rolloff::sections::StageOrder;
 use rolloff::spec::{Edge, Family, Mask, OrderChoice, Requirement, ResponseClass};
 use rolloff::topology::Topology;
 use std::f64::consts::PI;
@@ -257,7 +257,16 @@ fn real_point_fit_matches_the_circle_fit() {
             let assembled = compiled.assemble(&stage.netlist);
             let w_g = 2.0 * PI * 1000.0;
             let mut fast = FastFit::new(&compiled, compiled.scale_rad_s * 1.1, w_g);
+            // Both elimination paths: partial pivoting, then the static pivot order.
             assert!(fast.fit(&assembled));
+            let partial = (fast.num_u.clone(), fast.den_u.clone());
+            fast.choose_pivots(&assembled);
+            assert!(fast.fit(&assembled));
+            for (a, b) in partial.1.iter().zip(&fast.den_u) {
+                assert!(
+                    (a - b).abs() <= 1e-12 * partial.1.iter().fold(0.0f64, |m, v| m.max(v.abs()))
+                );
+            }
             fast.trim();
             let k = fast.n_coef();
             let mut pn = vec![0.0; k];

@@ -23,6 +23,13 @@ pub struct FastFit {
     interp: Vec<f64>,
     /// Unknown permutation that puts the output last.
     perm: Vec<usize>,
+    /// Static pivot order: after the output-last permutation, row `row_order[k]` is eliminated at
+    /// step k (chosen once from the nominal matrix, see [`FastFit::choose_pivots`]).
+    row_order: Vec<usize>,
+    /// Sign of the static row permutation.
+    order_sign: f64,
+    /// Whether the static pivot order may be used.
+    static_ok: bool,
     m: Vec<f64>,
     rhs: Vec<f64>,
     num_samples: Vec<f64>,
@@ -122,6 +129,9 @@ impl FastFit {
             s_points: z.iter().map(|zi| zi * rho_rad_s).collect(),
             interp,
             perm,
+            row_order: (0..n).collect(),
+            order_sign: 1.0,
+            static_ok: false,
             m: vec![0.0; n * n],
             rhs: vec![0.0; n],
             num_samples: vec![0.0; k],
@@ -155,8 +165,94 @@ impl FastFit {
         self.k
     }
 
+    /// Chooses a static pivot order from the nominal matrices: partial pivoting at the middle
+    /// sample point, accepted when at every sample point each pivot is at least 1e-2 of the
+    /// largest candidate in its column (threshold pivoting). Part tolerances move the entries by
+    /// tens of percent, not by orders of magnitude, so the order stays good for every run; a run
+    /// whose pivot vanishes anyway falls back to partial pivoting.
+    pub fn choose_pivots(&mut self, assembled: &Assembled) {
+        let n = self.n;
+        if n == 0 {
+            return;
+        }
+        let load = |s: f64| -> Vec<f64> {
+            let mut m = vec![0.0; n * n];
+            for r in 0..n {
+                for c in 0..n {
+                    m[self.perm[r] * n + self.perm[c]] =
+                        assembled.g[r * n + c] + s * assembled.c[r * n + c];
+                }
+            }
+            m
+        };
+        let mid = self.s_points[self.s_points.len() / 2];
+        let mut m = load(mid);
+        let mut rows: Vec<usize> = (0..n).collect();
+        let mut sign = 1.0;
+        for col in 0..n {
+            let best = (col..n)
+                .max_by(|&a, &b| {
+                    m[rows[a] * n + col]
+                        .abs()
+                        .partial_cmp(&m[rows[b] * n + col].abs())
+                        .unwrap_or(std::cmp::Ordering::Equal)
+                })
+                .unwrap_or(col);
+            if best != col {
+                rows.swap(col, best);
+                sign = -sign;
+            }
+            let p = m[rows[col] * n + col];
+            if p == 0.0 {
+                self.static_ok = false;
+                return;
+            }
+            for r in (col + 1)..n {
+                let f = m[rows[r] * n + col] / p;
+                for c in col..n {
+                    m[rows[r] * n + c] -= f * m[rows[col] * n + c];
+                }
+            }
+        }
+        // Validate the order at every sample point.
+        for &s in &self.s_points {
+            let mut m = load(s);
+            for col in 0..n.saturating_sub(1) {
+                let p = m[rows[col] * n + col];
+                let biggest = (col..n).fold(0.0f64, |acc, r| acc.max(m[rows[r] * n + col].abs()));
+                if !(p.abs() >= 1e-2 * biggest && p != 0.0) {
+                    self.static_ok = false;
+                    return;
+                }
+                for r in (col + 1)..n {
+                    let f = m[rows[r] * n + col] / p;
+                    for c in col..n {
+                        m[rows[r] * n + c] -= f * m[rows[col] * n + c];
+                    }
+                }
+            }
+        }
+        // The permutation's sign is that of the pivoting sequence.
+        self.row_order = rows;
+        self.order_sign = sign;
+        self.static_ok = true;
+    }
+
     /// Fits `assembled`; false when a sample point hit a singular matrix.
     pub fn fit(&mut self, assembled: &Assembled) -> bool {
+        let fast = self.static_ok
+            && match self.n {
+                2 => self.sample_static::<2>(assembled),
+                3 => self.sample_static::<3>(assembled),
+                4 => self.sample_static::<4>(assembled),
+                5 => self.sample_static::<5>(assembled),
+                6 => self.sample_static::<6>(assembled),
+                _ => false,
+            };
+        if fast {
+            self.interpolate();
+            return true;
+        }
         // Fixed sizes let the compiler unroll the elimination completely; the common stages have
         // 2 to 6 unknowns.
         let ok = match self.n {
@@ -173,6 +269,12 @@ impl FastFit {
         if !ok {
             return false;
         }
+        self.interpolate();
+        true
+    }
+
+    /// Sample values to coefficients.
+    fn interpolate(&mut self) {
         let k = self.k;
         for j in 0..k {
             let row = &self.interp[j * k..(j + 1) * k];
@@ -184,6 +286,85 @@ impl FastFit {
             }
             self.num_u[j] = an;
             self.den_u[j] = ad;
+        }
+    }
+
+    /// Samples D and N with the static pivot order, four sample points at a time in the lanes of
+    /// fixed-size arrays (no branches inside the elimination, so it vectorises). False when a
+    /// pivot vanished (the caller then pivots partially).
+    fn sample_static<const N: usize>(&mut self, a: &Assembled) -> bool {
+        const L: usize = 4;
+        let mut g = [[0.0f64; N]; N];
+        let mut c = [[0.0f64; N]; N];
+        let mut g_in = [0.0f64; N];
+        let mut c_in = [0.0f64; N];
+        // Output-last column permutation, then the static row order.
+        let mut inv_order = [0usize; N];
+        for (step, &row) in self.row_order.iter().enumerate() {
+            inv_order[row] = step;
+        }
+        for r in 0..N {
+            let pr = inv_order[self.perm[r]];
+            for col in 0..N {
+                let pc = self.perm[col];
+                g[pr][pc] = a.g[r * N + col];
+                c[pr][pc] = a.c[r * N + col];
+            }
+            g_in[pr] = a.g_in[r];
+            c_in[pr] = a.c_in[r];
+        }
+        let k = self.k;
+        let mut start = 0;
+        while start < k {
+            let mut s = [0.0f64; L];
+            for (l, sl) in s.iter_mut().enumerate() {
+                *sl = self.s_points[(start + l).min(k - 1)];
+            }
+            let mut m = [[[0.0f64; L]; N]; N];
+            let mut rhs = [[0.0f64; L]; N];
+            for r in 0..N {
+                for col in 0..N {
+                    for l in 0..L {
+                        m[r][col][l] = g[r][col] + s[l] * c[r][col];
+                    }
+                }
+                for l in 0..L {
+                    rhs[r][l] = -(g_in[r] + s[l] * c_in[r]);
+                }
+            }
+            let mut det = [self.order_sign; L];
+            for col in 0..N - 1 {
+                let p = m[col][col];
+                if p.iter().any(|v| *v == 0.0 || !v.is_finite()) {
+                    return false;
+                }
+                let mut inv = [0.0f64; L];
+                for l in 0..L {
+                    det[l] *= p[l];
+                    inv[l] = 1.0 / p[l];
+                }
+                let pivot_row = m[col];
+                let pivot_rhs = rhs[col];
+                for r in (col + 1)..N {
+                    let mut f = [0.0f64; L];
+                    for l in 0..L {
+                        f[l] = m[r][col][l] * inv[l];
+                    }
+                    for cc in (col + 1)..N {
+                        for l in 0..L {
+                            m[r][cc][l] -= f[l] * pivot_row[cc][l];
+                        }
+                    }
+                    for l in 0..L {
+                        rhs[r][l] -= f[l] * pivot_rhs[l];
+                    }
+                }
+            }
+            for l in 0..L.min(k - start) {
+                self.den_samples[start + l] = det[l] * m[N - 1][N - 1][l];
+                self.num_samples[start + l] = det[l] * rhs[N - 1][l];
+            }
+            start += L;
         }
         true
     }

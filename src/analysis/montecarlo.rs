@@ -46,7 +46,7 @@ pub const MAX_RUNS: usize = 100_000;
 /// Largest part tolerance accepted, %.
 pub const MAX_TOLERANCE_PCT: f64 = 50.0;
 /// Frequencies evaluated together in the branch-free kernel.
-const LANES: usize = 8;
+const LANES: usize = 32;
 
 /// How part values are spread around their nominal value.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
@@ -318,6 +318,8 @@ pub struct MonteCarlo {
     nominal_h2: Vec<f64>,
     nominal_f0q: Vec<(f64, f64)>,
     fallbacks: usize,
+    /// |H|² at the cutoff: G²·10^(−a/10).
+    cutoff_level: f64,
 }
 
 #[derive(Debug, Clone, Copy, Default)]
@@ -643,7 +645,8 @@ impl MonteCarlo {
                     if order == 2 { "pair" } else { "" }
                 ))
             })?;
-            let fast = FastFit::new(&compiled, rat.scale_rad_s, w_g);
+            let mut fast = FastFit::new(&compiled, rat.scale_rad_s, w_g);
+            fast.choose_pivots(&assembled);
             let k = fast.n_coef();
             runs.push(StageRun {
                 compiled,
@@ -738,6 +741,10 @@ impl MonteCarlo {
             nominal_h2: Vec::new(),
             nominal_f0q: Vec::new(),
             fallbacks: 0,
+            cutoff_level: {
+                let CutoffDefinition::Attenuation { db } = settings.cutoff;
+                g2 * 10f64.powf(-db / 10.0)
+            },
             settings,
         };
         // The nominal board: the same path with every factor 1.
@@ -867,10 +874,8 @@ impl MonteCarlo {
         );
     }
 
-    /// |H|² of the current run's cascade at one frequency (scalar path for the cutoff search).
-    fn h2_at(&self, f_hz: f64) -> f64 {
-        let fg = self.w_g / (2.0 * PI);
-        let x = (f_hz / fg) * (f_hz / fg);
+    /// |H|² of the current run's cascade at `x = (f/f_g)²` (scalar path for the cutoff search).
+    fn h2_x(&self, x: f64) -> f64 {
         let mut num = 1.0;
         let mut den = 1.0;
         let w = self.width;
@@ -884,29 +889,33 @@ impl MonteCarlo {
     }
 
     /// The crossing of `level` between grid points `i` and `j` (|H|² on either side of it), to a
-    /// relative frequency accuracy of 1e-12: the Illinois variant of regula falsi on
-    /// `|H|²/level − 1` over ln f.
+    /// relative accuracy of 1e-12 in frequency: the Illinois variant of regula falsi on
+    /// `|H|²/level − 1` over `x = (f/f_g)²` (smooth there, and no exponentials per step).
     fn refine_crossing(&self, i: usize, j: usize, level: f64) -> f64 {
-        let f = &self.settings.freqs_hz;
+        let xs = &self.x_eval;
         let inv = 1.0 / level;
-        let g = |u: f64| self.h2_at(u.exp()) * inv - 1.0;
-        let (mut a, mut b) = (f[i].ln(), f[j].ln());
+        let g = |x: f64| self.h2_x(x) * inv - 1.0;
+        let (mut a, mut b) = (xs[i], xs[j]);
         let (mut ga, mut gb) = (g(a), g(b));
+        let fg = self.w_g / (2.0 * PI);
         if !(ga.is_finite() && gb.is_finite()) || ga * gb > 0.0 {
             return f64::NAN;
         }
         if ga == 0.0 {
-            return f[i];
+            return fg * a.sqrt();
         }
         let mut side = 0i32;
+        let mut c = a;
         for _ in 0..100 {
-            let c = (a * gb - b * ga) / (gb - ga);
+            let c_new = (a * gb - b * ga) / (gb - ga);
+            let converged = (c_new - c).abs() <= 2e-12 * c_new.abs();
+            c = c_new;
             let gc = g(c);
             if !gc.is_finite() {
                 return f64::NAN;
             }
-            if gc == 0.0 || (b - a).abs() < 1e-12 {
-                return c.exp();
+            if gc == 0.0 || converged {
+                break;
             }
             if gc * gb > 0.0 {
                 b = c;
@@ -923,13 +932,8 @@ impl MonteCarlo {
                 }
                 side = 1;
             }
-            // Stop when the last step moved the estimate by less than 1e-12 in ln f.
-            let c2 = (a * gb - b * ga) / (gb - ga);
-            if (c2 - c).abs() < 1e-12 {
-                return c2.exp();
-            }
         }
-        ((a + b) / 2.0).exp()
+        fg * c.sqrt()
     }
 
     fn evaluate_run(&self) -> RunResult {
@@ -943,13 +947,13 @@ impl MonteCarlo {
             .zip(&self.hi_bound)
             .zip(&self.stop_weight)
         {
-            violations += u64::from(v < lo) + u64::from(v > hi) + u64::from(v.is_nan());
+            // A NaN fails both comparisons and so counts as a violation.
+            violations += u64::from(!(v >= lo && v <= hi));
             let s = v * w;
             worst_stop = if s > worst_stop { s } else { worst_stop };
         }
         let g2 = self.settings.reference_gain * self.settings.reference_gain;
-        let CutoffDefinition::Attenuation { db } = self.settings.cutoff;
-        let level = g2 * 10f64.powf(-db / 10.0);
+        let level = self.cutoff_level;
         let grid = &h2[..self.n_grid];
         let want_upper = matches!(
             self.settings.class,
@@ -1149,7 +1153,8 @@ impl MonteCarlo {
 /// The branch-free cascade kernel: `out[f] = Π_k Pn_k(x_f) / Π_k Pd_k(x_f)`, with each stage's
 /// polynomials in a row of `width` coefficients. `x.len()` must be a multiple of 8.
 ///
-/// On x86-64 processors with AVX2 the same code is run compiled for AVX2 (selected at run time).
+/// On x86-64 processors with AVX-512F or AVX2 the same code is run compiled for that extension
+/// (selected at run time).
 /// Rust does not fuse multiplies and adds, and every lane does the same operations in the same
 /// order, so the results are bit-identical on every path and on wasm.
 pub fn cascade_kernel(
@@ -1163,6 +1168,11 @@ pub fn cascade_kernel(
 ) {
     #[cfg(target_arch = "x86_64")]
     {
+        if std::arch::is_x86_feature_detected!("avx512f") {
+            // SAFETY: the processor supports AVX-512F, checked on the line above.
+            unsafe { cascade_kernel_avx512(x, coef_n, coef_d, deg_n, deg_d, width, out) };
+            return;
+        }
         if std::arch::is_x86_feature_detected!("avx2") {
             // SAFETY: the processor supports AVX2, checked on the line above.
             unsafe { cascade_kernel_avx2(x, coef_n, coef_d, deg_n, deg_d, width, out) };
@@ -1175,6 +1185,20 @@ pub fn cascade_kernel(
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
 unsafe fn cascade_kernel_avx2(
+    x: &[f64],
+    coef_n: &[f64],
+    coef_d: &[f64],
+    deg_n: &[usize],
+    deg_d: &[usize],
+    width: usize,
+    out: &mut [f64],
+) {
+    cascade_kernel_portable(x, coef_n, coef_d, deg_n, deg_d, width, out);
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+unsafe fn cascade_kernel_avx512(
     x: &[f64],
     coef_n: &[f64],
     coef_d: &[f64],
