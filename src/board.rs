@@ -5,6 +5,24 @@
 //! [`Board::build`] is the pure function sections → board; [`Board::netlist`] merges the stages
 //! into one netlist (each stage's input is the previous stage's output) for the nodal analysis
 //! of the cascade and the SPICE export.
+//!
+//! ## Where the attenuation goes
+//! The synthesis spreads the overall passband gain evenly in dB over the sections. When that
+//! overall gain is below 1 (a gain below 0 dB, or an even-order Chebyshev, whose DC gain is the
+//! ripple below the passband maximum), the non-inverting stages (Sallen-Key, buffered RC) take
+//! it through an input divider ([`crate::topology::divider`]). Rather than one thin divider per
+//! stage, [`place_gains`] gives the whole factor to the first non-inverting stage in signal
+//! order (with the default ascending-Q order, the lowest-Q stage) and runs the others at unity:
+//! - a divider of ratio k needs a lower leg R/(1 − k): thin slices close to 1 need the most
+//!   extreme legs (−0.17 dB is k = 0.981 and a lower leg of 53·R; −0.5 dB in one place is
+//!   k = 0.944 and 18·R), and each slice costs a part;
+//! - attenuating at the input keeps every later node at or below the level a unity-gain
+//!   cascade would have, so the high-Q stages that follow have the most headroom (common
+//!   practice). The price is a signal smaller by k in front of the later stages' noise, which for
+//!   the fractions of a dB of a ripple is negligible.
+//!
+//! Inverting stages (multiple feedback) set any gain by a part ratio at no cost, so their gains
+//! are left as the synthesis spread them; the overall gain is unchanged either way.
 
 use crate::error::InputError;
 use crate::eseries::{PartClass, Series};
@@ -93,7 +111,8 @@ impl Default for BuildChoices {
 /// One op-amp stage of the board.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Stage {
-    /// The section it realizes (target f0, Q, gain).
+    /// The section it realizes (target f0, Q, gain), with the gain [`place_gains`] gave this
+    /// stage.
     pub section: Section,
     /// The circuit used.
     pub circuit: Circuit,
@@ -182,6 +201,41 @@ fn check_choices(choices: &BuildChoices) -> Result<(), InputError> {
     Ok(())
 }
 
+/// The sections with their gains placed for the board (see the module docs): when the
+/// non-inverting stages' gains multiply to less than 1, the first of them (in signal order)
+/// takes that whole product and the others get magnitude 1; signs, inverting stages and every
+/// other case are left as they are. The product of all gains is unchanged (to rounding of the
+/// product, 1e-15 relative).
+///
+/// A section that no circuit can take (zero or non-finite gain, bad f0 or Q) leaves the gains
+/// untouched, so that [`Board::build`] reports it as the synthesis made it.
+pub fn place_gains(sections: &[Section], topology: Topology) -> Vec<Section> {
+    let mut placed = sections.to_vec();
+    let mut non_inverting = Vec::new();
+    for (idx, section) in sections.iter().enumerate() {
+        match topology::choose(topology, section, idx + 1) {
+            Ok((circuit, _)) => {
+                if !circuit.inverting() {
+                    non_inverting.push(idx);
+                }
+            }
+            Err(_) => return placed,
+        }
+    }
+    let product: f64 = non_inverting
+        .iter()
+        .map(|&idx| sections[idx].gain.abs())
+        .product();
+    if non_inverting.len() < 2 || !(product < 1.0) {
+        return placed;
+    }
+    for (n, &idx) in non_inverting.iter().enumerate() {
+        let magnitude = if n == 0 { product } else { 1.0 };
+        placed[idx].gain = magnitude.copysign(sections[idx].gain);
+    }
+    placed
+}
+
 impl Stage {
     /// Reads f0, Q and gain back from the stage's netlist values and updates the errors.
     fn analyse(&mut self) {
@@ -211,8 +265,9 @@ impl Stage {
 impl Board {
     /// Builds the board for `sections` (in signal order) with the design freedoms `choices`.
     ///
-    /// Each section becomes one stage ([`topology::design_stage`]); parts are numbered R1…, C1…,
-    /// U1… over the board in signal order; the overrides of `choices.overrides` replace values by
+    /// The gains are first placed for the board ([`place_gains`]: an overall attenuation goes to
+    /// one input divider). Each section becomes one stage ([`topology::design_stage`]); parts are
+    /// numbered R1…, C1…, U1… over the board in signal order; the overrides of `choices.overrides` replace values by
     /// reference; achieved f0, Q and gain are computed from the final values (closed forms,
     /// ideal op amp — the nodal analysis in [`crate::mna`] adds the real op amp).
     ///
@@ -241,8 +296,9 @@ impl Board {
             r_ratio: choices.r_ratio,
             rounding: choices.rounding,
         };
-        let mut stages = Vec::with_capacity(sections.len());
-        for (idx, section) in sections.iter().enumerate() {
+        let placed = place_gains(sections, choices.topology);
+        let mut stages = Vec::with_capacity(placed.len());
+        for (idx, section) in placed.iter().enumerate() {
             let design = topology::design_stage(section, &freedoms, idx + 1)?;
             let mut stage = Stage {
                 section: *section,

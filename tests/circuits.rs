@@ -662,10 +662,14 @@ fn every_bad_choice_names_its_key() {
         ),
         "cratio"
     );
-    // A Sallen-Key stage cannot attenuate.
+    // A Sallen-Key stage attenuates through an input divider (both topologies take any gain);
+    // only an attenuation no divider inside the part ranges can give (k = 1e-9: the upper leg
+    // would be 1e9 times the Thevenin value) is refused, under `gain`.
     let atten = [section(SectionKind::LowPass, 1e3, Some(0.7), 0.5)];
-    assert_eq!(build_err(&atten, &base), "gain");
+    assert!(Board::build(&atten, &base).is_ok(), "SK attenuates");
     assert!(Board::build(&atten, &mfb).is_ok(), "MFB takes any gain");
+    let too_deep = [section(SectionKind::LowPass, 1e3, Some(0.7), 1e-9)];
+    assert_eq!(build_err(&too_deep, &base), "gain");
     // Impedance level and op-amp values.
     assert_eq!(
         build_err(

@@ -45,6 +45,7 @@ fn buffered_layout(gain_network: bool, first: [Slot; 2]) -> Layout {
         slots,
         op_amp: [a, minus, out],
         op_amp_position: 2,
+        divider: None,
     }
 }
 
@@ -168,6 +169,7 @@ impl Realization for InvertingLowPass {
             ],
             op_amp: [GND, m, out],
             op_amp_position: 3,
+            divider: None,
         }
     }
     fn solve(&self, t: &Target, v: &mut [f64], _hint: Option<f64>) -> bool {
@@ -226,6 +228,7 @@ impl Realization for InvertingHighPass {
             ],
             op_amp: [GND, m, out],
             op_amp_position: 3,
+            divider: None,
         }
     }
     fn solve(&self, t: &Target, v: &mut [f64], _hint: Option<f64>) -> bool {

@@ -48,6 +48,7 @@ fn layout(slots: Vec<super::Slot>) -> Layout {
         input: 0,
         output: 3,
         op_amp_position: slots.len(),
+        divider: None,
         slots,
         op_amp: [GND, M, OUT],
     }

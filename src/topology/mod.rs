@@ -15,6 +15,7 @@
 //!
 //! The circuits and their closed forms live in [`sallen_key`], [`mfb`] and [`first_order`].
 
+pub mod divider;
 pub mod first_order;
 pub mod mfb;
 pub mod sallen_key;
@@ -262,6 +263,8 @@ pub(crate) struct Layout {
     pub op_amp: [Node; 3],
     /// Position in the part list where the op amp is drawn (parts before it come first).
     pub op_amp_position: usize,
+    /// The input divider of a non-inverting stage with gain below 1, if any.
+    pub divider: Option<divider::Divider>,
 }
 
 impl Layout {
@@ -398,16 +401,41 @@ pub const PREFERRED_C_MIN_F: f64 = 100.0e-12;
 /// A gain within this of 1 is built as a follower.
 const UNITY_TOLERANCE: f64 = 1e-3;
 
+/// How a non-inverting stage (Sallen-Key, buffered RC) sets its passband gain K.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum GainShape {
+    /// K = 1: the op amp is a follower (also for |K − 1| ≤ 10⁻³, with a warning when K ≠ 1).
+    Follower,
+    /// K = 1 + Rf/Rg > 1: a resistor from the output to the − input and one to ground.
+    Amplifier,
+    /// K < 1: the input part split into a divider with the same Thevenin value ([`divider`]).
+    InputDivider,
+}
+
+impl GainShape {
+    /// The shape for a passband gain magnitude `k` on a circuit that has the choice.
+    fn for_gain(k: f64) -> GainShape {
+        if k > 1.0 + UNITY_TOLERANCE {
+            GainShape::Amplifier
+        } else if k < 1.0 - UNITY_TOLERANCE {
+            GainShape::InputDivider
+        } else {
+            GainShape::Follower
+        }
+    }
+}
+
 /// The circuit for a section under a topology choice, and a note when the choice had to be
 /// changed (a band-pass section under `topo=sk` is built as multiple feedback: there is no
 /// Sallen-Key band-pass here).
 ///
-/// Non-inverting circuits (Sallen-Key, buffered RC) need |gain| ≥ 1; inverting ones take any
-/// gain magnitude > 0.
+/// Every circuit takes any gain magnitude > 0: inverting ones through their resistor (or
+/// capacitor) ratio, non-inverting ones (Sallen-Key, buffered RC) as a follower (|gain| = 1),
+/// with a two-resistor gain network (|gain| > 1) or with an input divider (|gain| < 1, see
+/// [`divider`]).
 ///
 /// # Errors
-/// `order` for a first-order band-pass section; `gain` for a zero or non-finite gain, or a gain
-/// below 1 (0 dB) on a non-inverting stage (the message suggests `topo=mfb`); `fc` for a
+/// `order` for a first-order band-pass section; `gain` for a zero or non-finite gain; `fc` for a
 /// frequency that is not finite and positive; `order` for a Q that is not finite and positive.
 pub fn choose(
     topology: Topology,
@@ -466,29 +494,20 @@ pub fn choose(
             ))
         }
     };
-    let magnitude = section.gain.abs();
-    if !circuit.inverting() && magnitude < 1.0 - 1e-9 {
-        return Err(InputError::new(
-            "gain",
-            format!(
-                "stage {stage_no}: a {} cannot attenuate (gain {:.4} V/V = {:.2} dB asked; it \
-                 needs ≥ 1 V/V = 0 dB); use topo=mfb, whose stages take any gain, or a gain ≥ 0 dB",
-                circuit.describe(),
-                magnitude,
-                20.0 * magnitude.log10()
-            ),
-        ));
-    }
     Ok((circuit, note))
 }
 
 /// Designs one stage: chooses the circuit, its free values, solves the rest and rounds them.
 ///
+/// A non-inverting circuit with |gain| < 1 gets an input divider ([`divider`]): its f0 and Q are
+/// those of the unity-gain design with the divider's Thevenin value, its gain the divider ratio.
+///
 /// # Errors
 /// As [`choose`]; `cratio` when the capacitor ratio is out of the circuit's feasible range (the
 /// message gives the bound and suggests a gain or another topology); `rratio` likewise, or when
 /// both ratios are given; `rlevel` when no impedance level keeps every part inside the buildable
-/// ranges (resistors 1 Ω–10 MΩ, capacitors 1 pF–100 µF).
+/// ranges (resistors 1 Ω–10 MΩ, capacitors 1 pF–100 µF); `gain` when only the legs of an input
+/// divider leave those ranges (an attenuation too deep for one divider).
 pub fn design_stage(
     section: &Section,
     freedoms: &Freedoms,
@@ -497,12 +516,24 @@ pub fn design_stage(
     let (circuit, note) = choose(freedoms.topology, section, stage_no)?;
     let mut warnings: Vec<String> = note.into_iter().collect();
     let target = Target::from_section(section);
-    let realization = circuit.realization();
+    let unity_realization = circuit.realization();
 
-    // The gain network only when the gain is really above 1.
-    let gain_network = circuit.has_gain_network_option() && target.gain > 1.0 + UNITY_TOLERANCE;
+    // A gain network only when the gain is really above 1, a divider only when it is really
+    // below 1; in between a follower.
+    let shape = if circuit.has_gain_network_option() {
+        GainShape::for_gain(target.gain)
+    } else {
+        GainShape::Follower
+    };
+    let gain_network = shape == GainShape::Amplifier;
+    let divided = divider::Divided(unity_realization);
+    let realization: &dyn Realization = if shape == GainShape::InputDivider {
+        &divided
+    } else {
+        unity_realization
+    };
     let mut target = target;
-    if circuit.has_gain_network_option() && !gain_network {
+    if circuit.has_gain_network_option() && shape == GainShape::Follower {
         if (target.gain - 1.0).abs() > 1e-9 {
             warnings.push(format!(
                 "stage {stage_no}: gain {:.5} V/V is built as a follower (gain 1, error {:.4} dB)",
@@ -587,6 +618,40 @@ pub fn design_stage(
         hint,
     )
     .ok_or_else(|| {
+        // When the follower version of the stage fits the part ranges, it is the divider's legs
+        // that do not: say so under the key that asked for the attenuation.
+        if shape == GainShape::InputDivider {
+            let unity_target = Target {
+                gain: 1.0,
+                ..target
+            };
+            let follower = unity_realization.layout(false);
+            let fits = choose_level(
+                unity_realization,
+                &follower,
+                &unity_target,
+                freedoms,
+                level,
+                auto_level,
+                ratio,
+                ratio_exact,
+                hint,
+            )
+            .is_some();
+            if fits {
+                return InputError::new(
+                    "gain",
+                    format!(
+                        "stage {stage_no} ({}): a gain of {:.4} dB through an input divider \
+                         (ratio k = {:.4e}) needs legs that no impedance level keeps inside \
+                         1 Ω–10 MΩ and 1 pF–100 µF; ask for less attenuation (gain)",
+                        circuit.describe(),
+                        20.0 * target.gain.log10(),
+                        target.gain
+                    ),
+                );
+            }
+        }
         InputError::new(
             "rlevel",
             format!(
@@ -738,36 +803,70 @@ fn set_gain_ground_resistor(
     }
 }
 
+/// The resistors that set the impedance level: every scaled resistor and, for a resistive input
+/// divider, its Thevenin value Ra‖Rb in place of the two legs (the rest of the stage sees only
+/// that value; the legs' own spread is fixed by the gain).
+fn level_resistors(layout: &Layout, values: &[f64]) -> Vec<f64> {
+    let mut resistors: Vec<f64> = layout
+        .slots
+        .iter()
+        .zip(values)
+        .filter(|(slot, _)| slot.class == PartClass::Resistor && slot.scaled)
+        .map(|(_, &v)| v)
+        .collect();
+    if let Some(d) = layout.divider.filter(|d| d.class == PartClass::Resistor) {
+        if let (Some(&u), Some(&l)) = (values.get(d.upper), values.get(d.lower)) {
+            resistors.push(d.thevenin(u, l));
+        }
+    }
+    resistors
+}
+
+/// True for the slot of a resistive divider leg.
+fn is_resistor_leg(layout: &Layout, idx: usize) -> bool {
+    layout
+        .divider
+        .is_some_and(|d| d.class == PartClass::Resistor && (idx == d.upper || idx == d.lower))
+}
+
 fn scaled_resistor_span(layout: &Layout, values: &[f64]) -> Option<(f64, f64)> {
     let mut lo = f64::INFINITY;
     let mut hi = 0.0f64;
-    for (slot, &v) in layout.slots.iter().zip(values) {
-        if slot.class == PartClass::Resistor && slot.scaled {
-            lo = lo.min(v);
-            hi = hi.max(v);
-        }
+    for v in level_resistors(layout, values) {
+        lo = lo.min(v);
+        hi = hi.max(v);
     }
     (lo.is_finite() && lo > 0.0 && hi.is_finite()).then_some((lo, hi))
 }
 
 /// How far the resistors sit from the level (max |ln(R/level)|), plus, for the automatic level,
-/// penalties for leaving 1 kΩ–100 kΩ or going below 100 pF. `None` when a part is outside the
-/// buildable range.
+/// penalties for leaving 1 kΩ–100 kΩ or going below 100 pF. A resistive input divider counts
+/// by its Thevenin value (a lower leg far above 100 kΩ is what a gain close to 1 needs, not a
+/// sign of a bad level); capacitor legs count each (a small leg is at the mercy of stray
+/// capacitance). `None` when a part is outside the buildable range.
 fn level_cost(layout: &Layout, values: &[f64], level: f64, auto_level: bool) -> Option<f64> {
     let mut cost = 0.0f64;
     let mut penalty = 0.0;
-    for (slot, &v) in layout.slots.iter().zip(values) {
+    let window_penalty =
+        |v: f64| (PREFERRED_R_OHM.0 / v).ln().max(0.0) + (v / PREFERRED_R_OHM.1).ln().max(0.0);
+    for r in level_resistors(layout, values) {
+        cost = cost.max((r / level).ln().abs());
+    }
+    if let (Some(d), true) = (layout.divider, auto_level) {
+        if d.class == PartClass::Resistor {
+            if let (Some(&u), Some(&l)) = (values.get(d.upper), values.get(d.lower)) {
+                penalty += window_penalty(d.thevenin(u, l));
+            }
+        }
+    }
+    for (idx, (slot, &v)) in layout.slots.iter().zip(values).enumerate() {
         if !(v.is_finite() && v > 0.0 && slot.class.in_range(v)) {
             return None;
         }
         match slot.class {
             PartClass::Resistor => {
-                if slot.scaled {
-                    cost = cost.max((v / level).ln().abs());
-                }
-                if auto_level {
-                    penalty += (PREFERRED_R_OHM.0 / v).ln().max(0.0);
-                    penalty += (v / PREFERRED_R_OHM.1).ln().max(0.0);
+                if auto_level && !is_resistor_leg(layout, idx) {
+                    penalty += window_penalty(v);
                 }
             }
             PartClass::Capacitor => {
@@ -800,7 +899,9 @@ fn level_warnings(
         .fold(f64::INFINITY, f64::min);
     let f0 = target.f0_hz();
     for (idx, (slot, &v)) in layout.slots.iter().zip(values).enumerate() {
-        let _ = idx;
+        let is_leg = layout
+            .divider
+            .is_some_and(|d| idx == d.upper || idx == d.lower);
         let (low, high) = match slot.class {
             PartClass::Resistor => (v < PREFERRED_R_OHM.0, v > PREFERRED_R_OHM.1),
             PartClass::Capacitor => (v < PREFERRED_C_MIN_F, false),
@@ -813,7 +914,13 @@ fn level_warnings(
             (PartClass::Resistor, false) => "is above the usual 100 kΩ",
             (PartClass::Capacitor, _) => "is below the usual 100 pF",
         };
-        let reason = if let Some(level) = freedoms.level_ohm {
+        let reason = if is_leg {
+            format!(
+                "the gain of {:.4} V/V ({:.2} dB) needs this input divider ratio",
+                target.gain,
+                20.0 * target.gain.log10()
+            )
+        } else if let Some(level) = freedoms.level_ohm {
             format!("the impedance level rlevel = {level} Ω puts it there")
         } else if !slot.scaled {
             format!(
@@ -851,13 +958,24 @@ fn level_warnings(
 /// circuit's module). `values` are the resistors and capacitors in netlist part order
 /// ([`StageNetlist::passive_values`]).
 ///
+/// The part count tells a non-inverting circuit's gain shape: the follower's parts; one more
+/// (the input part split into a divider, [`divider`]: f0 and Q of the follower with the
+/// divider's Thevenin value Ra‖Rb or Ca + Cb, gain times the divider ratio Rb/(Ra + Rb) or
+/// Ca/(Ca + Cb)); or two more (the gain network, K = 1 + Rf/Rg).
+///
 /// Returns `None` when the list does not fit the circuit (wrong length) or holds a value that is
 /// not finite and positive.
 pub fn achieved(circuit: Circuit, values: &[f64]) -> Option<Achieved> {
     if values.iter().any(|v| !(v.is_finite() && *v > 0.0)) {
         return None;
     }
-    circuit.realization().achieved(values)
+    let realization = circuit.realization();
+    if circuit.has_gain_network_option()
+        && values.len() == realization.layout(false).slots.len() + 1
+    {
+        return divider::Divided(realization).achieved(values);
+    }
+    realization.achieved(values)
 }
 
 /// Solves `a·x² − b·x + c = 0` for positive roots, stably (no cancellation). Returns the positive

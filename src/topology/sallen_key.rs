@@ -84,6 +84,7 @@ fn layout(gain_network: bool, first: [Slot; 4]) -> Layout {
         slots,
         op_amp: [B, minus, OUT],
         op_amp_position: 4,
+        divider: None,
     }
 }
 

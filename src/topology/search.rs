@@ -8,7 +8,13 @@
 //! e_f0² + e_Q² + e_gain² (relative errors, [`super::Achieved::cost`]) wins. Nearest rounding is
 //! always among the candidates' neighbours and is kept when nothing beats it, so the search is
 //! never worse than nearest rounding.
+//!
+//! The two legs of an input divider are one choice with several candidate pairs
+//! ([`super::divider::pair_choices`]): the neighbours of each leg, and the other leg re-solved to
+//! keep the Thevenin value or the ratio. Capacitor legs are free parts (the resistors are
+//! re-solved from their sum), resistor legs are dependent parts (taken after the solve).
 
+use super::divider::pair_choices;
 use super::{Layout, Realization, Target};
 use crate::eseries::{PartClass, Series};
 use crate::link::Rounding;
@@ -59,13 +65,16 @@ pub(crate) fn nearest(
         .collect()
 }
 
-/// Calls `visit` with every combination of one value from each list.
-fn for_each_combination(lists: &[Vec<f64>], visit: &mut dyn FnMut(&[f64])) {
+/// One way to set some parts: (slot index, value) pairs.
+type Choice = Vec<(usize, f64)>;
+
+/// Calls `visit` with every combination of one entry from each list.
+fn for_each_combination<T: Clone>(lists: &[Vec<T>], visit: &mut dyn FnMut(&[T])) {
     let mut pick = vec![0usize; lists.len()];
     if lists.iter().any(|l| l.is_empty()) {
         return;
     }
-    let mut current: Vec<f64> = lists.iter().map(|l| l[0]).collect();
+    let mut current: Vec<T> = lists.iter().map(|l| l[0].clone()).collect();
     loop {
         visit(&current);
         // Odometer increment.
@@ -76,14 +85,56 @@ fn for_each_combination(lists: &[Vec<f64>], visit: &mut dyn FnMut(&[f64])) {
             }
             pick[pos] += 1;
             if pick[pos] < lists[pos].len() {
-                current[pos] = lists[pos][pick[pos]];
+                current[pos] = lists[pos][pick[pos]].clone();
                 break;
             }
             pick[pos] = 0;
-            current[pos] = lists[pos][0];
+            current[pos] = lists[pos][0].clone();
             pos += 1;
         }
     }
+}
+
+/// The choices for the parts whose `free` flag is `free`, from `values`: the `n_near` standard
+/// values near each part, and the divider pair (when its legs are of this kind) as pairs.
+fn choices(
+    layout: &Layout,
+    values: &[f64],
+    free: bool,
+    n_near: usize,
+    r_series: Series,
+    c_series: Series,
+) -> Vec<Vec<Choice>> {
+    let divider = layout.divider.filter(|d| {
+        layout
+            .slots
+            .get(d.upper)
+            .is_some_and(|slot| slot.free == free)
+    });
+    let in_pair = |i: usize| divider.is_some_and(|d| i == d.upper || i == d.lower);
+    let mut lists: Vec<Vec<Choice>> = layout
+        .slots
+        .iter()
+        .enumerate()
+        .filter(|(i, slot)| slot.free == free && !in_pair(*i))
+        .map(|(i, slot)| {
+            series_of(slot.class, r_series, c_series)
+                .candidates(values[i], n_near, slot.class)
+                .into_iter()
+                .map(|v| vec![(i, v)])
+                .collect()
+        })
+        .collect();
+    if let Some(d) = divider {
+        lists.push(pair_choices(
+            &d,
+            values[d.upper],
+            values[d.lower],
+            n_near,
+            series_of(d.class, r_series, c_series),
+        ));
+    }
+    lists
 }
 
 /// The combination search; `None` when no combination re-solves.
@@ -96,46 +147,30 @@ pub(crate) fn combination_search(
     c_series: Series,
     hint: Option<f64>,
 ) -> Option<(Vec<f64>, f64)> {
-    let free_idx: Vec<usize> = (0..layout.slots.len())
-        .filter(|&i| layout.slots[i].free)
-        .collect();
-    let dep_idx: Vec<usize> = (0..layout.slots.len())
-        .filter(|&i| !layout.slots[i].free)
-        .collect();
-    let free_lists: Vec<Vec<f64>> = free_idx
-        .iter()
-        .map(|&i| {
-            let slot = &layout.slots[i];
-            series_of(slot.class, r_series, c_series).candidates(
-                ideal[i],
-                FREE_CANDIDATES,
-                slot.class,
-            )
-        })
-        .collect();
+    if ideal.len() != layout.slots.len() {
+        return None;
+    }
+    let free_lists = choices(layout, ideal, true, FREE_CANDIDATES, r_series, c_series);
     let mut best: Option<(Vec<f64>, f64)> = None;
-    for_each_combination(&free_lists, &mut |free_values| {
+    for_each_combination(&free_lists, &mut |free_choice| {
         let mut values = ideal.to_vec();
-        for (&i, &v) in free_idx.iter().zip(free_values) {
+        for &(i, v) in free_choice.iter().flatten() {
             values[i] = v;
         }
         if !realization.solve(target, &mut values, hint) {
             return;
         }
-        let dep_lists: Vec<Vec<f64>> = dep_idx
-            .iter()
-            .map(|&i| {
-                let slot = &layout.slots[i];
-                series_of(slot.class, r_series, c_series).candidates(
-                    values[i],
-                    DEPENDENT_CANDIDATES,
-                    slot.class,
-                )
-            })
-            .collect();
-        for_each_combination(&dep_lists, &mut |dep_values| {
+        let dep_lists = choices(
+            layout,
+            &values,
+            false,
+            DEPENDENT_CANDIDATES,
+            r_series,
+            c_series,
+        );
+        for_each_combination(&dep_lists, &mut |dep_choice| {
             let mut trial = values.clone();
-            for (&i, &v) in dep_idx.iter().zip(dep_values) {
+            for &(i, v) in dep_choice.iter().flatten() {
                 trial[i] = v;
             }
             let Some(achieved) = realization.achieved(&trial) else {
