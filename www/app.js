@@ -17,6 +17,7 @@
     frame: 0,
     study: null,            // { cancelled, chunk }
     studyTimer: 0,
+    studies: 0,             // finished tolerance studies (stamped on <body> for tests)
     cursor: null,           // keyboard crosshair position (CSS px) on the main plot
   };
   var dark = window.matchMedia ? window.matchMedia('(prefers-color-scheme: dark)') : null;
@@ -424,8 +425,12 @@
    * (the value the design used) and the refusal is listed in the notice. */
   function openQuery(search) {
     var params = new URLSearchParams(search);
+    // The link as it came is read first, so that its unknown keys and refused values are known.
+    var view = engine.evaluate(params.toString(), true);
+    if (view.refused) {
+      params = new URLSearchParams();
+    }
     applyQuery(params);
-    var view = engine.evaluate(readForm(), true);
     var reset = false;
     view.errors.forEach(function (error) {
       var target = fields().filter(function (e) { return e.name === error.key; });
@@ -439,9 +444,14 @@
     syncVisibility();
     var query = readForm();
     window.history.replaceState(null, '', window.location.pathname + '?' + query + window.location.hash);
-    var final = reset ? engine.evaluate(query, true) : view;
-    var notes = final.ignored.slice();
-    view.errors.forEach(function (e) { notes.push(e.key + ': ' + e.message + ' (the default is used)'); });
+    var final = engine.evaluate(query, true);
+    // What the opened link carried but the design does not use: its unknown keys and notes, and
+    // every refused value (the field went back to its default).
+    var notes = view.ignored.slice();
+    final.ignored.forEach(function (n) { if (notes.indexOf(n) < 0) notes.push(n); });
+    view.errors.forEach(function (e) {
+      notes.push(e.key + ': ' + e.message + (view.refused ? ' — the link is not opened' : ' (the default is used)'));
+    });
     render(final, false);
     showNotice(notes);
     if (final.committed) scheduleStudy();
@@ -554,7 +564,9 @@
         $('#study-run').disabled = false;
         $('#study-status').textContent = p.status;
         if (p.summary) $('#summary').textContent = p.summary;
+        state.studies += 1;
         document.body.setAttribute('data-study-ms', String(Math.round(performance.now() - job.t0)));
+        document.body.setAttribute('data-study-done', String(state.studies));
         drawCanvas($('#plot-main'));
         $$('canvas[data-plot^="hist-"], .thumb canvas[data-plot="magnitude"]').forEach(drawCanvas);
         return;

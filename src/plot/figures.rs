@@ -419,16 +419,19 @@ fn step(data: &PlotData) -> Figure {
 }
 
 fn poles(data: &PlotData) -> Figure {
-    let all = data
-        .target_poles_hz
+    // The view is sized on the target poles: the op amp adds poles near its GBW, far outside,
+    // which would squash the filter's own poles into the origin (they are left off the view).
+    let reference = if data.target_poles_hz.is_empty() {
+        &data.built_poles_hz
+    } else {
+        &data.target_poles_hz
+    };
+    let reach = reference
         .iter()
-        .chain(&data.built_poles_hz)
-        .chain(&data.zeros_hz);
-    let reach = all
         .map(|p| p.re.abs().max(p.im.abs()))
         .filter(|v| v.is_finite())
         .fold(0.0_f64, f64::max);
-    let reach = if reach > 0.0 { reach * 1.15 } else { 1.0 };
+    let reach = if reach > 0.0 { reach * 1.25 } else { 1.0 };
     let to_points = |v: &[Complex64]| v.iter().map(|p| (p.re, p.im)).collect::<Vec<_>>();
     let mut layers = vec![
         Layer::Guide {

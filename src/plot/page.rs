@@ -138,6 +138,8 @@ pub struct FamilyRow {
 pub struct View {
     /// True when this evaluation replaced the drawn design (set by the caller that keeps models).
     pub committed: bool,
+    /// True when the link is refused as a whole (its `v` is newer than this build).
+    pub refused: bool,
     /// Problems with fields, each naming its key.
     pub errors: Vec<FieldError>,
     /// Link keys that were not used (unknown keys and notes), as sentences.
@@ -190,8 +192,10 @@ pub fn evaluate(query: &str) -> Evaluation {
     let mut errors: Vec<FieldError> = report.errors.iter().map(FieldError::from).collect();
     let ignored = ignored_of(&report);
     if report.refused() {
+        let mut view = empty_view(errors, ignored);
+        view.refused = true;
         return Evaluation {
-            view: empty_view(errors, ignored),
+            view,
             model: None,
             refused: true,
         };
@@ -220,6 +224,7 @@ pub fn evaluate(query: &str) -> Evaluation {
 fn empty_view(errors: Vec<FieldError>, ignored: Vec<String>) -> View {
     View {
         committed: false,
+        refused: false,
         errors,
         ignored,
         summary: String::new(),
@@ -346,6 +351,7 @@ pub fn compose(state: &LinkState) -> Result<PageModel, InputError> {
     let board = &design.board;
     let ideal = ideal_sweep(synthesis, &freqs);
     let (built, level_curves) = built_sweep(board, &freqs)?;
+    let analyses = Analyses::of(board);
     let to_hz = |p: &Complex64| p / (2.0 * PI);
     let data = PlotData {
         class: Some(synthesis.class),
@@ -356,10 +362,14 @@ pub fn compose(state: &LinkState) -> Result<PageModel, InputError> {
         envelope_db: None,
         envelope_label: String::new(),
         target_poles_hz: synthesis.poles.iter().map(to_hz).collect(),
-        built_poles_hz: Vec::new(),
-        zeros_hz: vec![Complex64::new(0.0, 0.0); synthesis.zeros_at_origin.min(1)],
-        step_ideal: None,
-        step_built: None,
+        built_poles_hz: analyses.built_poles_hz.clone(),
+        zeros_hz: if analyses.zeros_hz.is_empty() {
+            vec![Complex64::new(0.0, 0.0); synthesis.zeros_at_origin.min(1)]
+        } else {
+            analyses.zeros_hz.clone()
+        },
+        step_ideal: analyses.step_ideal.clone(),
+        step_built: analyses.step_built.clone(),
         impedance: input_impedance(board, &freqs),
         noise_total: None,
         noise_parts: Vec::new(),
@@ -376,13 +386,136 @@ pub fn compose(state: &LinkState) -> Result<PageModel, InputError> {
         hist_cutoff: None,
         hist_gain: None,
     };
-    let view = text_view(&design, &data);
+    let mut view = text_view(&design, &data);
+    analyses.fill(&mut view);
     Ok(PageModel {
         design,
         data,
         view,
         study: None,
     })
+}
+
+/// The analyses of the built board beyond its frequency response: poles, step response,
+/// sensitivities. Each is optional: one that fails leaves its plot or table with a note and its
+/// reason among the warnings, and the rest of the sheet still shows.
+struct Analyses {
+    built_poles_hz: Vec<Complex64>,
+    zeros_hz: Vec<Complex64>,
+    step_ideal: Option<Curve>,
+    step_built: Option<Curve>,
+    step_figures: Option<crate::analysis::timeresp::StepFigures>,
+    sensitivities: Vec<Vec<SensitivityRow>>,
+    problems: Vec<String>,
+}
+
+impl Analyses {
+    fn of(board: &Board) -> Analyses {
+        use crate::analysis::{poles, sensitivity, timeresp};
+        let mut problems = Vec::new();
+        let mut built_poles_hz = Vec::new();
+        let mut zeros_hz = Vec::new();
+        match poles::board_poles(board) {
+            Ok(stages) => {
+                for stage in stages {
+                    let hz = |p: &poles::PlanePoint| Complex64::new(p.re_hz, p.im_hz);
+                    built_poles_hz.extend(stage.achieved.iter().map(hz));
+                    zeros_hz.extend(stage.zeros.iter().map(hz));
+                }
+            }
+            Err(e) => problems.push(format!("poles of the built board: {e}")),
+        }
+        let settings = timeresp::TimeSettings {
+            n_points: 600,
+            t_end_s: None,
+        };
+        let (mut step_built, mut step_ideal, mut step_figures) = (None, None, None);
+        match timeresp::board_response(board, &settings) {
+            Ok(built) => {
+                let t_end = built.t_s.last().copied();
+                step_figures = Some(built.figures);
+                step_built = Some(Curve {
+                    label: "built".into(),
+                    x: built.t_s,
+                    y: built.step,
+                });
+                let ideal_settings = timeresp::TimeSettings {
+                    n_points: settings.n_points,
+                    t_end_s: t_end,
+                };
+                if let Ok(ideal) =
+                    timeresp::board_response(&pipeline::ideal_board(board), &ideal_settings)
+                {
+                    step_ideal = Some(Curve {
+                        label: "ideal".into(),
+                        x: ideal.t_s,
+                        y: ideal.step,
+                    });
+                }
+            }
+            Err(e) => problems.push(format!("step response: {e}")),
+        }
+        let sensitivities = match sensitivity::board_sensitivities(board) {
+            Ok(stages) => stages
+                .into_iter()
+                .map(|stage| {
+                    stage
+                        .parts
+                        .into_iter()
+                        .map(|p| SensitivityRow {
+                            reference: p.reference,
+                            f0: signed(p.f0),
+                            q: p.q.map_or_else(|| "–".to_string(), signed),
+                        })
+                        .collect()
+                })
+                .collect(),
+            Err(e) => {
+                problems.push(format!("sensitivities: {e}"));
+                Vec::new()
+            }
+        };
+        Analyses {
+            built_poles_hz,
+            zeros_hz,
+            step_ideal,
+            step_built,
+            step_figures,
+            sensitivities,
+            problems,
+        }
+    }
+
+    /// Puts the tables and figures into the text view.
+    fn fill(&self, view: &mut View) {
+        for (stage, rows) in view.stages.iter_mut().zip(&self.sensitivities) {
+            stage.sensitivities = rows.clone();
+        }
+        if let Some(f) = &self.step_figures {
+            let mut parts = Vec::new();
+            if let Some(overshoot) = f.overshoot_pct {
+                parts.push(format!("overshoot {overshoot:.1} %"));
+            }
+            if let Some(settle) = f.settling_1pct_s {
+                parts.push(format!(
+                    "settles to 1 % in {}",
+                    engineering_unit(settle, 3, "s")
+                ));
+            }
+            if !parts.is_empty() {
+                if !view.figures.is_empty() {
+                    view.figures.push_str(" · ");
+                }
+                view.figures.push_str(&parts.join(" · "));
+            }
+        }
+        view.warnings.extend(self.problems.iter().cloned());
+    }
+}
+
+/// A sensitivity with its sign and two decimals, typographic minus.
+fn signed(value: f64) -> String {
+    format!("{value:+.2}").replace('-', "−")
 }
 
 fn ordinal(n: usize) -> String {
@@ -572,6 +705,7 @@ fn text_view(design: &Design, data: &PlotData) -> View {
 
     View {
         committed: false,
+        refused: false,
         errors: Vec::new(),
         ignored: Vec::new(),
         summary,
