@@ -3,7 +3,10 @@
 
 pub mod circuit;
 pub mod fastfit;
+pub mod levels;
 pub mod montecarlo;
+pub mod noise;
+pub mod opamp_need;
 pub mod poles;
 pub mod poly;
 pub mod sensitivity;

@@ -1,0 +1,158 @@
+//! Signal levels inside the cascade: each stage's output relative to the board input over
+//! frequency (a high-Q stage peaks above the overall response), and the headroom of each stage
+//! against the op amp's output swing for a chosen input amplitude.
+//!
+//! Computed on the whole board as one netlist (the loading of each stage by the next included):
+//! one nodal solve per frequency gives every stage output. Headroom is
+//! `20·log10(swing / (vin · max_f |V_k/V_in|))` dB; negative headroom means the stage clips for an
+//! input of that amplitude at its worst frequency.
+
+use super::circuit::{merge_stages, transfer_at, AnalysisError, Compiled, Solver};
+use crate::board::Board;
+use crate::error::InputError;
+use crate::netlist::StageNetlist;
+use crate::opamp::OpAmp;
+use num_complex::Complex64;
+use serde::Serialize;
+use std::f64::consts::PI;
+
+/// One stage's level curve and headroom.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct StageLevel {
+    /// Stage number, from 1.
+    pub stage: usize,
+    /// |V_out,k / V_in| per frequency, dB.
+    pub gain_db: Vec<f64>,
+    /// Largest |V_out,k / V_in| over the frequencies, dB.
+    pub peak_db: f64,
+    /// Frequency of that peak, Hz.
+    pub peak_hz: f64,
+    /// Peak output amplitude for the chosen input amplitude, V.
+    pub peak_out_v: f64,
+    /// Swing over the peak output, dB (negative: the stage clips).
+    pub headroom_db: f64,
+}
+
+/// Levels of every stage.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Levels {
+    /// Frequencies, Hz.
+    pub freqs_hz: Vec<f64>,
+    /// Input amplitude used, V peak.
+    pub vin_pk: f64,
+    /// Op-amp output swing, V peak.
+    pub swing_pk: f64,
+    /// One entry per stage in signal order.
+    pub stages: Vec<StageLevel>,
+    /// Stages that clip (negative headroom), as sentences.
+    pub warnings: Vec<String>,
+}
+
+/// Every stage output relative to the input, over `freqs_hz`, for the board of `stages`.
+///
+/// # Errors
+/// `vin` / `swing` when not positive and finite; `points` for an empty or non-positive frequency
+/// list; [`AnalysisError::Singular`] for singular equations.
+pub fn stages_levels(
+    stages: &[&StageNetlist],
+    op: &OpAmp,
+    freqs_hz: &[f64],
+    vin_pk: f64,
+    swing_pk: f64,
+) -> Result<Levels, AnalysisError> {
+    for (key, v) in [("vin", vin_pk), ("swing", swing_pk)] {
+        if !(v.is_finite() && v > 0.0) {
+            return Err(AnalysisError::Input(InputError::new(
+                key,
+                format!("{v} V; accepted a positive amplitude"),
+            )));
+        }
+    }
+    if freqs_hz.is_empty() || freqs_hz.iter().any(|f| !(f.is_finite() && *f > 0.0)) {
+        return Err(AnalysisError::Input(InputError::new(
+            "points",
+            "level frequencies must be positive and finite, at least one",
+        )));
+    }
+    let merged = merge_stages(stages)?;
+    let compiled = Compiled::new(&merged.netlist, op)?;
+    let assembled = compiled.assemble(&merged.netlist);
+    let mut solver = Solver::new(compiled.n);
+    let cols: Vec<usize> = merged
+        .stage_outputs
+        .iter()
+        .map(|&node| compiled.node_col.get(node).copied().flatten().unwrap_or(0))
+        .collect();
+    let mut curves: Vec<Vec<f64>> = vec![Vec::with_capacity(freqs_hz.len()); cols.len()];
+    for &f in freqs_hz {
+        transfer_at(
+            &compiled,
+            &assembled,
+            &mut solver,
+            Complex64::new(0.0, 2.0 * PI * f),
+        )?;
+        let x = solver.solution();
+        for (curve, &c) in curves.iter_mut().zip(&cols) {
+            curve.push(20.0 * x[c].norm().log10());
+        }
+    }
+    let mut warnings = Vec::new();
+    let stages_out = curves
+        .into_iter()
+        .enumerate()
+        .map(|(k, gain_db)| {
+            let (i_peak, &peak_db) =
+                gain_db
+                    .iter()
+                    .enumerate()
+                    .fold((0, &f64::NEG_INFINITY), |(bi, bv), (i, v)| {
+                        if v > bv {
+                            (i, v)
+                        } else {
+                            (bi, bv)
+                        }
+                    });
+            let peak_out_v = vin_pk * 10f64.powf(peak_db / 20.0);
+            let headroom_db = 20.0 * (swing_pk / peak_out_v).log10();
+            if headroom_db < 0.0 {
+                warnings.push(format!(
+                    "stage {} reaches {:.3} V peak at {:.4e} Hz for {} V in, beyond the {} V swing",
+                    k + 1,
+                    peak_out_v,
+                    freqs_hz[i_peak],
+                    vin_pk,
+                    swing_pk
+                ));
+            }
+            StageLevel {
+                stage: k + 1,
+                peak_hz: freqs_hz[i_peak],
+                gain_db,
+                peak_db,
+                peak_out_v,
+                headroom_db,
+            }
+        })
+        .collect();
+    Ok(Levels {
+        freqs_hz: freqs_hz.to_vec(),
+        vin_pk,
+        swing_pk,
+        stages: stages_out,
+        warnings,
+    })
+}
+
+/// Levels of `board`.
+///
+/// # Errors
+/// As [`stages_levels`].
+pub fn board_levels(
+    board: &Board,
+    freqs_hz: &[f64],
+    vin_pk: f64,
+    swing_pk: f64,
+) -> Result<Levels, AnalysisError> {
+    let nets: Vec<&StageNetlist> = board.stages.iter().map(|s| &s.netlist).collect();
+    stages_levels(&nets, &board.op_amp, freqs_hz, vin_pk, swing_pk)
+}

@@ -1,0 +1,187 @@
+//! What the op amp must do for each stage: the gain-bandwidth below which the stage's f0 or Q
+//! drifts past a chosen limit, and the slew rate a chosen output amplitude needs at the highest
+//! passband frequency.
+//!
+//! GBW: the stage is analysed with the op-amp model (the board's A0 and Rout, GBW varied) and
+//! its f0 and Q (dominant poles, [`super::poles::stage_factor`]) are compared with the same stage
+//! on an ideal op amp. The drift `max(|f0/f0_ideal − 1|, |Q/Q_ideal − 1|)` falls as GBW rises;
+//! the least GBW that keeps it within the limit is found by bisection on log(GBW) between 1 Hz
+//! and 1 THz, to 0.1 % — no rule of thumb. A stage that has lost its pole pair (or turned
+//! unstable) at a trial GBW counts as drifted.
+//!
+//! Slew rate: a sine of peak amplitude V at frequency f needs `2π·f·V` V/s. Each stage's own peak
+//! amplitude is the chosen board-output amplitude scaled by `|V_k/V_out|` at that frequency (whole
+//! board, loading included), so an internal stage that peaks is asked for more.
+
+use super::circuit::{merge_stages, transfer_at, AnalysisError, Compiled, Solver};
+use super::poles::{stage_factor, StageFactor};
+use crate::board::Board;
+use crate::error::InputError;
+use crate::netlist::StageNetlist;
+use crate::opamp::OpAmp;
+use num_complex::Complex64;
+use serde::Serialize;
+use std::f64::consts::PI;
+
+/// Requirements of one stage on its op amp.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct StageNeed {
+    /// Stage number, from 1.
+    pub stage: usize,
+    /// f0 and Q on an ideal op amp.
+    pub ideal: StageFactor,
+    /// Drift of f0 or Q with the board's op amp, fraction (0.01 = 1 %).
+    pub drift_with_board_opamp: f64,
+    /// Least GBW that keeps the drift within the limit, Hz; `None` when even 1 THz does not
+    /// (A0 or Rout alone drift it past the limit).
+    pub min_gbw_hz: Option<f64>,
+    /// The stage's peak output amplitude at the slew frequency, V.
+    pub out_pk_v: f64,
+    /// Slew rate that amplitude needs, V/s: 2π·f·V.
+    pub slew_v_per_s: f64,
+    /// Whether the board's op amp meets both (GBW at or above `min_gbw_hz`, slew at or above).
+    pub board_opamp_ok: bool,
+}
+
+/// Requirements of every stage.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct OpAmpNeeds {
+    /// Drift limit, %.
+    pub drift_limit_pct: f64,
+    /// Frequency of the slew check (highest passband frequency), Hz.
+    pub slew_freq_hz: f64,
+    /// Output amplitude of the slew check, V peak at the board output.
+    pub vout_pk: f64,
+    /// One entry per stage.
+    pub stages: Vec<StageNeed>,
+}
+
+fn drift(net: &StageNetlist, op: &OpAmp, ideal: &StageFactor) -> f64 {
+    match stage_factor(net, op) {
+        Ok(f) => {
+            let df = (f.f0_hz / ideal.f0_hz - 1.0).abs();
+            let dq = match (f.q, ideal.q) {
+                (Some(q), Some(qi)) => (q / qi - 1.0).abs(),
+                _ => 0.0,
+            };
+            if df.is_finite() && dq.is_finite() {
+                df.max(dq)
+            } else {
+                f64::INFINITY
+            }
+        }
+        Err(_) => f64::INFINITY,
+    }
+}
+
+/// The requirements for the board of `stages` with op amp `op`.
+///
+/// # Errors
+/// `drift` when the limit is not within 0.001–50 %; `vout` when the amplitude is not positive;
+/// `fc` when the slew frequency is not positive; [`AnalysisError`] when a stage cannot be
+/// analysed on an ideal op amp.
+pub fn stages_needs(
+    stages: &[&StageNetlist],
+    op: &OpAmp,
+    drift_limit_pct: f64,
+    slew_freq_hz: f64,
+    vout_pk: f64,
+) -> Result<OpAmpNeeds, AnalysisError> {
+    if !(drift_limit_pct.is_finite() && (0.001..=50.0).contains(&drift_limit_pct)) {
+        return Err(AnalysisError::Input(InputError::new(
+            "drift",
+            format!("drift limit {drift_limit_pct} %; accepted 0.001 to 50 %"),
+        )));
+    }
+    if !(vout_pk.is_finite() && vout_pk > 0.0) {
+        return Err(AnalysisError::Input(InputError::new(
+            "vout",
+            format!("output amplitude {vout_pk} V; accepted a positive amplitude"),
+        )));
+    }
+    if !(slew_freq_hz.is_finite() && slew_freq_hz > 0.0) {
+        return Err(AnalysisError::Input(InputError::new(
+            "fc",
+            format!("slew-check frequency {slew_freq_hz} Hz; accepted a positive frequency"),
+        )));
+    }
+    let limit = drift_limit_pct / 100.0;
+    // Stage amplitudes relative to the board output at the slew frequency.
+    let merged = merge_stages(stages)?;
+    let compiled = Compiled::new(&merged.netlist, op)?;
+    let assembled = compiled.assemble(&merged.netlist);
+    let mut solver = Solver::new(compiled.n);
+    let h_out = transfer_at(
+        &compiled,
+        &assembled,
+        &mut solver,
+        Complex64::new(0.0, 2.0 * PI * slew_freq_hz),
+    )?
+    .norm();
+    let x = solver.solution().to_vec();
+    let mut out = Vec::with_capacity(stages.len());
+    for (k, net) in stages.iter().enumerate() {
+        let ideal = stage_factor(net, &OpAmp::ideal())?;
+        let with = |gbw_hz: f64| OpAmp { gbw_hz, ..*op };
+        let passes = |gbw: f64| drift(net, &with(gbw), &ideal) <= limit;
+        let (mut lo, mut hi) = (1.0f64.ln(), 1e12f64.ln());
+        let min_gbw_hz = if !passes(hi.exp()) {
+            None
+        } else if passes(lo.exp()) {
+            Some(lo.exp())
+        } else {
+            while hi - lo > 1e-3 {
+                let mid = 0.5 * (lo + hi);
+                if passes(mid.exp()) {
+                    hi = mid;
+                } else {
+                    lo = mid;
+                }
+            }
+            Some(hi.exp())
+        };
+        let col = merged
+            .stage_outputs
+            .get(k)
+            .and_then(|&node| compiled.node_col.get(node).copied().flatten())
+            .unwrap_or(0);
+        let ratio = if h_out > 0.0 {
+            x[col].norm() / h_out
+        } else {
+            f64::INFINITY
+        };
+        let out_pk_v = vout_pk * ratio;
+        let slew_v_per_s = 2.0 * PI * slew_freq_hz * out_pk_v;
+        let board_drift = drift(net, op, &ideal);
+        out.push(StageNeed {
+            stage: k + 1,
+            ideal,
+            drift_with_board_opamp: board_drift,
+            board_opamp_ok: min_gbw_hz.is_some_and(|g| op.gbw_hz >= g)
+                && op.slew_v_per_s >= slew_v_per_s,
+            min_gbw_hz,
+            out_pk_v,
+            slew_v_per_s,
+        });
+    }
+    Ok(OpAmpNeeds {
+        drift_limit_pct,
+        slew_freq_hz,
+        vout_pk,
+        stages: out,
+    })
+}
+
+/// The requirements for `board`.
+///
+/// # Errors
+/// As [`stages_needs`].
+pub fn board_needs(
+    board: &Board,
+    drift_limit_pct: f64,
+    slew_freq_hz: f64,
+    vout_pk: f64,
+) -> Result<OpAmpNeeds, AnalysisError> {
+    let nets: Vec<&StageNetlist> = board.stages.iter().map(|s| &s.netlist).collect();
+    stages_needs(&nets, &board.op_amp, drift_limit_pct, slew_freq_hz, vout_pk)
+}
