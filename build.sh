@@ -3,8 +3,9 @@
 #
 #   ./build.sh          build the wasm core and package it into www/rolloff-wasm.js, then exit
 #   ./build.sh serve    build, then serve www/ on http://127.0.0.1:${PORT:-8000}/ (Ctrl-C stops)
-#   ./build.sh test     build, then run every test: native cargo tests, wasm tests in headless
-#                       Chromium (wasm-bindgen-test) and the browser acceptance tests (node --test)
+#   ./build.sh test     run every test: cargo fmt --check, native cargo tests, benchmark build,
+#                       then build the page and run the wasm tests in headless Chromium
+#                       (wasm-bindgen-test) and the browser acceptance tests (node --test)
 #   ./build.sh bench    build, then run the browser benchmark (tests/browser/bench.js)
 #
 # Why one classic script: Chromium blocks ES modules, fetch() of a sibling .wasm file and
@@ -131,12 +132,19 @@ EOF
 
 run_tests() {
     need_browser_tools
+    log "formatting (cargo fmt --check)"
+    cargo fmt --all -- --check
+    log "native tests (cargo test): the core against scipy data, ngspice, IEC tables, physics;"
+    log "this also writes target/wasm-reference.json for the wasm comparison"
+    cargo test
+    log "benchmarks compile (cargo bench --no-run)"
+    cargo bench --no-run
     build_page
     log "building the command line (release) for the browser tests' reference outputs"
     cargo build --release --bin rolloff
-    log "wasm tests in headless Chromium (wasm-bindgen-test)"
+    log "wasm tests in headless Chromium (wasm-bindgen-test): core under wasm = native"
     CHROMEDRIVER=/usr/bin/chromedriver cargo test --target "$WASM_TARGET" --test wasm
-    log "browser acceptance tests (node --test)"
+    log "browser acceptance tests (node --test tests/browser/)"
     node --test tests/browser/
 }
 
