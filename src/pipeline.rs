@@ -279,3 +279,197 @@ pub fn spice_sweep(design: &Design) -> crate::export::spice::AcSweep {
         f_stop_hz: design.span_hz.1,
     }
 }
+
+/// The highest frequency of the passband, Hz: where slew rate matters most (lp: the passband
+/// edge or cutoff; bp: the upper edge; hp: the top of the plot span, since a high-pass passes on).
+pub fn top_of_passband_hz(design: &Design) -> f64 {
+    let syn = &design.synthesis;
+    let mask_pass = design.state.requirement.mask.map(|m| m.pass);
+    match (syn.class, mask_pass) {
+        (ResponseClass::LowPass, Some(Edge::Single(f))) => f.max(syn.fc_hz),
+        (ResponseClass::LowPass, _) => syn.fc_hz,
+        (ResponseClass::BandPass, Some(Edge::Pair(_, hi))) => hi,
+        (ResponseClass::BandPass, _) => {
+            let bw = syn.bw_hz.unwrap_or(syn.fc_hz);
+            bw / 2.0 + (bw * bw / 4.0 + syn.fc_hz * syn.fc_hz).sqrt()
+        }
+        (ResponseClass::HighPass, _) => design.span_hz.1,
+    }
+}
+
+/// The noise contribution of one part, for the summary.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct NoiseShare {
+    /// Part reference, or `U1 en` style for op-amp sources.
+    #[serde(rename = "ref")]
+    pub reference: String,
+    /// What kind of source.
+    pub kind: crate::analysis::noise::NoiseKind,
+    /// RMS output noise over the band from this source, V.
+    pub rms_v: f64,
+    /// Share of the total output noise power, 0–1.
+    pub share: f64,
+}
+
+/// The noise in a few numbers.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct NoiseSummary {
+    /// Integration band, Hz.
+    pub band_hz: (f64, f64),
+    /// Total RMS output noise over the band, V.
+    pub rms_v: f64,
+    /// Signal-to-noise ratio for the input amplitude `vin` through the passband gain, dB.
+    pub snr_db: Option<f64>,
+    /// The sources, largest first.
+    pub sources: Vec<NoiseShare>,
+}
+
+/// One stage's largest output level.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct LevelSummary {
+    /// Stage number, 1-based.
+    pub stage: usize,
+    /// Largest gain from the board input to this stage's output, dB.
+    pub peak_db: f64,
+    /// Where it peaks, Hz.
+    pub peak_hz: f64,
+    /// Output amplitude there for `vin`, V peak.
+    pub peak_out_v: f64,
+    /// Margin to the swing `swing`, dB (negative: clips).
+    pub headroom_db: f64,
+}
+
+/// Everything the views show beyond the response: each part computed on the board as built.
+/// A part that cannot be computed is `None`, with its reason in `errors`.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct Analyses {
+    /// Normalized sensitivities of each stage's f0 and Q to every part.
+    pub sensitivities: Option<Vec<crate::analysis::sensitivity::StageSensitivity>>,
+    /// Noise summary over the noise band.
+    pub noise: Option<NoiseSummary>,
+    /// Step response figures of the built board.
+    pub step: Option<crate::analysis::timeresp::StepFigures>,
+    /// Step response figures of the ideal design (exact parts, ideal op amp).
+    pub step_ideal: Option<crate::analysis::timeresp::StepFigures>,
+    /// Op-amp requirements per stage (GBW for the drift limit, slew rate).
+    pub opamp_needs: Option<crate::analysis::opamp_need::OpAmpNeeds>,
+    /// Each stage's peak level and headroom.
+    pub levels: Option<Vec<LevelSummary>>,
+    /// Target and achieved poles per stage.
+    pub poles: Option<Vec<crate::analysis::poles::StagePoles>>,
+    /// Soft problems found by the analyses (a stage that clips, …).
+    pub warnings: Vec<String>,
+    /// Analyses that could not be done, with the reason.
+    pub errors: Vec<String>,
+}
+
+/// Frequencies (log-spaced over the span) used by the noise and level analyses.
+pub const ANALYSIS_POINTS: usize = 200;
+
+/// The value of an analysis, or `None` with its reason added to `errors`.
+fn keep<T>(
+    errors: &mut Vec<String>,
+    what: &str,
+    result: Result<T, crate::analysis::circuit::AnalysisError>,
+) -> Option<T> {
+    match result {
+        Ok(v) => Some(v),
+        Err(e) => {
+            errors.push(format!("{what}: {e}"));
+            None
+        }
+    }
+}
+
+/// Runs every analysis of the board as built.
+pub fn analyses(design: &Design) -> Analyses {
+    use crate::analysis::{levels, noise, opamp_need, poles, sensitivity, timeresp};
+    let board = &design.board;
+    let signal = &design.state.signal;
+    let mut errors = Vec::new();
+    let mut warnings = Vec::new();
+    let (lo, hi) = design.span_hz;
+    let freqs = crate::response::log_frequencies(lo, hi, ANALYSIS_POINTS).unwrap_or_default();
+    let gain = board.passband_gain().abs();
+    let settings = noise::NoiseSettings {
+        freqs_hz: freqs.clone(),
+        band_hz: signal.noise_band_hz.unwrap_or((lo, hi)),
+        signal_v_rms: Some(signal.vin_pk * gain / std::f64::consts::SQRT_2),
+    };
+    let noise = keep(&mut errors, "noise", noise::board_noise(board, &settings)).map(|report| {
+        let mut sources: Vec<NoiseShare> = report
+            .sources
+            .iter()
+            .map(|s| NoiseShare {
+                reference: s.reference.clone(),
+                kind: s.kind,
+                rms_v: s.rms_v,
+                share: s.share,
+            })
+            .collect();
+        sources.sort_by(|a, b| b.share.total_cmp(&a.share));
+        NoiseSummary {
+            band_hz: report.band_hz,
+            rms_v: report.rms_v,
+            snr_db: report.snr_db,
+            sources,
+        }
+    });
+    let time = timeresp::TimeSettings {
+        n_points: 400,
+        t_end_s: None,
+    };
+    let step = keep(
+        &mut errors,
+        "step response",
+        timeresp::board_response(board, &time),
+    )
+    .map(|r| r.figures);
+    let step_ideal = keep(
+        &mut errors,
+        "ideal step response",
+        timeresp::board_response(&ideal_board(board), &time),
+    )
+    .map(|r| r.figures);
+    let vout_pk = signal.vin_pk * gain;
+    let opamp_needs = keep(
+        &mut errors,
+        "op-amp requirements",
+        opamp_need::board_needs(board, signal.drift_pct, top_of_passband_hz(design), vout_pk),
+    );
+    let levels = keep(
+        &mut errors,
+        "stage levels",
+        levels::board_levels(board, &freqs, signal.vin_pk, signal.swing_pk),
+    )
+    .map(|l| {
+        warnings.extend(l.warnings.iter().cloned());
+        l.stages
+            .iter()
+            .map(|s| LevelSummary {
+                stage: s.stage,
+                peak_db: s.peak_db,
+                peak_hz: s.peak_hz,
+                peak_out_v: s.peak_out_v,
+                headroom_db: s.headroom_db,
+            })
+            .collect()
+    });
+    let sensitivities = keep(
+        &mut errors,
+        "sensitivities",
+        sensitivity::board_sensitivities(board),
+    );
+    let poles = keep(&mut errors, "poles", poles::board_poles(board));
+    Analyses {
+        sensitivities,
+        noise,
+        step,
+        step_ideal,
+        opamp_needs,
+        levels,
+        poles,
+        warnings,
+        errors,
+    }
+}

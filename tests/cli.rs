@@ -206,3 +206,39 @@ fn a_whole_url_works_like_its_query() {
     assert_eq!(a.0, 0);
     assert_eq!(a.1, b.1);
 }
+
+#[test]
+fn design_json_carries_the_analyses_of_the_built_board() {
+    // Equal-component unity-gain Sallen-Key low-pass (cratio=1 is refused for Q > 0.5, so use a
+    // Bessel order-2 Q = 0.577 with exact parts): f0 sensitivity to each R and C is −1/2
+    // (textbook identity for f0 = 1/(2π√(R1R2C1C2))).
+    let v = json(&[
+        "design",
+        "?v=1&order=2&fc=1k&family=bessel&rser=exact&cser=exact&gbw=ideal&a0=ideal&rout=0",
+        "--format",
+        "json",
+    ]);
+    let a = &v["analysis"];
+    assert!(
+        a["errors"].as_array().is_some_and(|e| e.is_empty()),
+        "{}",
+        a["errors"]
+    );
+    for part in a["sensitivities"][0]["parts"]
+        .as_array()
+        .expect("sensitivities")
+    {
+        let s = part["f0"].as_f64().expect("f0 sensitivity");
+        assert!((s + 0.5).abs() < 1e-6, "{part}");
+    }
+    assert!(a["noise"]["rms_v"].as_f64().is_some_and(|x| x > 0.0));
+    assert!(a["step"]["overshoot_pct"].is_number() || a["step"]["overshoot_pct"].is_null());
+    assert!(a["opamp_needs"]["stages"][0]["slew_v_per_s"]
+        .as_f64()
+        .is_some_and(|x| x > 0.0));
+    assert!(a["levels"][0]["headroom_db"].is_number());
+    assert_eq!(
+        a["poles"][0]["achieved"].as_array().map(|p| p.len()),
+        Some(2)
+    );
+}

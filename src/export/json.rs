@@ -144,6 +144,7 @@ pub fn design_value(design: &Design) -> Value {
         "stages": stages,
         "parts": parts,
         "warnings": design.warnings,
+        "analysis": crate::pipeline::analyses(design),
     })
 }
 

@@ -1,6 +1,7 @@
 //! The text report of `rolloff design` and `rolloff spread`: the design in words and tables.
 
 use crate::analysis::montecarlo::Summary;
+use crate::analysis::noise::NoiseKind;
 use crate::board::format_value;
 use crate::netlist::PartKind;
 use crate::order::family_name;
@@ -153,6 +154,7 @@ pub fn design_text(design: &Design) -> String {
         },
         spaced(op.rout_ohm)
     );
+    analysis_text(&mut out, design);
     if !design.warnings.is_empty() {
         let _ = writeln!(out, "\nWarnings:");
         for w in &design.warnings {
@@ -233,4 +235,90 @@ pub fn spread_text(design: &Design, summary: &Summary) -> String {
         let _ = writeln!(out, "  - {w}");
     }
     out
+}
+
+/// The analyses of the built board in a few lines.
+fn analysis_text(out: &mut String, design: &Design) {
+    let a = crate::pipeline::analyses(design);
+    let _ = writeln!(out, "\nThe board as built:");
+    if let Some(step) = &a.step {
+        let pct = |x: Option<f64>| x.map_or("-".into(), |v| format!("{v:.2} %"));
+        let time = |x: Option<f64>| x.map_or("-".into(), |v| format!("{}s", spaced(v)));
+        let _ = writeln!(
+            out,
+            "  step: overshoot {}, rise {}, settles to 1 % in {}, to 0.1 % in {}",
+            pct(step.overshoot_pct),
+            time(step.rise_time_s),
+            time(step.settling_1pct_s),
+            time(step.settling_01pct_s)
+        );
+    }
+    if let Some(noise) = &a.noise {
+        let snr = noise.snr_db.map_or(String::new(), |s| {
+            format!(
+                ", SNR {s:.1} dB for vin = {} V peak",
+                design.state.signal.vin_pk
+            )
+        });
+        let top: Vec<String> = noise
+            .sources
+            .iter()
+            .take(3)
+            .map(|s| {
+                let what = match s.kind {
+                    NoiseKind::Resistor => "",
+                    NoiseKind::OpAmpVoltage => " voltage noise",
+                    NoiseKind::OpAmpCurrentPlus => " current noise at +",
+                    NoiseKind::OpAmpCurrentMinus => " current noise at −",
+                };
+                format!("{}{what} {:.0} %", s.reference, 100.0 * s.share)
+            })
+            .collect();
+        let _ = writeln!(
+            out,
+            "  noise: {}V rms over {}Hz … {}Hz{snr}; largest: {}",
+            spaced(noise.rms_v),
+            spaced(noise.band_hz.0),
+            spaced(noise.band_hz.1),
+            top.join(", ")
+        );
+    }
+    if let Some(levels) = &a.levels {
+        for l in levels {
+            let _ = writeln!(
+                out,
+                "  stage {} level: peaks {:+.2} dB at {}Hz ({}V peak), headroom {:.1} dB",
+                l.stage,
+                l.peak_db,
+                spaced(l.peak_hz),
+                spaced(l.peak_out_v),
+                l.headroom_db
+            );
+        }
+    }
+    if let Some(needs) = &a.opamp_needs {
+        for n in &needs.stages {
+            let gbw = n
+                .min_gbw_hz
+                .map_or("-".into(), |g| format!("{}Hz", spaced(g)));
+            let _ = writeln!(
+                out,
+                "  stage {} op amp: GBW ≥ {gbw} for {} % drift, slew ≥ {}V/s{}",
+                n.stage,
+                needs.drift_limit_pct,
+                spaced(n.slew_v_per_s),
+                if n.board_opamp_ok {
+                    ""
+                } else {
+                    " (the chosen op amp falls short)"
+                }
+            );
+        }
+    }
+    for w in &a.warnings {
+        let _ = writeln!(out, "  - {w}");
+    }
+    for e in &a.errors {
+        let _ = writeln!(out, "  - not computed: {e}");
+    }
 }
