@@ -106,6 +106,64 @@ fn inv_hp(n: &StageNetlist, s: Complex64) -> Complex64 {
     -(rf / r1) * s * r1 * c1 / (1.0 + s * r1 * c1)
 }
 
+/// An input divider seen from its inner node (circuit theory, Thevenin): resistor legs Ra (input
+/// to node) and Rb (node to ground) give k = Rb/(Ra + Rb) behind Ra‖Rb; capacitor legs Ca and Cb
+/// give k = Ca/(Ca + Cb) behind Ca + Cb. Returns (k, Thevenin value).
+fn divider_thevenin(n: &StageNetlist) -> (f64, f64) {
+    let (upper, lower) = (
+        role(n, "input divider, upper"),
+        role(n, "input divider, lower"),
+    );
+    let class = n
+        .parts
+        .iter()
+        .find(|p| p.role == "input divider, upper")
+        .map(|p| p.kind)
+        .unwrap();
+    match class {
+        PartKind::Resistor => (lower / (upper + lower), upper * lower / (upper + lower)),
+        _ => (upper / (upper + lower), upper + lower),
+    }
+}
+
+/// Divider-fed Sallen-Key low-pass (follower): k / (s²R1R2C1C2 + s(R1 + R2)C2 + 1) with
+/// R1 = Ra‖Rb — the unity-gain textbook form times k after the Thevenin reduction.
+fn sk_lp_divided(n: &StageNetlist, s: Complex64) -> Complex64 {
+    let (k, r1) = divider_thevenin(n);
+    let r2 = role(n, "second resistor");
+    let (c1, c2) = (role(n, "feedback capacitor"), role(n, "ground capacitor"));
+    k / (s * s * (r1 * r2 * c1 * c2) + s * ((r1 + r2) * c2) + 1.0)
+}
+
+/// Divider-fed Sallen-Key high-pass (follower): k·s²R1R2C1C2 / (s²R1R2C1C2 + s·R1(C1 + C2) + 1)
+/// with C1 = Ca + Cb, R1 the feedback resistor, R2 the ground resistor.
+fn sk_hp_divided(n: &StageNetlist, s: Complex64) -> Complex64 {
+    let (k, c1) = divider_thevenin(n);
+    let c2 = role(n, "second capacitor");
+    let (r1, r2) = (role(n, "feedback resistor"), role(n, "ground resistor"));
+    let t = r1 * r2 * c1 * c2;
+    k * s * s * t / (s * s * t + s * (r1 * (c1 + c2)) + 1.0)
+}
+
+/// Divider-fed buffered RC low-pass: k / (1 + s·(Ra‖Rb)·C).
+fn rc_lp_divided(n: &StageNetlist, s: Complex64) -> Complex64 {
+    let (k, r) = divider_thevenin(n);
+    k / (1.0 + s * r * role(n, "ground capacitor"))
+}
+
+/// Divider-fed buffered CR high-pass: k·sR(Ca + Cb) / (1 + sR(Ca + Cb)).
+fn rc_hp_divided(n: &StageNetlist, s: Complex64) -> Complex64 {
+    let (k, c) = divider_thevenin(n);
+    let t = role(n, "ground resistor") * c;
+    k * s * t / (1.0 + s * t)
+}
+
+/// Gains below 1 for the divider cases: −0.5 dB is the DC gain of an even-order Chebyshev of
+/// 0.5 dB ripple (10^(−0.5/20), the scipy.signal.cheb1ap gain constant); the rest are arbitrary.
+fn half_db_down() -> f64 {
+    10f64.powf(-0.5 / 20.0)
+}
+
 /// Every circuit with the section that selects it and its hand-written transfer function.
 fn cases() -> Vec<(Circuit, Section, Topology, Textbook)> {
     use SectionKind::*;
@@ -182,6 +240,49 @@ fn cases() -> Vec<(Circuit, Section, Topology, Textbook)> {
             section(HighPass, 50.0, None, 0.5),
             MultipleFeedback,
             inv_hp,
+        ),
+        // Non-inverting stages with gain below 1: the input divider shapes.
+        (
+            Circuit::SallenKeyLowPass,
+            section(LowPass, 1e3, Some(FRAC_1_SQRT_2), 0.5),
+            SallenKey,
+            sk_lp_divided,
+        ),
+        (
+            Circuit::SallenKeyLowPass,
+            section(LowPass, 7.9e3, Some(0.68), half_db_down()),
+            SallenKey,
+            sk_lp_divided,
+        ),
+        (
+            Circuit::SallenKeyLowPass,
+            section(LowPass, 20e3, Some(6.5), 0.1),
+            SallenKey,
+            sk_lp_divided,
+        ),
+        (
+            Circuit::SallenKeyHighPass,
+            section(HighPass, 570.0, Some(0.78), 0.8913),
+            SallenKey,
+            sk_hp_divided,
+        ),
+        (
+            Circuit::SallenKeyHighPass,
+            section(HighPass, 2e3, Some(2.0), 0.5),
+            SallenKey,
+            sk_hp_divided,
+        ),
+        (
+            Circuit::BufferedLowPass,
+            section(LowPass, 1e3, None, 0.3),
+            SallenKey,
+            rc_lp_divided,
+        ),
+        (
+            Circuit::BufferedHighPass,
+            section(HighPass, 100.0, None, 0.8),
+            SallenKey,
+            rc_hp_divided,
         ),
     ]
 }
@@ -1300,4 +1401,343 @@ fn parts_list_is_rfc_4180_csv_with_exact_values() {
     let deck = netlist(&board, &AcSweep::default()).unwrap();
     assert!(deck.contains("V1 in 0 DC 0 AC 1") && deck.contains(".ac dec 50 1e1 1e7"));
     assert!(deck.trim_end().ends_with(".end") && deck.is_ascii());
+}
+
+/// The divider cases of [`cases`] (gain below 1 on a non-inverting circuit).
+fn divider_cases() -> Vec<(Circuit, Section, Topology, Textbook)> {
+    cases()
+        .into_iter()
+        .filter(|(c, sec, _, _)| !c.inverting() && sec.gain < 1.0)
+        .collect()
+}
+
+#[test]
+fn divider_stages_have_the_f0_q_of_their_thevenin_equivalent_and_the_divider_gain() {
+    // Source: circuit theory. Seen from its inner node, an input divider is a source k·Vin behind
+    // its Thevenin value (Ra‖Rb, or Ca + Cb), so the stage is the unity-gain stage with that
+    // value, times k. f0 and Q read off the textbook denominators by hand:
+    // SK low-pass w0 = 1/√(R1R2C1C2), Q = 1/(w0·(R1 + R2)·C2); SK high-pass the same w0 and
+    // Q = 1/(w0·R1·(C1 + C2)) (R1 the feedback resistor); RC stages w0 = 1/(RC). The reported
+    // values must equal them to 1e-12, and the parts must be numbered in signal order: the
+    // upper leg first, then the lower leg.
+    let n_cases = divider_cases().len();
+    assert_eq!(n_cases, 7, "every divider shape is covered");
+    for (circuit, sec, topology, _) in divider_cases() {
+        let board = one_stage(sec, topology, OpAmp::ideal());
+        let st = &board.stages[0];
+        let n = &st.netlist;
+        let (k, thevenin) = divider_thevenin(n);
+        let (w0, q) = match circuit {
+            Circuit::SallenKeyLowPass => {
+                let (r2, c1, c2) = (
+                    role(n, "second resistor"),
+                    role(n, "feedback capacitor"),
+                    role(n, "ground capacitor"),
+                );
+                let w0 = 1.0 / (thevenin * r2 * c1 * c2).sqrt();
+                (w0, Some(1.0 / (w0 * (thevenin + r2) * c2)))
+            }
+            Circuit::SallenKeyHighPass => {
+                let (c2, r1, r2) = (
+                    role(n, "second capacitor"),
+                    role(n, "feedback resistor"),
+                    role(n, "ground resistor"),
+                );
+                let w0 = 1.0 / (thevenin * c2 * r1 * r2).sqrt();
+                (w0, Some(1.0 / (w0 * r1 * (thevenin + c2))))
+            }
+            Circuit::BufferedLowPass => (1.0 / (thevenin * role(n, "ground capacitor")), None),
+            Circuit::BufferedHighPass => (1.0 / (thevenin * role(n, "ground resistor")), None),
+            other => panic!("{other:?} has no divider"),
+        };
+        let f0 = w0 / (2.0 * PI);
+        assert!(
+            (st.achieved_f0_hz / f0 - 1.0).abs() < 1e-12,
+            "{circuit:?}: f0 {} vs {f0}",
+            st.achieved_f0_hz
+        );
+        match (st.achieved_q, q) {
+            (Some(a), Some(b)) => assert!((a / b - 1.0).abs() < 1e-12, "{circuit:?}: Q {a} vs {b}"),
+            (None, None) => {}
+            other => panic!("{circuit:?}: Q {other:?}"),
+        }
+        assert!(
+            (st.achieved_gain / k - 1.0).abs() < 1e-12,
+            "{circuit:?}: gain {} vs k {k}",
+            st.achieved_gain
+        );
+        // Signal order: the upper leg is the first part of its letter, the lower leg the second.
+        let refs: Vec<(&str, &str)> = n
+            .parts
+            .iter()
+            .map(|p| (p.reference.as_str(), p.role.as_str()))
+            .collect();
+        let letter = if matches!(
+            circuit,
+            Circuit::SallenKeyHighPass | Circuit::BufferedHighPass
+        ) {
+            'C'
+        } else {
+            'R'
+        };
+        assert_eq!(
+            refs[0],
+            (&*format!("{letter}1"), "input divider, upper"),
+            "{refs:?}"
+        );
+        assert_eq!(
+            refs[1],
+            (&*format!("{letter}2"), "input divider, lower"),
+            "{refs:?}"
+        );
+        // With E96/E12 and the search, the built stage meets the acceptance of the issue for
+        // f0 and Q (1 %, 2 %) and keeps the gain within 1 %.
+        let built = one_stage(sec, topology, OpAmp::GENERIC);
+        let bs = &built.stages[0];
+        assert!(bs.f0_error.abs() < 0.01, "{circuit:?}: f0 {}", bs.f0_error);
+        assert!(
+            bs.q_error.map_or(0.0, f64::abs) < 0.02,
+            "{circuit:?}: Q {:?}",
+            bs.q_error
+        );
+        assert!(
+            bs.gain_error.abs() < 0.01,
+            "{circuit:?}: gain {}",
+            bs.gain_error
+        );
+    }
+}
+
+#[test]
+fn a_capacitor_divider_gain_is_as_fine_as_the_capacitor_series_and_says_so() {
+    // IEC 60063: E12 steps are about 21 %, so the ratio Ca/(Ca + Cb) = 0.3 (Cb/Ca = 7/3) has no
+    // close E12 pair near the designed level; E24 holds 3.9 and 9.1 (3.9/13 = 0.3 exactly), and
+    // in general half the E24 step. A Sallen-Key high-pass of gain 0.3 with E12 capacitors must
+    // either land within 1 % or warn about its gain error; with E24 capacitors it lands within 1 %.
+    let sec = section(SectionKind::HighPass, 2e3, Some(FRAC_1_SQRT_2), 0.3);
+    for (c_series, must_fit) in [(Series::E12, false), (Series::E24, true)] {
+        let ch = BuildChoices {
+            c_series,
+            ..BuildChoices::default()
+        };
+        let board = Board::build(&[sec], &ch).expect("builds");
+        let st = &board.stages[0];
+        let warned = st
+            .warnings
+            .iter()
+            .any(|w| w.contains("gain") && w.contains("cser"));
+        if must_fit {
+            assert!(
+                st.gain_error.abs() < 0.01,
+                "{c_series:?}: {}",
+                st.gain_error
+            );
+        }
+        assert!(
+            st.gain_error.abs() < 0.01 || warned,
+            "{c_series:?}: gain error {} without a warning: {:?}",
+            st.gain_error,
+            st.warnings
+        );
+        for p in st
+            .netlist
+            .parts
+            .iter()
+            .filter(|p| p.kind == PartKind::Capacitor)
+        {
+            assert!(c_series.contains(p.value), "{} = {}", p.reference, p.value);
+        }
+    }
+}
+
+#[test]
+fn the_board_puts_an_overall_attenuation_into_the_first_non_inverting_stage() {
+    // Our rule (documented in board.rs): when the non-inverting stages' gains multiply to less
+    // than 1, the first of them in signal order takes the whole product through its input
+    // divider and the rest are followers; inverting (MFB) boards keep the even split. Either way
+    // the overall gain is the product the sections asked for (1e-12: the rounding of a product).
+    let q1 = 1.0 / (2.0 * (PI / 8.0).cos());
+    let q2 = 1.0 / (2.0 * (3.0 * PI / 8.0).cos());
+    let slice = 10f64.powf(-3.0 / 20.0); // −3 dB per section, −9 dB overall
+    let secs = [
+        section(SectionKind::LowPass, 1e3, None, slice),
+        section(SectionKind::LowPass, 1e3, Some(q1), slice),
+        section(SectionKind::LowPass, 1e3, Some(q2), slice),
+    ];
+    let asked: f64 = secs.iter().map(|s| s.gain).product();
+    let exact = BuildChoices {
+        r_series: Series::Exact,
+        c_series: Series::Exact,
+        op_amp: OpAmp::ideal(),
+        ..BuildChoices::default()
+    };
+    let sk = Board::build(&secs, &exact).expect("builds");
+    assert!(
+        (sk.passband_gain() / asked - 1.0).abs() < 1e-12,
+        "{}",
+        sk.passband_gain()
+    );
+    assert!((sk.stages[0].section.gain / asked - 1.0).abs() < 1e-12);
+    assert_eq!(
+        sk.stages[0].circuit,
+        Circuit::BufferedLowPass,
+        "the first stage is the first-order one"
+    );
+    let has_divider = |st: &rolloff::board::Stage| {
+        st.netlist
+            .parts
+            .iter()
+            .any(|p| p.role.starts_with("input divider"))
+    };
+    assert!(has_divider(&sk.stages[0]));
+    for st in &sk.stages[1..] {
+        assert_eq!(st.section.gain, 1.0);
+        assert!(
+            !has_divider(st) && st.netlist.passive_values().len() == 4,
+            "{st:?}"
+        );
+    }
+    // The nodal analysis agrees: DC gain of the cascade = asked, 1e-9.
+    let (h0, _) = mna::board_response(&sk, Complex64::new(0.0, 0.0)).unwrap();
+    assert!(
+        (h0.re / asked - 1.0).abs() < 1e-9 && h0.im.abs() < 1e-12,
+        "{h0}"
+    );
+    // Multiple feedback: each stage inverts and keeps its own slice.
+    let mfb = Board::build(
+        &secs,
+        &BuildChoices {
+            topology: Topology::MultipleFeedback,
+            ..exact.clone()
+        },
+    )
+    .unwrap();
+    for st in &mfb.stages {
+        assert!((st.section.gain / slice - 1.0).abs() < 1e-15);
+    }
+    assert!((mfb.passband_gain() / -asked - 1.0).abs() < 1e-9);
+    // An overall gain above 1 keeps the even split.
+    let up: Vec<Section> = secs.iter().map(|s| Section { gain: 2.0, ..*s }).collect();
+    let b = Board::build(&up, &exact).unwrap();
+    assert!(b.stages.iter().all(|st| st.section.gain == 2.0));
+    assert!(rolloff::board::place_gains(&secs, Topology::SallenKey)[0].gain < slice);
+}
+
+/// A link through the library's composer (panics with the error: tests only).
+fn compose(link: &str) -> rolloff::pipeline::Design {
+    let report = rolloff::link::parse(link);
+    assert!(report.errors.is_empty(), "{link}: {:?}", report.errors);
+    assert!(
+        report.unknown_keys.is_empty(),
+        "{link}: {:?}",
+        report.unknown_keys
+    );
+    rolloff::pipeline::compose(&report.state).unwrap_or_else(|e| panic!("{link}: {e}"))
+}
+
+#[test]
+fn even_order_chebyshev_with_sallen_key_builds_and_is_ripple_below_the_maximum_at_dc() {
+    // The link of the defect: a 0.5 dB Chebyshev low-pass from a specification, default topo=sk.
+    // Source: scipy.signal.cheb1ap (committed reference data, tests/reference): the prototype's
+    // DC gain |k / ∏(−p)| for the design's order at 0.5 dB ripple, which for even orders is
+    // 10^(−0.5/20) = −0.5 dB (the scipy gain constant; from memory and common practice). With
+    // exact parts and an ideal op amp the board's DC gain must be that within 0.01 dB.
+    let link = "?v=1&resp=lp&family=chebyshev&fpass=20k&apass=0.5&fstop=40k&astop=50";
+    let design = compose(link);
+    assert_eq!(
+        design.state.topology,
+        Topology::SallenKey,
+        "default topology"
+    );
+    let order: usize = design.board.stages.iter().map(|s| s.circuit.order()).sum();
+    assert_eq!(order % 2, 0, "an even order: {order}");
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/reference/synthesis_reference.json"
+    ))
+    .expect("reference data present");
+    let data: serde_json::Value = serde_json::from_str(&text).expect("parses");
+    let proto = data["chebyshev"]
+        .as_array()
+        .expect("chebyshev prototypes")
+        .iter()
+        .find(|e| e["order"] == order && (e["ripple_db"].as_f64().unwrap() - 0.5).abs() < 1e-12)
+        .expect("cheb1ap entry for this order at 0.5 dB");
+    let product: Complex64 = proto["poles"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|p| -Complex64::new(p[0].as_f64().unwrap(), p[1].as_f64().unwrap()))
+        .product();
+    let scipy_dc_db = 20.0 * (proto["k"].as_f64().unwrap() / product.norm()).log10();
+    assert!(
+        (scipy_dc_db + 0.5).abs() < 1e-9,
+        "scipy says {scipy_dc_db} dB"
+    );
+    for ideal in [
+        rolloff::pipeline::ideal_board(&design.board),
+        compose(&format!(
+            "{link}&rser=exact&cser=exact&gbw=ideal&a0=ideal&rout=0"
+        ))
+        .board,
+    ] {
+        let op = ideal.op_amp;
+        assert!(op.gbw_hz.is_infinite() && op.a0_db.is_infinite() && op.rout_ohm == 0.0);
+        let (h0, _) = mna::board_response(&ideal, Complex64::new(0.0, 0.0)).expect("solves");
+        assert!(
+            (db(h0) - scipy_dc_db).abs() < 0.01,
+            "DC gain {} dB vs scipy {scipy_dc_db} dB",
+            db(h0)
+        );
+        // And the passband maximum is 0 dB (the `gain` key), within 0.01 dB: scan the passband.
+        let peak = log_sweep(100.0, 20e3, 400)
+            .into_iter()
+            .map(|f| db(mna::board_response(&ideal, jw(f)).unwrap().0))
+            .fold(f64::NEG_INFINITY, f64::max);
+        assert!(peak.abs() < 0.01, "passband maximum {peak} dB");
+    }
+    // As built (E96/E12, generic op amp), the attenuation sits in stage 1's divider.
+    let first = &design.board.stages[0].netlist;
+    assert!(first.parts.iter().any(|p| p.role == "input divider, lower"));
+}
+
+#[test]
+fn demo_links_design_without_error() {
+    // Our demo links (README and page) and links with a first-order divider stage: each must
+    // compose through the library with no error, with topo=sk boards that attenuate where asked.
+    // The DC (low-pass) or high-frequency (high-pass) gain of the board with exact parts and an
+    // ideal op amp equals the product of the synthesis' section gains (1e-9), so the gain
+    // placement changes nothing overall.
+    for link in [
+        "?v=1&title=Audio+band+edge&resp=lp&family=chebyshev&fpass=20k&apass=0.5&fstop=40k&astop=50",
+        "?v=1&resp=lp&family=chebyshev&fpass=20k&apass=0.5&fstop=40k&astop=50",
+        "?v=1&resp=hp&family=chebyshev&ripple=1&order=4&fc=300",
+        "?v=1&resp=lp&family=chebyshev&ripple=3&order=2&fc=1k&gain=-6",
+        "?v=1&resp=lp&family=chebyshev&ripple=1&order=5&fc=1k&gain=-6",
+        "?v=1&resp=hp&family=butterworth&order=3&fc=100&gain=-3",
+    ] {
+        let design = compose(link);
+        assert!(!design.board.stages.is_empty(), "{link}");
+        let asked: f64 = design.synthesis.sections.iter().map(|s| s.gain).product();
+        assert!(asked < 1.0, "{link}: these links all attenuate ({asked})");
+        let ideal = rolloff::pipeline::ideal_board(&design.board);
+        let probe = match design.board.stages[0].section.kind {
+            SectionKind::HighPass => jw(1e9),
+            _ => Complex64::new(0.0, 0.0),
+        };
+        let (h, _) = mna::board_response(&ideal, probe).expect("solves");
+        assert!(
+            (h.norm() / asked - 1.0).abs() < 1e-6,
+            "{link}: |H| {} vs sections {asked}",
+            h.norm()
+        );
+        assert!(
+            design.board.stages[0]
+                .netlist
+                .parts
+                .iter()
+                .any(|p| p.role == "input divider, upper"),
+            "{link}: stage 1 has the divider"
+        );
+    }
 }

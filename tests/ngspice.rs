@@ -3,8 +3,11 @@
 //! Source: ngspice (the Debian package `ngspice`, version 39 on the build machine), batch mode
 //! (`ngspice -b`), with a `.control` block that runs the exported `.ac` card and writes
 //! real and imaginary parts of V(out) with `wrdata`. Tolerance: gain within 0.05 dB and phase
-//! within 0.5° from 10 Hz to 10 MHz, with the ideal op amp and with two finite op-amp models.
+//! within 0.5° from 10 Hz to 10 MHz, with the ideal op amp and with three finite op-amp models.
 //! When ngspice is missing the tests fail and say what to install.
+//!
+//! The cases cover every circuit, the input-divider shapes of the non-inverting stages (gain
+//! below 1) and whole boards: hand-made section lists and boards composed from demo links.
 
 mod common_circuits;
 
@@ -184,6 +187,106 @@ fn multi_stage_boards_agree_with_ngspice() {
             };
             let board = Board::build(sections, &ch).expect("builds");
             assert!(board.stages.len() >= 2);
+            compare(&board, &format!("{name}-{op_name}"));
+        }
+    }
+}
+
+#[test]
+fn input_divider_stages_agree_with_ngspice() {
+    // One stage per divider shape (gain below 1 on Sallen-Key and buffered RC stages): resistor
+    // legs (low-pass) and capacitor legs (high-pass), second and first order.
+    let half_db = 10f64.powf(-0.5 / 20.0);
+    let cases = [
+        (
+            "sk-lp-divider",
+            section(
+                SectionKind::LowPass,
+                1e3,
+                Some(std::f64::consts::FRAC_1_SQRT_2),
+                0.5,
+            ),
+        ),
+        (
+            "sk-lp-divider-half-db",
+            section(SectionKind::LowPass, 7.9e3, Some(0.68), half_db),
+        ),
+        (
+            "sk-lp-divider-high-q",
+            section(SectionKind::LowPass, 20e3, Some(6.5), 0.1),
+        ),
+        (
+            "sk-hp-divider",
+            section(SectionKind::HighPass, 570.0, Some(0.78), 0.8913),
+        ),
+        (
+            "sk-hp-divider-half",
+            section(SectionKind::HighPass, 2e3, Some(2.0), 0.5),
+        ),
+        (
+            "rc-lp-divider",
+            section(SectionKind::LowPass, 1e3, None, 0.3),
+        ),
+        (
+            "rc-hp-divider",
+            section(SectionKind::HighPass, 100.0, None, 0.8),
+        ),
+    ];
+    for (name, sec) in cases {
+        for (op_name, op) in op_amps() {
+            let board = Board::build(&[sec], &choices(Topology::SallenKey, op)).expect("builds");
+            assert!(
+                board.stages[0]
+                    .netlist
+                    .parts
+                    .iter()
+                    .any(|p| p.role == "input divider, lower"),
+                "{name}: the stage has its divider"
+            );
+            compare(&board, &format!("{name}-{op_name}"));
+        }
+    }
+}
+
+#[test]
+fn boards_from_attenuating_demo_links_agree_with_ngspice() {
+    // Whole boards composed from links whose overall gain is below 1 with topo=sk: the
+    // even-order Chebyshev low-pass of 0.5 dB ripple from a specification, the 4th-order 1 dB
+    // Chebyshev high-pass, a 2nd-order 3 dB Chebyshev at −6 dB and a 5th-order one at −6 dB (its
+    // divider is on the first-order stage).
+    for (name, link) in [
+        (
+            "cheb-lp-spec",
+            "?v=1&resp=lp&family=chebyshev&fpass=20k&apass=0.5&fstop=40k&astop=50",
+        ),
+        (
+            "cheb-hp4",
+            "?v=1&resp=hp&family=chebyshev&ripple=1&order=4&fc=300",
+        ),
+        (
+            "cheb-lp2-minus6",
+            "?v=1&resp=lp&family=chebyshev&ripple=3&order=2&fc=1k&gain=-6",
+        ),
+        (
+            "cheb-lp5-minus6",
+            "?v=1&resp=lp&family=chebyshev&ripple=1&order=5&fc=1k&gain=-6",
+        ),
+    ] {
+        let report = rolloff::link::parse(link);
+        assert!(report.errors.is_empty(), "{link}: {:?}", report.errors);
+        let design =
+            rolloff::pipeline::compose(&report.state).unwrap_or_else(|e| panic!("{link}: {e}"));
+        assert!(
+            design
+                .board
+                .parts()
+                .iter()
+                .any(|p| p.role == "input divider, upper"),
+            "{name}: the board has an input divider"
+        );
+        for (op_name, op) in op_amps() {
+            let mut board = design.board.clone();
+            board.op_amp = op;
             compare(&board, &format!("{name}-{op_name}"));
         }
     }

@@ -268,9 +268,16 @@ impl Realization for Divided {
     }
 }
 
+/// Standard values either side of a divider leg over which the other leg is re-solved, for
+/// capacitor legs. The resistors of the stage are re-solved from the capacitors' sum, so moving
+/// the pair along the series costs no f0 or Q, and the ratio of two coarse-series capacitors
+/// (E12 steps are 21 %) is found only by looking at several pairs: three steps each way.
+const CAPACITOR_LEG_REACH: usize = 7;
+
 /// The (upper, lower) leg pairs the combination search tries for a divider whose designed legs
 /// are `upper` and `lower`: the `n_near` standard values near each leg in every combination, and
-/// for each of those the other leg re-solved to keep the designed Thevenin value or the designed
+/// for each standard value near a leg (the `n_near` nearest for resistors, [`CAPACITOR_LEG_REACH`]
+/// for capacitors) the other leg re-solved to keep the designed Thevenin value or the designed
 /// ratio, then taken at the standard values just below and above. Ascending, no repeats; each
 /// pair as slot assignments.
 pub(crate) fn pair_choices(
@@ -283,13 +290,17 @@ pub(crate) fn pair_choices(
     let thevenin = divider.thevenin(upper, lower);
     let k = divider.ratio(upper, lower);
     let near = |v: f64, n: usize| series.candidates(v, n, divider.class);
-    let uppers = near(upper, n_near);
-    let lowers = near(lower, n_near);
+    let reach = match divider.class {
+        PartClass::Resistor => n_near,
+        PartClass::Capacitor => n_near.max(CAPACITOR_LEG_REACH),
+    };
     let mut pairs: Vec<(f64, f64)> = Vec::new();
-    for &u in &uppers {
-        for &l in &lowers {
+    for &u in &near(upper, n_near) {
+        for &l in &near(lower, n_near) {
             pairs.push((u, l));
         }
+    }
+    for &u in &near(upper, reach) {
         let resolved = [
             divider.lower_for_thevenin(u, thevenin),
             divider.lower_for_ratio(u, k),
@@ -298,7 +309,7 @@ pub(crate) fn pair_choices(
             pairs.extend(near(l_star, 2).into_iter().map(|l| (u, l)));
         }
     }
-    for &l in &lowers {
+    for &l in &near(lower, reach) {
         let resolved = [
             divider.upper_for_thevenin(l, thevenin),
             divider.upper_for_ratio(l, k),

@@ -220,7 +220,7 @@ pub(crate) fn round(
         }
     };
     if let Some(achieved) = realization.achieved(&values) {
-        let (ef, eq, _) = achieved.errors(target);
+        let (ef, eq, eg) = achieved.errors(target);
         let eq_abs = eq.map_or(0.0, f64::abs);
         if ef.abs() > 0.01 || eq_abs > 0.02 {
             warnings.push(format!(
@@ -228,6 +228,18 @@ pub(crate) fn round(
                  (rser, cser) or round=search narrows it",
                 100.0 * ef,
                 eq.map_or(String::new(), |e| format!(" and Q {:+.2} %", 100.0 * e))
+            ));
+        }
+        if eg.abs() > 0.01 {
+            let series = match layout.divider {
+                Some(d) if d.class == PartClass::Capacitor => "cser",
+                _ => "rser, cser",
+            };
+            warnings.push(format!(
+                "stage {stage_no}: standard values leave the gain {:+.2} % ({:+.3} dB) off \
+                 target; a finer series ({series}) narrows it",
+                100.0 * eg,
+                20.0 * (1.0 + eg).log10()
             ));
         }
     }
