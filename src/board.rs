@@ -74,12 +74,14 @@ pub struct BuildChoices {
     /// Sallen-Key high-pass C1/C2 (input over second), MFB low-pass C1/C2 (ground over feedback,
     /// ≥ 4Q²(1 + K)), MFB high-pass C2/C1 (to the − input over input), MFB band-pass C1/C2 (to
     /// the − input over feedback, > K/Q² − 1). Default `None`: the circuit's own default (10 %
-    /// above the least ratio where there is one, else equal capacitors).
+    /// above the least ratio where there is one, else equal capacitors). On a stage with an
+    /// input divider (gain below 1), C1 of the high-pass is the legs' sum Ca + Cb and K = 1.
     pub c_ratio: Option<f64>,
     /// `rratio`: resistor ratio of the second-order stages instead of `cratio` (0.001–10000):
     /// Sallen-Key low-pass R2/R1, Sallen-Key high-pass R2/R1 (ground over feedback), MFB low-pass
     /// R3/R2 (feedback over the resistor to the − input), MFB high-pass R2/R1, MFB band-pass
-    /// R3/R1. Default `None`.
+    /// R3/R1. Default `None`. On a stage with an input divider, R1 of the low-pass is the legs'
+    /// Thevenin value Ra‖Rb.
     pub r_ratio: Option<f64>,
     /// `round`: nearest-value rounding or the combination search. Default search.
     pub rounding: Rounding,
@@ -226,7 +228,7 @@ pub fn place_gains(sections: &[Section], topology: Topology) -> Vec<Section> {
         .iter()
         .map(|&idx| sections[idx].gain.abs())
         .product();
-    if non_inverting.len() < 2 || !(product < 1.0) {
+    if non_inverting.len() < 2 || product.is_nan() || product >= 1.0 {
         return placed;
     }
     for (n, &idx) in non_inverting.iter().enumerate() {

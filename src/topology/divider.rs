@@ -12,11 +12,11 @@
 //!
 //! The rest of the stage is the unity-gain (follower) circuit, so with an ideal op amp
 //! H(s) = k·H_unity(s): the same f0 and Q as the unity-gain design with the Thevenin value, and
-//! passband gain k. [`Divided`] wraps a circuit's [`Realization`] this way: it reduces the two
+//! passband gain k. `Divided` wraps a circuit's `Realization` this way: it reduces the two
 //! legs to their Thevenin value, lets the circuit solve or read back its unity-gain closed forms,
 //! and splits the value again.
 //!
-//! Rounding a divider pair: [`pair_choices`] gives the combination search the standard values
+//! Rounding a divider pair: `pair_choices` gives the combination search the standard values
 //! near each leg and, for each of them, the other leg re-solved so that either the Thevenin
 //! value or the ratio k stays as designed (then rounded either side), so the search can trade a
 //! little gain error against a little f0/Q error instead of rounding both legs blindly.

@@ -4,6 +4,8 @@
 //! Buffered low-pass (R1 in→a, C1 a→ground, op amp + at a): H(s) = K / (1 + s·R1·C1).
 //! Buffered high-pass (C1 in→a, R1 a→ground): H(s) = K·s·R1·C1 / (1 + s·R1·C1).
 //! K = 1 (follower) or 1 + R2/R3 (divider R2 out→−, R3 −→ground). w0 = 1/(R1·C1).
+//! K < 1: the series part is split into an input divider with the same Thevenin value
+//! ([`super::divider`]).
 //!
 //! Inverting low-pass (R1 in→−, R2 ‖ C1 from − to out):
 //! H(s) = −(R2/R1) / (1 + s·R2·C1), w0 = 1/(R2·C1).

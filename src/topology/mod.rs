@@ -13,7 +13,8 @@
 //!    neighbouring standard values that re-solves the dependent resistors and keeps f0, Q and gain
 //!    closest to target.
 //!
-//! The circuits and their closed forms live in [`sallen_key`], [`mfb`] and [`first_order`].
+//! The circuits and their closed forms live in [`sallen_key`], [`mfb`] and [`first_order`]; a
+//! non-inverting stage with a gain below 1 splits its input part into a divider ([`divider`]).
 
 pub mod divider;
 pub mod first_order;
@@ -53,9 +54,11 @@ impl Topology {
 /// module that builds it.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 pub enum Circuit {
-    /// Sallen-Key low-pass, unity gain or gain set by two resistors ([`sallen_key`]).
+    /// Sallen-Key low-pass, unity gain, gain set by two resistors, or gain below 1 through an
+    /// input divider ([`sallen_key`], [`divider`]).
     SallenKeyLowPass,
-    /// Sallen-Key high-pass, unity gain or gain set by two resistors ([`sallen_key`]).
+    /// Sallen-Key high-pass, unity gain, gain set by two resistors, or gain below 1 through an
+    /// input capacitor divider ([`sallen_key`], [`divider`]).
     SallenKeyHighPass,
     /// Multiple-feedback low-pass, inverting ([`mfb`]).
     MfbLowPass,
@@ -63,9 +66,11 @@ pub enum Circuit {
     MfbHighPass,
     /// Multiple-feedback band-pass, inverting ([`mfb`]).
     MfbBandPass,
-    /// First-order RC low-pass with a follower (or a non-inverting gain) ([`first_order`]).
+    /// First-order RC low-pass with a follower, a non-inverting gain, or an input divider for a
+    /// gain below 1 ([`first_order`], [`divider`]).
     BufferedLowPass,
-    /// First-order CR high-pass with a follower (or a non-inverting gain) ([`first_order`]).
+    /// First-order CR high-pass with a follower, a non-inverting gain, or a capacitor divider
+    /// for a gain below 1 ([`first_order`], [`divider`]).
     BufferedHighPass,
     /// First-order inverting low-pass: R in, R ‖ C feedback ([`first_order`]).
     InvertingLowPass,
@@ -128,7 +133,8 @@ impl Circuit {
         )
     }
 
-    /// True when the circuit can have a two-resistor gain network (non-inverting stages).
+    /// True when the circuit can have a two-resistor gain network (non-inverting stages); the
+    /// same circuits take a gain below 1 through an input divider ([`divider`]).
     pub fn has_gain_network_option(self) -> bool {
         matches!(
             self,

@@ -19,6 +19,10 @@
 //!
 //! Both transfer functions follow from the node equations at a and b with an ideal op amp
 //! (V− = V+, Vout = K·V+); the tests check them against the nodal analysis.
+//!
+//! A gain k < 1 is not built here: the follower circuit's input part (R1 of the low-pass, C1 of
+//! the high-pass) is split into an input divider with the same Thevenin value, see
+//! [`super::divider`].
 
 use super::{
     pick_root, positive_roots, slot, Achieved, Layout, RatioRule, Realization, Slot, Target,

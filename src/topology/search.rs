@@ -10,7 +10,7 @@
 //! never worse than nearest rounding.
 //!
 //! The two legs of an input divider are one choice with several candidate pairs
-//! ([`super::divider::pair_choices`]): the neighbours of each leg, and the other leg re-solved to
+//! (`divider::pair_choices`): the neighbours of each leg, and the other leg re-solved to
 //! keep the Thevenin value or the ratio. Capacitor legs are free parts (the resistors are
 //! re-solved from their sum), resistor legs are dependent parts (taken after the solve).
 
