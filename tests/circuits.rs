@@ -1257,14 +1257,14 @@ fn design_freedoms_are_honoured() {
 
 #[test]
 fn a_grid_of_requests_gives_a_sound_board_or_a_named_error() {
-    // Robustness over a deterministic grid (Q 0.5–12, gain 1–20, f0 1 Hz–200 kHz, every ratio
+    // Robustness over a deterministic grid (Q 0.5–12, gain 0.001–20 (input dividers below 1), f0 1 Hz–200 kHz, every ratio
     // choice, both topologies and all three section kinds): either an InputError with one of the
     // keys of a design freedom, or a board whose every part is finite, positive, inside the
     // buildable range, with f0 within 3 % and Q within 6 % of target (E96/E12, search).
     let mut n_boards = 0;
     for &f0 in &[1.0, 150.0, 10e3, 200e3] {
         for &q in &[0.5, FRAC_1_SQRT_2, 2.0, 12.0] {
-            for &gain in &[1.0, 1.7, 20.0] {
+            for &gain in &[1e-3, 0.3, 0.9985, 1.0, 1.7, 20.0] {
                 for kind in [
                     SectionKind::LowPass,
                     SectionKind::HighPass,
