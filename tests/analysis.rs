@@ -336,8 +336,23 @@ fn zero_tolerance_runs_equal_the_nominal_board() {
         &cut.samples[..5]
     );
     assert!(cut.std_dev <= 1e-12 * cut.mean, "std dev {}", cut.std_dev);
-    for st in &s.stages {
+    for (st, stage) in s.stages.iter().zip(&board.stages) {
         assert!(st.f0_hz.samples.iter().all(|&v| v == st.f0_hz.nominal));
+        // Oracle: f0 and Q from all roots of the stage denominator (Aberth–Ehrlich), 1e-9.
+        let f = stage_factor(&stage.netlist, &board.op_amp).unwrap();
+        assert!(
+            (st.f0_hz.nominal / f.f0_hz - 1.0).abs() < 1e-9,
+            "f0 {} vs {}",
+            st.f0_hz.nominal,
+            f.f0_hz
+        );
+        if let (Some(q), Some(qr)) = (&st.q, f.q) {
+            assert!(
+                (q.nominal / qr - 1.0).abs() < 1e-9,
+                "Q {} vs {qr}",
+                q.nominal
+            );
+        }
     }
     assert_eq!(s.yield_fraction, None, "no mask: yield is null");
 }

@@ -495,22 +495,19 @@ impl FastFit {
 pub fn magnitude_squared_into(p: &[f64], out: &mut [f64]) -> usize {
     let len = p.len();
     out[..len].iter_mut().for_each(|v| *v = 0.0);
-    // |P(jy)|² = Σ_a Σ_b p_a p_b (jy)^a (−jy)^b; with a + b even it is real:
-    // (j)^a (−j)^b = j^(a+b) (−1)^b = (−1)^((a+b)/2 + b).
+    // |P(jy)|² = E(−x)² + x·O(−x)² with E, O the even and odd parts (x = y²): the coefficient of
+    // x^m collects p_a·p_b with a + b = 2m, signed (−1)^(m + b).
     for a in 0..len {
-        if p[a] == 0.0 {
+        let pa = p[a];
+        if pa == 0.0 {
             continue;
         }
-        for b in 0..len {
-            if (a + b) % 2 != 0 {
-                continue;
-            }
-            let sign = if ((a + b) / 2 + b) % 2 == 0 {
-                1.0
-            } else {
-                -1.0
-            };
-            out[(a + b) / 2] += sign * p[a] * p[b];
+        let mut b = a % 2;
+        while b < len {
+            let m = (a + b) / 2;
+            let term = pa * p[b];
+            out[m] += if (m + b) % 2 == 0 { term } else { -term };
+            b += 2;
         }
     }
     len
