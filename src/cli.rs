@@ -27,6 +27,7 @@ const USAGE: &str = "usage:
   rolloff design LINK [--format text|json|bom|spice]
   rolloff sweep  LINK [--from HZ] [--to HZ] [--points N] [--ideal]
   rolloff spread LINK [--runs N] [--seed S] [--format text|json]
+  rolloff plot   LINK [--kind magnitude|phase|delay|step|poles|impedance|noise|levels] [--out FILE.svg]
 LINK is a Rolloff query string or a whole URL (quote it in the shell).";
 
 /// Runs one command line. Returns the exit status.
@@ -55,6 +56,8 @@ struct Flags {
     ideal: bool,
     runs: Option<usize>,
     seed: Option<u64>,
+    kind: Option<String>,
+    out: Option<String>,
 }
 
 fn dispatch(args: &[String], out: &mut dyn Write, err: &mut dyn Write) -> Result<(), Failure> {
@@ -84,8 +87,9 @@ fn dispatch(args: &[String], out: &mut dyn Write, err: &mut dyn Write) -> Result
         "design" => cmd_design(&report, &flags, out),
         "sweep" => cmd_sweep(&report, &flags, out),
         "spread" => cmd_spread(&report, &flags, out),
+        "plot" => cmd_plot(&report, &flags, out),
         other => Err(Failure::Input(format!(
-            "'{other}' is not a command; use design, sweep or spread"
+            "'{other}' is not a command; use design, sweep, spread or plot"
         ))),
     }
 }
@@ -101,9 +105,10 @@ fn read_flags(command: &str, rest: &[String]) -> Result<Flags, Failure> {
         "design" => &["format"],
         "sweep" => &["from", "to", "points", "ideal"],
         "spread" => &["runs", "seed", "format"],
+        "plot" => &["kind", "out"],
         other => {
             return Err(Failure::Input(format!(
-                "'{other}' is not a command; use design, sweep or spread"
+                "'{other}' is not a command; use design, sweep, spread or plot"
             )))
         }
     };
@@ -168,6 +173,8 @@ fn set_flag(flags: &mut Flags, name: &str, value: &str) -> Result<(), Failure> {
     };
     match name {
         "format" => flags.format = Some(value.to_string()),
+        "kind" => flags.kind = Some(value.to_string()),
+        "out" => flags.out = Some(value.to_string()),
         "from" => flags.from_hz = Some(frequency(value)?),
         "to" => flags.to_hz = Some(frequency(value)?),
         "points" => {
@@ -303,4 +310,25 @@ fn cmd_spread(report: &LinkReport, flags: &Flags, out: &mut dyn Write) -> Result
         _ => crate::export::text::spread_text(&design, &spread),
     };
     out.write_all(text.as_bytes()).map_err(io_failure)
+}
+
+/// Writes one of the page's figures as SVG (light theme), to `--out` or standard output.
+fn cmd_plot(report: &LinkReport, flags: &Flags, out: &mut dyn Write) -> Result<(), Failure> {
+    use crate::plot::{PlotKind, Theme};
+    let name = flags.kind.as_deref().unwrap_or("magnitude");
+    let Some(kind) = PlotKind::from_key(name) else {
+        let names: Vec<&str> = PlotKind::ALL.iter().map(|k| k.key()).collect();
+        return Err(Failure::Input(format!(
+            "--kind: '{name}' is not accepted; use one of {}",
+            names.join(", ")
+        )));
+    };
+    let model = crate::plot::page::compose(&report.state)?;
+    let svg = crate::plot::render_svg(&model.figure(kind), 960, 540, Theme::Light)
+        .map_err(|e| Failure::Other(e.to_string()))?;
+    match &flags.out {
+        Some(path) => std::fs::write(path, svg)
+            .map_err(|e| Failure::Other(format!("cannot write {path}: {e}"))),
+        None => out.write_all(svg.as_bytes()).map_err(io_failure),
+    }
 }

@@ -242,3 +242,35 @@ fn design_json_carries_the_analyses_of_the_built_board() {
         Some(2)
     );
 }
+
+#[test]
+fn plot_writes_an_svg_for_every_kind_and_refuses_an_unknown_one() {
+    let link = "?v=1&order=4&fc=1k&fpass=800&fstop=4k&astop=30";
+    for kind in [
+        "magnitude",
+        "phase",
+        "delay",
+        "step",
+        "poles",
+        "impedance",
+        "noise",
+        "levels",
+    ] {
+        let (code, out, err) = rolloff(&["plot", link, "--kind", kind]);
+        assert_eq!(code, 0, "{kind}: {err}");
+        assert!(
+            out.starts_with("<svg") && out.trim_end().ends_with("</svg>"),
+            "{kind}: not an SVG document"
+        );
+        assert!(
+            out.matches("<path").count()
+                + out.matches("<polyline").count()
+                + out.matches("<line").count()
+                > 3,
+            "{kind}: nothing drawn"
+        );
+    }
+    let (code, _, err) = rolloff(&["plot", link, "--kind", "sparkles"]);
+    assert_eq!(code, 2);
+    assert!(err.contains("--kind"), "{err}");
+}
