@@ -263,8 +263,16 @@ fn real_point_fit_matches_the_circle_fit() {
             // Both elimination paths: partial pivoting, then the static pivot order.
             assert!(fast.fit(&assembled));
             let partial = (fast.num_u.clone(), fast.den_u.clone());
-            fast.choose_pivots(&assembled);
+            fast.choose_pivots(&compiled, &assembled);
             assert!(fast.fit(&assembled));
+            let static_fit = fast.den_u.clone();
+            let mut scratch = compiled.blank();
+            let values: Vec<f64> = stage.netlist.parts.iter().map(|p| p.value).collect();
+            assert!(fast.fit_values(&compiled, &values, &mut scratch));
+            assert_eq!(
+                static_fit, fast.den_u,
+                "direct stamping equals assemble + fit"
+            );
             for (a, b) in partial.1.iter().zip(&fast.den_u) {
                 assert!(
                     (a - b).abs() <= 1e-12 * partial.1.iter().fold(0.0f64, |m, v| m.max(v.abs()))
@@ -427,6 +435,25 @@ fn rc_cutoff_spread_matches_propagation_of_errors() {
         "relative spread {rel}, expected {want}"
     );
     assert_eq!(cut.hz.n_missing, 0);
+}
+
+/// Identity: percentiles by selection equal the linear-interpolation percentiles of the sorted
+/// data (the definition numpy calls "linear"), exactly, for random data with ties.
+#[test]
+fn percentiles_by_selection_equal_sorted_percentiles() {
+    use rolloff::analysis::montecarlo::{percentile_sorted, percentiles_by_selection};
+    let mut rng = Xoshiro256PlusPlus::seed_from_u64(3);
+    for n in [1usize, 2, 3, 10, 101, 1000] {
+        let data: Vec<f64> = (0..n).map(|_| (unit(&mut rng) * 20.0).floor()).collect();
+        let mut sorted = data.clone();
+        sorted.sort_by(|a, b| a.total_cmp(b));
+        let ps = [95.0, 0.0, 5.0, 50.0, 50.0, 100.0, 37.3];
+        let mut work = data.clone();
+        let got = percentiles_by_selection(&mut work, &ps, |a, b| a.total_cmp(b));
+        for (p, g) in ps.iter().zip(got) {
+            assert_eq!(g, percentile_sorted(&sorted, *p), "n {n}, p {p}");
+        }
+    }
 }
 
 // ---------------------------------------------------------------------------------------------

@@ -30,6 +30,12 @@ pub struct FastFit {
     order_sign: f64,
     /// Whether the static pivot order may be used.
     static_ok: bool,
+    /// Row-major index of `G`/`C` → its place after both permutations; row → its place.
+    slot_map: Vec<usize>,
+    row_map: Vec<usize>,
+    /// The op-amp base matrices, already permuted, and a work copy stamped per run.
+    perm_base: Option<Assembled>,
+    perm_work: Option<Assembled>,
     m: Vec<f64>,
     rhs: Vec<f64>,
     num_samples: Vec<f64>,
@@ -132,6 +138,10 @@ impl FastFit {
             row_order: (0..n).collect(),
             order_sign: 1.0,
             static_ok: false,
+            slot_map: Vec::new(),
+            row_map: Vec::new(),
+            perm_base: None,
+            perm_work: None,
             m: vec![0.0; n * n],
             rhs: vec![0.0; n],
             num_samples: vec![0.0; k],
@@ -170,7 +180,7 @@ impl FastFit {
     /// largest candidate in its column (threshold pivoting). Part tolerances move the entries by
     /// tens of percent, not by orders of magnitude, so the order stays good for every run; a run
     /// whose pivot vanishes anyway falls back to partial pivoting.
-    pub fn choose_pivots(&mut self, assembled: &Assembled) {
+    pub fn choose_pivots(&mut self, compiled: &Compiled, assembled: &Assembled) {
         let n = self.n;
         if n == 0 {
             return;
@@ -233,20 +243,88 @@ impl FastFit {
             }
         }
         // The permutation's sign is that of the pivoting sequence.
+        let mut inv_order = vec![0usize; n];
+        for (step, &row) in rows.iter().enumerate() {
+            inv_order[row] = step;
+        }
+        self.row_map = (0..n).map(|r| inv_order[self.perm[r]]).collect();
+        self.slot_map = (0..n * n)
+            .map(|i| self.row_map[i / n] * n + self.perm[i % n])
+            .collect();
+        let mut base = compiled.blank();
+        for i in 0..n * n {
+            base.g[self.slot_map[i]] = compiled.base_g[i];
+            base.c[self.slot_map[i]] = compiled.base_c[i];
+        }
+        for r in 0..n {
+            base.g_in[self.row_map[r]] = compiled.base_g_in[r];
+        }
+        self.perm_work = Some(base.clone());
+        self.perm_base = Some(base);
         self.row_order = rows;
         self.order_sign = sign;
         self.static_ok = true;
+    }
+
+    /// Stamps the part `values` straight into the permuted matrices and fits; falls back to
+    /// [`Compiled::assemble_into`] into `scratch` and [`FastFit::fit`] when the static order is
+    /// not available or a pivot vanished. False when the matrices are singular.
+    pub fn fit_values(
+        &mut self,
+        compiled: &Compiled,
+        values: &[f64],
+        scratch: &mut Assembled,
+    ) -> bool {
+        if let (true, Some(base), Some(mut work)) = (
+            self.static_ok,
+            self.perm_base.as_ref(),
+            self.perm_work.take(),
+        ) {
+            work.g.copy_from_slice(&base.g);
+            work.c.copy_from_slice(&base.c);
+            work.g_in.copy_from_slice(&base.g_in);
+            work.c_in.iter_mut().for_each(|v| *v = 0.0);
+            for st in &compiled.stamps {
+                let value = values.get(st.part_idx).copied().unwrap_or(f64::NAN);
+                let (mat, vec, y) = if st.is_capacitor {
+                    (&mut work.c, &mut work.c_in, value)
+                } else {
+                    (&mut work.g, &mut work.g_in, 1.0 / value)
+                };
+                for &(slot, sign) in &st.slots {
+                    match slot {
+                        super::circuit::Slot::Matrix(i) => mat[self.slot_map[i]] += sign * y,
+                        super::circuit::Slot::Input(r) => vec[self.row_map[r]] += sign * y,
+                    }
+                }
+            }
+            let ok = match self.n {
+                2 => self.sample_static::<2>(&work, true),
+                3 => self.sample_static::<3>(&work, true),
+                4 => self.sample_static::<4>(&work, true),
+                5 => self.sample_static::<5>(&work, true),
+                6 => self.sample_static::<6>(&work, true),
+                _ => false,
+            };
+            self.perm_work = Some(work);
+            if ok {
+                self.interpolate();
+                return true;
+            }
+        }
+        compiled.assemble_into(values, scratch);
+        self.fit(scratch)
     }
 
     /// Fits `assembled`; false when a sample point hit a singular matrix.
     pub fn fit(&mut self, assembled: &Assembled) -> bool {
         let fast = self.static_ok
             && match self.n {
-                2 => self.sample_static::<2>(assembled),
-                3 => self.sample_static::<3>(assembled),
-                4 => self.sample_static::<4>(assembled),
-                5 => self.sample_static::<5>(assembled),
-                6 => self.sample_static::<6>(assembled),
+                2 => self.sample_static::<2>(assembled, false),
+                3 => self.sample_static::<3>(assembled, false),
+                4 => self.sample_static::<4>(assembled, false),
+                5 => self.sample_static::<5>(assembled, false),
+                6 => self.sample_static::<6>(assembled, false),
                 _ => false,
             };
         if fast {
@@ -292,26 +370,35 @@ impl FastFit {
     /// Samples D and N with the static pivot order, four sample points at a time in the lanes of
     /// fixed-size arrays (no branches inside the elimination, so it vectorises). False when a
     /// pivot vanished (the caller then pivots partially).
-    fn sample_static<const N: usize>(&mut self, a: &Assembled) -> bool {
+    fn sample_static<const N: usize>(&mut self, a: &Assembled, permuted: bool) -> bool {
         const L: usize = 4;
         let mut g = [[0.0f64; N]; N];
         let mut c = [[0.0f64; N]; N];
         let mut g_in = [0.0f64; N];
         let mut c_in = [0.0f64; N];
-        // Output-last column permutation, then the static row order.
-        let mut inv_order = [0usize; N];
-        for (step, &row) in self.row_order.iter().enumerate() {
-            inv_order[row] = step;
-        }
-        for r in 0..N {
-            let pr = inv_order[self.perm[r]];
-            for col in 0..N {
-                let pc = self.perm[col];
-                g[pr][pc] = a.g[r * N + col];
-                c[pr][pc] = a.c[r * N + col];
+        if permuted {
+            for r in 0..N {
+                g[r].copy_from_slice(&a.g[r * N..(r + 1) * N]);
+                c[r].copy_from_slice(&a.c[r * N..(r + 1) * N]);
             }
-            g_in[pr] = a.g_in[r];
-            c_in[pr] = a.c_in[r];
+            g_in.copy_from_slice(&a.g_in[..N]);
+            c_in.copy_from_slice(&a.c_in[..N]);
+        } else {
+            // Output-last column permutation, then the static row order.
+            let mut inv_order = [0usize; N];
+            for (step, &row) in self.row_order.iter().enumerate() {
+                inv_order[row] = step;
+            }
+            for r in 0..N {
+                let pr = inv_order[self.perm[r]];
+                for col in 0..N {
+                    let pc = self.perm[col];
+                    g[pr][pc] = a.g[r * N + col];
+                    c[pr][pc] = a.c[r * N + col];
+                }
+                g_in[pr] = a.g_in[r];
+                c_in[pr] = a.c_in[r];
+            }
         }
         let k = self.k;
         let mut start = 0;

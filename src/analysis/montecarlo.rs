@@ -674,7 +674,7 @@ impl MonteCarlo {
                 ))
             })?;
             let mut fast = FastFit::new(&compiled, rat.scale_rad_s, w_g);
-            fast.choose_pivots(&assembled);
+            fast.choose_pivots(&compiled, &assembled);
             let k = fast.n_coef();
             // A cubic denominator with one real pole well above the dominant pair: the fast split.
             let far_root_u = (order == 2 && rat.den.degree() == 3)
@@ -852,8 +852,7 @@ impl MonteCarlo {
         let w_g = self.w_g;
         for (k, st) in self.stages.iter_mut().enumerate() {
             let vals = &self.values[st.value_offset..st.value_offset + st.n_parts];
-            st.compiled.assemble_into(vals, &mut st.assembled);
-            if !st.fast.fit(&st.assembled) {
+            if !st.fast.fit_values(&st.compiled, vals, &mut st.assembled) {
                 return Err(AnalysisError::Singular("a stage of a tolerance run".into()));
             }
             st.fast.trim();
@@ -1117,9 +1116,8 @@ impl MonteCarlo {
                     .map(|r| self.samples_h2[r * n_grid + f])
                     .filter(|v| !v.is_nan()),
             );
-            column.sort_unstable_by(|a, b| a.total_cmp(b));
-            for (c, &p) in curves.iter_mut().zip(pct) {
-                let v = percentile_sorted_f32(&column, p);
+            let values = percentiles_by_selection(&mut column, pct, |a, b| a.total_cmp(b));
+            for (c, v) in curves.iter_mut().zip(values) {
                 c.db.push(to_db(v));
             }
         }
@@ -1303,15 +1301,50 @@ fn cascade_kernel_portable(
     }
 }
 
-fn percentile_sorted_f32(sorted: &[f32], p: f64) -> f64 {
-    if sorted.is_empty() {
-        return f64::NAN;
+/// Linear-interpolation percentiles (as [`percentile_sorted`]) without sorting: each needed order
+/// statistic is placed by selection (`select_nth_unstable`, linear time), the ranks in ascending
+/// order so each selection works on what is left above the previous one.
+pub fn percentiles_by_selection<T: Copy + Into<f64>>(
+    data: &mut [T],
+    percentiles: &[f64],
+    cmp: impl Fn(&T, &T) -> std::cmp::Ordering + Copy,
+) -> Vec<f64> {
+    let n = data.len();
+    if n == 0 {
+        return vec![f64::NAN; percentiles.len()];
     }
-    let pos = p / 100.0 * (sorted.len() - 1) as f64;
-    let i = pos.floor() as usize;
-    let j = (i + 1).min(sorted.len() - 1);
-    let t = pos - i as f64;
-    sorted[i] as f64 * (1.0 - t) + sorted[j] as f64 * t
+    // (position, index in the request) sorted by position.
+    let mut wanted: Vec<(f64, usize)> = percentiles
+        .iter()
+        .enumerate()
+        .map(|(i, &p)| ((p / 100.0).clamp(0.0, 1.0) * (n - 1) as f64, i))
+        .collect();
+    wanted.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let mut out = vec![f64::NAN; percentiles.len()];
+    let mut placed = 0usize; // data[..placed] holds order statistics below the next rank.
+    let mut last_rank: Option<usize> = None;
+    for (pos, idx) in wanted {
+        let i = pos.floor() as usize;
+        let t = pos - i as f64;
+        if last_rank != Some(i) {
+            let start = placed.min(i);
+            data[start..].select_nth_unstable_by(i - start, cmp);
+            placed = i;
+            last_rank = Some(i);
+        }
+        let lo: f64 = data[i].into();
+        let hi: f64 = if t > 0.0 && i + 1 < n {
+            data[i + 1..]
+                .iter()
+                .copied()
+                .min_by(cmp)
+                .map_or(lo, Into::into)
+        } else {
+            lo
+        };
+        out[idx] = lo * (1.0 - t) + hi * t;
+    }
+    out
 }
 
 /// Linear-interpolation percentile of sorted samples (the common "linear" definition).
@@ -1328,23 +1361,27 @@ pub fn percentile_sorted(sorted: &[f64], p: f64) -> f64 {
 
 /// Statistics of `samples` (NaN entries count as missing).
 pub fn spread_of(nominal: f64, samples: Vec<f64>, percentiles: &[f64]) -> Spread {
-    let mut sorted: Vec<f64> = samples.iter().copied().filter(|v| v.is_finite()).collect();
-    sorted.sort_unstable_by(|a, b| a.total_cmp(b));
-    let m = sorted.len();
+    let mut finite: Vec<f64> = samples.iter().copied().filter(|v| v.is_finite()).collect();
+    let m = finite.len();
     let n_missing = samples.len() - m;
     let mean = if m > 0 {
-        sorted.iter().sum::<f64>() / m as f64
+        finite.iter().sum::<f64>() / m as f64
     } else {
         f64::NAN
     };
     let std_dev = if m > 1 {
-        (sorted.iter().map(|v| (v - mean) * (v - mean)).sum::<f64>() / (m - 1) as f64).sqrt()
+        (finite.iter().map(|v| (v - mean) * (v - mean)).sum::<f64>() / (m - 1) as f64).sqrt()
     } else {
         0.0
     };
-    let (min, max) = match (sorted.first(), sorted.last()) {
-        (Some(&a), Some(&b)) => (a, b),
-        _ => (f64::NAN, f64::NAN),
+    let (min, max) = if m > 0 {
+        finite
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
+                (a.min(v), b.max(v))
+            })
+    } else {
+        (f64::NAN, f64::NAN)
     };
     let n_bins = 40;
     let mut counts = vec![0usize; n_bins];
@@ -1359,7 +1396,7 @@ pub fn spread_of(nominal: f64, samples: Vec<f64>, percentiles: &[f64]) -> Spread
     };
     if m > 0 {
         if max > min {
-            for &v in &sorted {
+            for &v in &finite {
                 let b = (((v - min) / (max - min)) * n_bins as f64) as usize;
                 counts[b.min(n_bins - 1)] += 1;
             }
@@ -1370,6 +1407,7 @@ pub fn spread_of(nominal: f64, samples: Vec<f64>, percentiles: &[f64]) -> Spread
     } else {
         counts.clear();
     }
+    let values = percentiles_by_selection(&mut finite, percentiles, |a, b| a.total_cmp(b));
     Spread {
         nominal,
         mean,
@@ -1378,9 +1416,10 @@ pub fn spread_of(nominal: f64, samples: Vec<f64>, percentiles: &[f64]) -> Spread
         max,
         percentiles: percentiles
             .iter()
-            .map(|&p| PercentileValue {
+            .zip(values)
+            .map(|(&p, value)| PercentileValue {
                 percentile: p,
-                value: percentile_sorted(&sorted, p),
+                value,
             })
             .collect(),
         histogram: Histogram { edges, counts },
