@@ -45,6 +45,8 @@ use std::f64::consts::PI;
 pub const MAX_RUNS: usize = 100_000;
 /// Largest part tolerance accepted, %.
 pub const MAX_TOLERANCE_PCT: f64 = 50.0;
+/// Runs per block of the single-precision sample table.
+const SAMPLE_BLOCK: usize = 64;
 /// Frequencies evaluated together in the branch-free kernel.
 const LANES: usize = 32;
 
@@ -310,6 +312,9 @@ pub struct MonteCarlo {
     n_pass: usize,
     env_min: Vec<f64>,
     env_max: Vec<f64>,
+    /// |H|² of every run in single precision, in blocks of [`SAMPLE_BLOCK`] runs stored
+    /// frequency-major inside each block: writing a run stays within one block (cache-resident)
+    /// and reading one frequency over all runs reads contiguous stretches.
     samples_h2: Vec<f32>,
     cut_lo: Vec<f64>,
     cut_hi: Vec<f64>,
@@ -769,7 +774,7 @@ impl MonteCarlo {
             n_pass: 0,
             env_min: vec![f64::INFINITY; n_grid],
             env_max: vec![0.0; n_grid],
-            samples_h2: Vec::with_capacity(runs_total * n_grid),
+            samples_h2: Vec::new(),
             cut_lo: Vec::with_capacity(runs_total),
             cut_hi: Vec::with_capacity(runs_total),
             gain_db: Vec::with_capacity(runs_total),
@@ -1067,7 +1072,12 @@ impl MonteCarlo {
             *mn = if v < *mn { v } else { *mn };
             *mx = if v > *mx { v } else { *mx };
         }
-        self.samples_h2.extend(grid.iter().map(|&v| v as f32));
+        let (base, j) = self.sample_slot();
+        let grid = &self.h2[..self.n_grid];
+        let samples = &mut self.samples_h2[base..base + SAMPLE_BLOCK * self.n_grid];
+        for (f, &v) in grid.iter().enumerate() {
+            samples[f * SAMPLE_BLOCK + j] = v as f32;
+        }
         self.n_pass += usize::from(r.pass);
         self.cut_lo.push(r.cut_lo_hz);
         self.cut_hi.push(r.cut_hi_hz);
@@ -1082,7 +1092,9 @@ impl MonteCarlo {
 
     fn record_failed_run(&mut self) {
         let n = self.n_grid;
-        self.samples_h2.extend(std::iter::repeat(f32::NAN).take(n));
+        // The block starts filled with NaN, which marks a run without readings.
+        let _ = self.sample_slot();
+        let _ = n;
         self.cut_lo.push(f64::NAN);
         self.cut_hi.push(f64::NAN);
         self.gain_db.push(f64::NAN);
@@ -1093,6 +1105,19 @@ impl MonteCarlo {
         }
         self.fallbacks += 1;
         self.done += 1;
+    }
+
+    /// Start of the current run's block in `samples_h2` and the run's lane in it (the block is
+    /// added, NaN-filled, when the run is its first).
+    fn sample_slot(&mut self) -> (usize, usize) {
+        let block = self.done / SAMPLE_BLOCK;
+        let j = self.done % SAMPLE_BLOCK;
+        let base = block * SAMPLE_BLOCK * self.n_grid;
+        if self.samples_h2.len() < base + SAMPLE_BLOCK * self.n_grid {
+            self.samples_h2
+                .resize(base + SAMPLE_BLOCK * self.n_grid, f32::NAN);
+        }
+        (base, j)
     }
 
     /// The results of the runs done so far.
@@ -1109,13 +1134,18 @@ impl MonteCarlo {
             })
             .collect();
         let mut column: Vec<f32> = Vec::with_capacity(n);
+        let n_blocks = n.div_ceil(SAMPLE_BLOCK);
         for f in 0..n_grid {
             column.clear();
-            column.extend(
-                (0..n)
-                    .map(|r| self.samples_h2[r * n_grid + f])
-                    .filter(|v| !v.is_nan()),
-            );
+            for b in 0..n_blocks {
+                let start = b * SAMPLE_BLOCK * n_grid + f * SAMPLE_BLOCK;
+                let count = SAMPLE_BLOCK.min(n - b * SAMPLE_BLOCK);
+                column.extend(
+                    self.samples_h2[start..start + count]
+                        .iter()
+                        .filter(|v| !v.is_nan()),
+                );
+            }
             let values = percentiles_by_selection(&mut column, pct, |a, b| a.total_cmp(b));
             for (c, v) in curves.iter_mut().zip(values) {
                 c.db.push(to_db(v));
