@@ -341,3 +341,26 @@ pub fn import_json(text: &str) -> JsValue {
         }),
     }
 }
+
+#[derive(Serialize)]
+struct Lap {
+    step: &'static str,
+    ms: f64,
+}
+
+/// The time each step of an evaluation takes in this browser, ms (for the page's benchmark). The
+/// design on screen is not changed.
+#[wasm_bindgen]
+pub fn profile_evaluate(query: &str) -> JsValue {
+    let performance = web_sys::window().and_then(|w| w.performance());
+    let clock = move || performance.as_ref().map_or(0.0, |p| p.now());
+    let report = crate::link::parse(query);
+    let mut watch = page::Stopwatch::new(&clock);
+    let _ = page::compose_timed(&report.state, &mut watch);
+    let laps: Vec<Lap> = watch
+        .laps
+        .iter()
+        .map(|&(step, ms)| Lap { step, ms })
+        .collect();
+    to_js(&laps)
+}

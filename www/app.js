@@ -18,6 +18,7 @@
     study: null,            // { cancelled, chunk }
     studyTimer: 0,
     studies: 0,             // finished tolerance studies (stamped on <body> for tests)
+    lastQuery: null,        // the link of the design on screen (or of the last refused edit)
     cursor: null,           // keyboard crosshair position (CSS px) on the main plot
   };
   var dark = window.matchMedia ? window.matchMedia('(prefers-color-scheme: dark)') : null;
@@ -212,16 +213,18 @@
   function plotOf(canvas) {
     return canvas.id === 'plot-main' ? state.mainPlot : canvas.getAttribute('data-plot');
   }
+  var printing = false;   // the report prints dark ink on white whatever the screen theme
+  function theme() { return printing ? false : isDark(); }
   function drawCanvas(canvas) {
     if (!canvas.clientWidth) return;
     fitCanvas(canvas);
-    engine.draw_plot(plotOf(canvas), canvas, isDark(), dpr(), canvas.hasAttribute('data-compact'));
+    engine.draw_plot(plotOf(canvas), canvas, theme(), dpr(), canvas.hasAttribute('data-compact'));
   }
   function drawAll() {
     $$('canvas[data-plot]').forEach(drawCanvas);
     $$('.card canvas').forEach(function (canvas) {
       fitCanvas(canvas);
-      engine.draw_schematic(Number(canvas.getAttribute('data-stage')), canvas, isDark(), dpr());
+      engine.draw_schematic(Number(canvas.getAttribute('data-stage')), canvas, theme(), dpr());
     });
   }
 
@@ -392,7 +395,9 @@
       renderWarnings(view.warnings);
       renderStages(view.stages);
       renderCompare(view);
+      var d0 = performance.now();
       drawAll();
+      document.body.setAttribute('data-draw-ms', (performance.now() - d0).toFixed(2));
       state.committed = true;
       setStale(false);
     } else {
@@ -405,19 +410,38 @@
   // ---- the live loop: every edit recomputes on the next frame ----
   function update(initial) {
     var query = readForm();
+    // A change event after the input events of the same edit asks again for the same link: the
+    // design on screen (and a study running on it) stays.
+    if (!initial && query === state.lastQuery) return null;
+    state.lastQuery = query;
     var url = window.location.pathname + '?' + query + window.location.hash;
     if (window.location.search !== '?' + query) window.history.replaceState(null, '', url);
+    var t0 = performance.now();
     var view = engine.evaluate(query, !!initial);
+    var t1 = performance.now();
     var committed = render(view, initial);
+    document.body.setAttribute('data-evaluate-ms', (t1 - t0).toFixed(2));
+    document.body.setAttribute('data-render-ms', (performance.now() - t1).toFixed(2));
     if (committed) scheduleStudy();
     return view;
   }
+  /* Timing of the last edit, stamped on <body> for the benchmark: from the input event to the
+   * end of the redraw (data-edit-ms) and the work inside the frame alone (data-update-ms). */
+  var timing = { inputAt: 0, updates: 0 };
   function schedule() {
+    if (!timing.inputAt) timing.inputAt = performance.now();
     if (state.frame) return;
     state.frame = window.requestAnimationFrame(function () {
       state.frame = 0;
+      var start = performance.now();
       syncVisibility();
       update(false);
+      var end = performance.now();
+      timing.updates += 1;
+      document.body.setAttribute('data-update-ms', (end - start).toFixed(2));
+      document.body.setAttribute('data-edit-ms', (end - timing.inputAt).toFixed(2));
+      document.body.setAttribute('data-updates', String(timing.updates));
+      timing.inputAt = 0;
     });
   }
 
@@ -445,6 +469,7 @@
     var query = readForm();
     window.history.replaceState(null, '', window.location.pathname + '?' + query + window.location.hash);
     var final = engine.evaluate(query, true);
+    state.lastQuery = query;
     // What the opened link carried but the design does not use: its unknown keys and notes, and
     // every refused value (the field went back to its default).
     var notes = view.ignored.slice();
@@ -522,7 +547,7 @@
     window.clearTimeout(state.studyTimer);
     cancelStudy(true);
     if (!$('#study-auto').checked) return;
-    state.studyTimer = window.setTimeout(runStudy, 350);
+    state.studyTimer = window.setTimeout(autoStudy, 350);
   }
   function cancelStudy(quiet) {
     if (state.study) {
@@ -533,6 +558,9 @@
     }
     $('#study-cancel').disabled = true;
     $('#study-run').disabled = false;
+  }
+  function autoStudy() {
+    if ($('#study-auto').checked) runStudy();
   }
   function runStudy() {
     cancelStudy(true);
@@ -609,8 +637,12 @@
   }
 
   function wire() {
-    form.addEventListener('input', schedule);
-    form.addEventListener('change', schedule);
+    // The study's fields belong to the form (form="req") but sit outside it, so their events
+    // bubble through the study panel instead.
+    [form, $('#study-form')].forEach(function (host) {
+      host.addEventListener('input', function (event) { if (event.target.name) schedule(); });
+      host.addEventListener('change', function (event) { if (event.target.name) schedule(); });
+    });
     form.addEventListener('submit', function (e) { e.preventDefault(); });
     $('#example').addEventListener('change', function (event) {
       var value = event.target.value;
@@ -651,10 +683,13 @@
     });
     $('#print').addEventListener('click', function () { window.print(); });
     window.addEventListener('beforeprint', preparePrint);
+    window.addEventListener('afterprint', function () { printing = false; if (state.committed) drawAll(); });
     $('#notice-close').addEventListener('click', function () { $('#notice').hidden = true; });
     $('#study-run').addEventListener('click', runStudy);
     $('#study-cancel').addEventListener('click', function () { cancelStudy(false); });
-    $('#study-auto').addEventListener('change', function () { if ($('#study-auto').checked) scheduleStudy(); });
+    $('#study-auto').addEventListener('change', function () {
+      if ($('#study-auto').checked) scheduleStudy(); else window.clearTimeout(state.studyTimer);
+    });
     if (dark && dark.addEventListener) dark.addEventListener('change', function () { if (state.committed) drawAll(); });
     if (window.ResizeObserver) {
       var pending = 0;
@@ -667,6 +702,8 @@
 
   /* The printed report shows every plot at a readable size, not only the one in the large slot. */
   function preparePrint() {
+    printing = true;
+    if (state.committed) drawAll();
     var host = $('.print-plots');
     if (!host) {
       host = el('div', 'print-plots');
@@ -692,6 +729,8 @@
     recordDefaults();
     wire();
     openQuery(window.location.search);
+    // Time from the start of navigation to the first drawn plot (for the benchmark).
+    document.body.setAttribute('data-first-draw-ms', performance.now().toFixed(1));
     document.body.setAttribute('data-ready', '1');
   }
   if (typeof rolloffReady === 'undefined') {

@@ -233,6 +233,14 @@ fn log_ticks(min: f64, max: f64, format: TickFormat, allow_125: bool) -> Vec<Tic
     let label_125 = allow_125 && decades < 2.2;
     let first = min.log10().floor() as i32;
     let last = max.log10().ceil() as i32;
+    // A narrow (thumbnail) axis over many decades labels every second or third decade only.
+    let every = if allow_125 || decades <= 4.5 {
+        1
+    } else if decades <= 7.5 {
+        2
+    } else {
+        3
+    };
     let mut ticks = Vec::new();
     for exponent in first..=last.min(first + 40) {
         let decade = 10f64.powi(exponent);
@@ -241,7 +249,8 @@ fn log_ticks(min: f64, max: f64, format: TickFormat, allow_125: bool) -> Vec<Tic
             if value < min * (1.0 - 1e-9) || value > max * (1.0 + 1e-9) {
                 continue;
             }
-            let labelled = digit == 1 || (label_125 && (digit == 2 || digit == 5));
+            let labelled = (digit == 1 && exponent.rem_euclid(every) == 0)
+                || (label_125 && (digit == 2 || digit == 5));
             let label = labelled.then(|| match format {
                 TickFormat::Engineering => engineering(value, 3),
                 TickFormat::Plain => significant(value, 3),

@@ -518,7 +518,7 @@ fn noise(data: &PlotData) -> Figure {
         layers.push(line(
             &c.label,
             Ink::Series((index + 1) as u8),
-            Weight::Dashed,
+            Weight::Thin,
             &c.x,
             &c.y,
         ));

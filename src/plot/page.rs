@@ -289,20 +289,57 @@ fn ideal_sweep(synthesis: &Synthesis, freqs: &[f64]) -> Sweep {
     }
 }
 
-/// The board's response by nodal analysis of the whole cascade, with each stage's output level.
+/// The board's response by nodal analysis of the whole cascade (each stage loads the one before
+/// it), with each stage's output level: the stages are merged into one netlist, compiled once
+/// and solved at every frequency ([`crate::analysis::circuit`], the tolerance study's solver).
+/// Falls back to [`mna::board_response`] if the fast path cannot compile the board.
 fn built_sweep(board: &Board, freqs: &[f64]) -> Result<(Sweep, Vec<Vec<f64>>), InputError> {
+    use crate::analysis::circuit::{merge_stages, transfer_at, Compiled, Solver};
     let mut gain_db = Vec::with_capacity(freqs.len());
     let mut phase_deg = Vec::with_capacity(freqs.len());
     let mut levels = vec![Vec::with_capacity(freqs.len()); board.stages.len()];
-    for &f in freqs {
-        let s = Complex64::new(0.0, 2.0 * PI * f);
-        let (h, outputs) = mna::board_response(board, s)
-            .map_err(|e| InputError::new("topo", format!("the board cannot be analysed: {e:?}")))?;
-        gain_db.push(20.0 * h.norm().log10());
-        phase_deg.push(h.arg().to_degrees());
-        for (k, v) in outputs.iter().enumerate() {
-            if let Some(level) = levels.get_mut(k) {
-                level.push(20.0 * v.norm().log10());
+    let nets: Vec<_> = board.stages.iter().map(|s| &s.netlist).collect();
+    let fast = merge_stages(&nets).ok().and_then(|merged| {
+        let compiled = Compiled::new(&merged.netlist, &board.op_amp).ok()?;
+        let assembled = compiled.assemble(&merged.netlist);
+        let columns: Option<Vec<usize>> = merged
+            .stage_outputs
+            .iter()
+            .map(|&node| compiled.node_col.get(node).copied().flatten())
+            .collect();
+        Some((compiled, assembled, columns?))
+    });
+    let analysis_error =
+        |e: String| InputError::new("topo", format!("the board cannot be analysed: {e}"));
+    match fast {
+        Some((compiled, assembled, columns)) => {
+            let mut solver = Solver::new(compiled.n);
+            for &f in freqs {
+                let s = Complex64::new(0.0, 2.0 * PI * f);
+                let h = transfer_at(&compiled, &assembled, &mut solver, s)
+                    .map_err(|e| analysis_error(e.to_string()))?;
+                gain_db.push(20.0 * h.norm().log10());
+                phase_deg.push(h.arg().to_degrees());
+                let solution = solver.solution();
+                for (level, &col) in levels.iter_mut().zip(&columns) {
+                    let v = solution
+                        .get(col)
+                        .copied()
+                        .unwrap_or(Complex64::new(f64::NAN, 0.0));
+                    level.push(20.0 * v.norm().log10());
+                }
+            }
+        }
+        None => {
+            for &f in freqs {
+                let s = Complex64::new(0.0, 2.0 * PI * f);
+                let (h, outputs) =
+                    mna::board_response(board, s).map_err(|e| analysis_error(e.message))?;
+                gain_db.push(20.0 * h.norm().log10());
+                phase_deg.push(h.arg().to_degrees());
+                for (level, v) in levels.iter_mut().zip(&outputs) {
+                    level.push(20.0 * v.norm().log10());
+                }
             }
         }
     }
@@ -319,10 +356,13 @@ fn built_sweep(board: &Board, freqs: &[f64]) -> Result<(Sweep, Vec<Vec<f64>>), I
     ))
 }
 
-fn input_impedance(board: &Board, freqs: &[f64]) -> Option<Curve> {
+/// |Zin| of the board on every `step`-th frequency (the impedance curve is smooth on a log axis,
+/// and each point is a whole-board solve).
+fn input_impedance(board: &Board, freqs: &[f64], step: usize) -> Option<Curve> {
     let merged = board.netlist();
+    let freqs: Vec<f64> = freqs.iter().copied().step_by(step.max(1)).collect();
     let mut y = Vec::with_capacity(freqs.len());
-    for &f in freqs {
+    for &f in &freqs {
         let s = Complex64::new(0.0, 2.0 * PI * f);
         y.push(
             mna::input_impedance(&merged.netlist, &board.op_amp, s)
@@ -332,7 +372,7 @@ fn input_impedance(board: &Board, freqs: &[f64]) -> Option<Curve> {
     }
     Some(Curve {
         label: "|Z in|".into(),
-        x: freqs.to_vec(),
+        x: freqs,
         y,
     })
 }
@@ -343,15 +383,64 @@ fn input_impedance(board: &Board, freqs: &[f64]) -> Option<Curve> {
 /// # Errors
 /// The first [`InputError`] of the composer or of the analysis of the board.
 pub fn compose(state: &LinkState) -> Result<PageModel, InputError> {
+    compose_timed(state, &mut Stopwatch::off())
+}
+
+/// Laps of a computation, read from a clock the caller supplies (the browser's
+/// `performance.now()` in the page's benchmark; nothing natively in tests).
+pub struct Stopwatch<'a> {
+    clock: Option<&'a dyn Fn() -> f64>,
+    last: f64,
+    /// Each step's name and duration, in the clock's unit.
+    pub laps: Vec<(&'static str, f64)>,
+}
+
+impl<'a> Stopwatch<'a> {
+    /// A stopwatch that records nothing.
+    pub fn off() -> Stopwatch<'static> {
+        Stopwatch {
+            clock: None,
+            last: 0.0,
+            laps: Vec::new(),
+        }
+    }
+
+    /// A stopwatch reading `clock`.
+    pub fn new(clock: &'a dyn Fn() -> f64) -> Stopwatch<'a> {
+        Stopwatch {
+            last: clock(),
+            clock: Some(clock),
+            laps: Vec::new(),
+        }
+    }
+
+    /// Ends the step `name`.
+    pub fn lap(&mut self, name: &'static str) {
+        if let Some(clock) = self.clock {
+            let now = clock();
+            self.laps.push((name, now - self.last));
+            self.last = now;
+        }
+    }
+}
+
+/// [`compose`] with the time of each step recorded on `watch`.
+///
+/// # Errors
+/// As [`compose`].
+pub fn compose_timed(state: &LinkState, watch: &mut Stopwatch) -> Result<PageModel, InputError> {
     let design = pipeline::compose(state)?;
+    watch.lap("compose (synthesis, board, search)");
     let (lo, hi) = design.span_hz;
     // The same grid as the tolerance study's (pipeline::study_settings), so the envelope lines up.
     let freqs = crate::response::log_frequencies(lo, hi, N_POINTS)?;
     let synthesis = &design.synthesis;
     let board = &design.board;
     let ideal = ideal_sweep(synthesis, &freqs);
+    watch.lap("ideal sweep");
     let (built, level_curves) = built_sweep(board, &freqs)?;
-    let analyses = Analyses::of(board);
+    watch.lap("built sweep");
+    let analyses = Analyses::of(&design, &freqs, watch);
     let to_hz = |p: &Complex64| p / (2.0 * PI);
     let data = PlotData {
         class: Some(synthesis.class),
@@ -370,24 +459,33 @@ pub fn compose(state: &LinkState) -> Result<PageModel, InputError> {
         },
         step_ideal: analyses.step_ideal.clone(),
         step_built: analyses.step_built.clone(),
-        impedance: input_impedance(board, &freqs),
-        noise_total: None,
-        noise_parts: Vec::new(),
-        levels: level_curves
-            .into_iter()
-            .enumerate()
-            .map(|(k, y)| Curve {
-                label: format!("stage {}", k + 1),
-                x: freqs.clone(),
-                y,
-            })
-            .collect(),
+        impedance: {
+            let z = input_impedance(board, &freqs, 4);
+            watch.lap("input impedance");
+            z
+        },
+        noise_total: analyses.noise_total.clone(),
+        noise_parts: analyses.noise_parts.clone(),
+        levels: if analyses.levels.is_empty() {
+            level_curves
+                .into_iter()
+                .enumerate()
+                .map(|(k, y)| Curve {
+                    label: format!("stage {}", k + 1),
+                    x: freqs.clone(),
+                    y,
+                })
+                .collect()
+        } else {
+            analyses.levels.clone()
+        },
         level_limit_db: Some(20.0 * (state.signal.swing_pk / state.signal.vin_pk).log10()),
         hist_cutoff: None,
         hist_gain: None,
     };
     let mut view = text_view(&design, &data);
     analyses.fill(&mut view);
+    watch.lap("text view");
     Ok(PageModel {
         design,
         data,
@@ -400,6 +498,12 @@ pub fn compose(state: &LinkState) -> Result<PageModel, InputError> {
 /// sensitivities. Each is optional: one that fails leaves its plot or table with a note and its
 /// reason among the warnings, and the rest of the sheet still shows.
 struct Analyses {
+    noise_total: Option<Curve>,
+    noise_parts: Vec<Curve>,
+    noise_line: String,
+    levels: Vec<Curve>,
+    headroom: Vec<String>,
+    needs: Vec<String>,
     built_poles_hz: Vec<Complex64>,
     zeros_hz: Vec<Complex64>,
     step_ideal: Option<Curve>,
@@ -410,9 +514,130 @@ struct Analyses {
 }
 
 impl Analyses {
-    fn of(board: &Board) -> Analyses {
-        use crate::analysis::{poles, sensitivity, timeresp};
+    fn of(design: &Design, freqs: &[f64], watch: &mut Stopwatch) -> Analyses {
+        use crate::analysis::{levels, noise, opamp_need, poles, sensitivity, timeresp};
+        let board = &design.board;
+        let state = &design.state;
         let mut problems = Vec::new();
+        let gain = 10f64.powf(state.requirement.gain_db / 20.0);
+
+        // Noise: density at the output, the largest contributors, rms over the band.
+        let band_hz = state
+            .signal
+            .noise_band_hz
+            .unwrap_or((freqs[0], freqs[freqs.len() - 1]));
+        let signal_v_rms = Some(state.signal.vin_pk * gain / 2f64.sqrt());
+        let (mut noise_total, mut noise_parts, mut noise_line) = (None, Vec::new(), String::new());
+        // Every second plot frequency: the densities are smooth on a log axis, and the noise
+        // solve (one adjoint solve per frequency and source) is the largest analysis of an edit.
+        let settings = noise::NoiseSettings {
+            freqs_hz: freqs.iter().copied().step_by(2).collect(),
+            band_hz,
+            signal_v_rms,
+        };
+        match noise::board_noise(board, &settings) {
+            Ok(report) => {
+                noise_total = Some(Curve {
+                    label: "total".into(),
+                    x: report.freqs_hz.clone(),
+                    y: report.output_density_v_per_rthz.clone(),
+                });
+                noise_parts = report
+                    .sources
+                    .iter()
+                    .take(4)
+                    .map(|source| Curve {
+                        label: format!(
+                            "{}{} {:.0} %",
+                            source.reference,
+                            match source.kind {
+                                noise::NoiseKind::Resistor => "",
+                                noise::NoiseKind::OpAmpVoltage => " eₙ",
+                                noise::NoiseKind::OpAmpCurrentPlus => " iₙ+",
+                                noise::NoiseKind::OpAmpCurrentMinus => " iₙ−",
+                            },
+                            source.share * 100.0
+                        ),
+                        x: report.freqs_hz.clone(),
+                        y: source.density_v_per_rthz.clone(),
+                    })
+                    .collect();
+                noise_line = format!(
+                    "output noise {} rms over {} … {}",
+                    engineering_unit(report.rms_v, 3, "V"),
+                    engineering_unit(report.band_hz.0, 3, "Hz"),
+                    engineering_unit(report.band_hz.1, 3, "Hz")
+                );
+                if let Some(snr) = report.snr_db {
+                    noise_line.push_str(&format!(" · SNR {snr:.1} dB"));
+                }
+            }
+            Err(e) => problems.push(format!("noise: {e}")),
+        }
+        watch.lap("noise");
+
+        // Stage levels and headroom against the op amp's swing.
+        let (mut level_curves, mut headroom) = (Vec::new(), Vec::new());
+        match levels::board_levels(board, freqs, state.signal.vin_pk, state.signal.swing_pk) {
+            Ok(report) => {
+                for stage in &report.stages {
+                    level_curves.push(Curve {
+                        label: format!("stage {}", stage.stage),
+                        x: report.freqs_hz.clone(),
+                        y: stage.gain_db.clone(),
+                    });
+                    headroom.push(format!(
+                        "peak {} out at {} ({} headroom)",
+                        engineering_unit(stage.peak_out_v, 3, "V"),
+                        engineering_unit(stage.peak_hz, 3, "Hz"),
+                        format!("{:+.1} dB", stage.headroom_db).replace('-', "−")
+                    ));
+                }
+                problems.extend(report.warnings.iter().cloned());
+            }
+            Err(e) => problems.push(format!("stage levels: {e}")),
+        }
+        watch.lap("levels");
+
+        // What each stage asks of its op amp.
+        let slew_freq_hz = match (design.synthesis.class, design.synthesis.bw_hz) {
+            (ResponseClass::BandPass, Some(bw)) => {
+                let half = bw / 2.0;
+                half + (half * half + design.synthesis.fc_hz.powi(2)).sqrt()
+            }
+            (ResponseClass::HighPass, _) => freqs[freqs.len() - 1],
+            _ => design.synthesis.fc_hz,
+        };
+        let vout_pk = state.signal.vin_pk * gain;
+        let mut needs = Vec::new();
+        match opamp_need::board_needs(board, state.signal.drift_pct, slew_freq_hz, vout_pk) {
+            Ok(report) => {
+                for need in &report.stages {
+                    let gbw = match need.min_gbw_hz {
+                        Some(g) => format!(
+                            "GBW ≥ {} for {} % drift",
+                            engineering_unit(g, 3, "Hz"),
+                            state.signal.drift_pct
+                        ),
+                        None => "no GBW keeps the drift in bounds".to_string(),
+                    };
+                    let verdict = if need.board_opamp_ok {
+                        "the chosen op amp does"
+                    } else {
+                        "the chosen op amp falls short"
+                    };
+                    needs.push(format!(
+                        "Needs {gbw} and slew ≥ {} ({} peak at {}); {verdict}.",
+                        engineering_unit(need.slew_v_per_s, 3, "V/s"),
+                        engineering_unit(need.out_pk_v, 3, "V"),
+                        engineering_unit(report.slew_freq_hz, 3, "Hz")
+                    ));
+                }
+            }
+            Err(e) => problems.push(format!("op-amp requirements: {e}")),
+        }
+        watch.lap("op-amp needs");
+
         let mut built_poles_hz = Vec::new();
         let mut zeros_hz = Vec::new();
         match poles::board_poles(board) {
@@ -425,6 +650,7 @@ impl Analyses {
             }
             Err(e) => problems.push(format!("poles of the built board: {e}")),
         }
+        watch.lap("poles");
         let settings = timeresp::TimeSettings {
             n_points: 600,
             t_end_s: None,
@@ -455,6 +681,7 @@ impl Analyses {
             }
             Err(e) => problems.push(format!("step response: {e}")),
         }
+        watch.lap("step response");
         let sensitivities = match sensitivity::board_sensitivities(board) {
             Ok(stages) => stages
                 .into_iter()
@@ -475,7 +702,14 @@ impl Analyses {
                 Vec::new()
             }
         };
+        watch.lap("sensitivities");
         Analyses {
+            noise_total,
+            noise_parts,
+            noise_line,
+            levels: level_curves,
+            headroom,
+            needs,
             built_poles_hz,
             zeros_hz,
             step_ideal,
@@ -490,6 +724,16 @@ impl Analyses {
     fn fill(&self, view: &mut View) {
         for (stage, rows) in view.stages.iter_mut().zip(&self.sensitivities) {
             stage.sensitivities = rows.clone();
+        }
+        for (index, stage) in view.stages.iter_mut().enumerate() {
+            let mut needs = Vec::new();
+            if let Some(need) = self.needs.get(index) {
+                needs.push(need.clone());
+            }
+            if let Some(room) = self.headroom.get(index) {
+                needs.push(format!("Output {room}."));
+            }
+            stage.needs = needs.join(" ");
         }
         if let Some(f) = &self.step_figures {
             let mut parts = Vec::new();
@@ -508,6 +752,12 @@ impl Analyses {
                 }
                 view.figures.push_str(&parts.join(" · "));
             }
+        }
+        if !self.noise_line.is_empty() {
+            if !view.figures.is_empty() {
+                view.figures.push_str(" · ");
+            }
+            view.figures.push_str(&self.noise_line);
         }
         view.warnings.extend(self.problems.iter().cloned());
     }
@@ -646,16 +896,16 @@ fn text_view(design: &Design, data: &PlotData) -> View {
                     .join(",")
             );
             let order_words = if section.q.is_some() {
-                "second order"
+                "2nd order"
             } else {
-                "first order"
+                "1st order"
             };
             StageView {
                 key,
                 index,
                 number: index + 1,
-                title: format!("Stage {} · {order_words}", index + 1),
-                circuit: stage.circuit.describe().to_string(),
+                title: format!("Stage {}", index + 1),
+                circuit: format!("{} · {order_words}", stage.circuit.describe()),
                 rows,
                 parts,
                 sensitivities: Vec::new(),
@@ -1155,6 +1405,46 @@ mod tests {
             reopened.contains("R2%3A4700"),
             "the override is kept: {reopened}"
         );
+    }
+
+    #[test]
+    fn the_fast_board_sweep_equals_the_plain_nodal_solution() {
+        // Naive oracle: mna::board_response assembles and solves the merged board from scratch at
+        // each frequency. The compiled path must give the same gain to 1e-9 dB and phase to 1e-9°
+        // (both are direct solves of the same equations; only rounding differs).
+        let links = [
+            "v=1&title=Geophone&fsample=2k&adcbits=24&fsignal=200&topo=mfb",
+            "v=1&resp=bp&fpass=2k,20k&apass=1&fstop=400,100k&astop=30&topo=mfb",
+            "v=1&resp=hp&family=bessel&order=5&fc=300&gain=12",
+        ];
+        for link in links {
+            let model = evaluate(link)
+                .model
+                .unwrap_or_else(|| panic!("{link} designs"));
+            let board = &model.design.board;
+            let freqs: Vec<f64> = model
+                .data
+                .ideal
+                .freq_hz
+                .iter()
+                .copied()
+                .step_by(20)
+                .collect();
+            let (fast, levels) = built_sweep(board, &freqs).unwrap_or_else(|e| panic!("{e}"));
+            for (i, &f) in freqs.iter().enumerate() {
+                let s = Complex64::new(0.0, 2.0 * PI * f);
+                let (h, outputs) =
+                    mna::board_response(board, s).unwrap_or_else(|e| panic!("{}", e.message));
+                let gain = 20.0 * h.norm().log10();
+                assert!((fast.gain_db[i] - gain).abs() < 1e-9, "{link} at {f} Hz");
+                // Phases agree modulo whole turns.
+                let d = (fast.phase_deg[i] - h.arg().to_degrees()).rem_euclid(360.0);
+                assert!(d < 1e-9 || 360.0 - d < 1e-9, "{link} phase at {f} Hz: {d}");
+                for (k, v) in outputs.iter().enumerate() {
+                    assert!((levels[k][i] - 20.0 * v.norm().log10()).abs() < 1e-9);
+                }
+            }
+        }
     }
 
     #[test]

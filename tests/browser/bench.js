@@ -1,0 +1,114 @@
+// Browser benchmark of the page (not a test): headless Debian Chromium opens www/index.html from
+// file:// and reports
+//   - open → first plot drawn (navigation start to the end of the first full redraw),
+//   - edit → every plot redrawn, median over typed cutoffs, for an 8th-order design, both from the
+//     input event (includes waiting for the next animation frame) and inside the frame alone,
+//   - a 10,000-run tolerance study: its duration and the longest gap between animation frames
+//     while it runs (the page stays responsive when that gap stays near one frame),
+//   - the size of the wasm core (raw and gzipped) and of the page's script.
+// Run: ./build.sh bench   (or: ./build.sh && node tests/browser/bench.js)
+'use strict';
+
+const fs = require('node:fs');
+const path = require('node:path');
+const zlib = require('node:zlib');
+const h = require('./helpers');
+
+// The geophone demo: 8th-order Butterworth, four multiple-feedback stages, limits from the converter.
+const LINK = 'v=1&title=Geophone+front+end&fsample=2k&adcbits=24&fsignal=200&family=butterworth&topo=mfb';
+const N_OPEN = 5;
+const N_EDITS = 40;
+
+function median(values) {
+  const sorted = values.slice().sort((a, b) => a - b);
+  const mid = Math.floor(sorted.length / 2);
+  return sorted.length % 2 ? sorted[mid] : (sorted[mid - 1] + sorted[mid]) / 2;
+}
+
+function percentile(values, p) {
+  const sorted = values.slice().sort((a, b) => a - b);
+  return sorted[Math.min(sorted.length - 1, Math.floor((p / 100) * sorted.length))];
+}
+
+async function main() {
+  const browser = await h.launch();
+  const results = {};
+
+  const opens = [];
+  for (let i = 0; i < N_OPEN; i++) {
+    const { page, context } = await h.openPage(browser, LINK + '&runs=1');
+    opens.push(Number(await page.getAttribute('body', 'data-first-draw-ms')));
+    await context.close();
+  }
+  results.open_to_first_plot_ms = { median: median(opens), runs: opens };
+
+  const { page, context } = await h.openPage(browser, LINK);
+  await page.uncheck('#study-auto');
+  const edit = [];
+  const frame = [];
+  const parts = { evaluate: [], render: [], draw: [] };
+  for (let i = 0; i < N_EDITS; i++) {
+    const before = Number(await page.getAttribute('body', 'data-updates')) || 0;
+    // Cutoffs between 180 and 260 Hz: with a fixed order the whole board is redesigned each time.
+    await page.fill('input[name="fsignal"]', String(180 + 2 * i));
+    await page.waitForFunction((n) => Number(document.body.getAttribute('data-updates')) > n, before);
+    edit.push(Number(await page.getAttribute('body', 'data-edit-ms')));
+    frame.push(Number(await page.getAttribute('body', 'data-update-ms')));
+    for (const key of Object.keys(parts)) parts[key].push(Number(await page.getAttribute('body', `data-${key}-ms`)));
+  }
+  results.frame_parts_median_ms = {};
+  for (const key of Object.keys(parts)) results.frame_parts_median_ms[key] = median(parts[key]);
+  results.edit_to_redraw_ms = { median: median(edit), p90: percentile(edit, 90) };
+  results.work_in_frame_ms = { median: median(frame), p90: percentile(frame, 90) };
+  results.canvases_redrawn_per_edit = await page.locator('canvas').count();
+  // Where an evaluation's time goes, median of 15 runs after the edits warmed the engine up.
+  results.evaluate_steps_ms = await page.evaluate((link) => {
+    const runs = [];
+    for (let i = 0; i < 15; i++) runs.push(wasm_bindgen.profile_evaluate(link));
+    const out = {};
+    runs[0].forEach((lap, k) => {
+      const values = runs.map((r) => r[k].ms).sort((a, b) => a - b);
+      out[lap.step] = Number(values[Math.floor(values.length / 2)].toFixed(2));
+    });
+    return out;
+  }, LINK);
+
+  await page.fill('input[name="runs"]', '10000');
+  await page.waitForFunction(() => /runs=10000/.test(window.location.search));
+  await page.evaluate(() => {
+    window.__gaps = [];
+    let last = performance.now();
+    const tick = (now) => {
+      window.__gaps.push(now - last);
+      last = now;
+      if (!window.__stopGaps) requestAnimationFrame(tick);
+    };
+    requestAnimationFrame(tick);
+  });
+  const done = await page.getAttribute('body', 'data-study-done');
+  await page.click('#study-run');
+  await h.waitForStudy(page, done);
+  await page.evaluate(() => { window.__stopGaps = true; });
+  const gaps = await page.evaluate(() => window.__gaps);
+  results.study_10000_runs_ms = Number(await page.getAttribute('body', 'data-study-ms'));
+  results.study_frame_gap_ms = { max: Math.max(...gaps), p99: percentile(gaps, 99), frames: gaps.length };
+  results.study_status = await page.textContent('#study-status');
+  await context.close();
+  await browser.close();
+
+  const pkg = path.join(h.ROOT, 'target', 'wasm-pkg');
+  const wasmFile = ['rolloff_opt.wasm', 'rolloff_bg.wasm'].map((f) => path.join(pkg, f)).find((f) => fs.existsSync(f));
+  if (wasmFile) {
+    const bytes = fs.readFileSync(wasmFile);
+    results.wasm_bytes = bytes.length;
+    results.wasm_gzip_bytes = zlib.gzipSync(bytes, { level: 9 }).length;
+    results.wasm_file = path.relative(h.ROOT, wasmFile);
+  }
+  results.page_script_bytes = fs.statSync(path.join(h.WWW, 'rolloff-wasm.js')).size;
+  console.log(JSON.stringify(results, null, 2));
+}
+
+main().catch((error) => {
+  console.error(error);
+  process.exit(1);
+});
