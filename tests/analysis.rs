@@ -437,6 +437,59 @@ fn rc_cutoff_spread_matches_propagation_of_errors() {
     assert_eq!(cut.hz.n_missing, 0);
 }
 
+/// Analytic: a Butterworth response is 3.01 dB down (half power) exactly at its cutoff; a
+/// Butterworth band-pass from the low-pass to band-pass transform is half power at
+/// f = ∓B/2 + √(B²/4 + f0²). Ideal op amp, exact parts: the nominal cutoffs of the tolerance study
+/// within 1e-9 relative.
+#[test]
+fn nominal_cutoffs_of_high_and_band_pass_are_analytic() {
+    let hp = board_of(
+        &requirement(ResponseClass::HighPass, Family::Butterworth, 4, 1000.0),
+        Topology::SallenKey,
+        true,
+        OpAmp::ideal(),
+    );
+    let mut settings = mc_settings(3, 1, 1.0, 5.0, ResponseClass::HighPass);
+    settings.passband_ref_hz = 100e3;
+    let s = run_all(MonteCarlo::new(&hp, None, settings).unwrap(), 3);
+    assert_eq!(s.cutoffs.len(), 1);
+    assert_eq!(s.cutoffs[0].side, CutoffSide::Lower);
+    assert!(
+        (s.cutoffs[0].hz.nominal / 1000.0 - 1.0).abs() < 1e-9,
+        "{}",
+        s.cutoffs[0].hz.nominal
+    );
+
+    let (f0, bw) = (2000.0, 1000.0);
+    let bp = board_of(
+        &requirement(ResponseClass::BandPass, Family::Butterworth, 4, f0),
+        Topology::MultipleFeedback,
+        true,
+        OpAmp::ideal(),
+    );
+    let mut settings = mc_settings(3, 1, 1.0, 5.0, ResponseClass::BandPass);
+    settings.passband_ref_hz = f0;
+    let s = run_all(MonteCarlo::new(&bp, None, settings).unwrap(), 3);
+    let lo = -bw / 2.0 + (bw * bw / 4.0 + f0 * f0).sqrt();
+    let hi = bw / 2.0 + (bw * bw / 4.0 + f0 * f0).sqrt();
+    assert_eq!(s.cutoffs.len(), 2);
+    assert!(
+        (s.cutoffs[0].hz.nominal / lo - 1.0).abs() < 1e-9,
+        "lower {} vs {lo}",
+        s.cutoffs[0].hz.nominal
+    );
+    assert!(
+        (s.cutoffs[1].hz.nominal / hi - 1.0).abs() < 1e-9,
+        "upper {} vs {hi}",
+        s.cutoffs[1].hz.nominal
+    );
+    assert!(
+        s.passband_gain_db.nominal.abs() < 1e-9,
+        "centre gain {} dB",
+        s.passband_gain_db.nominal
+    );
+}
+
 /// Identity: percentiles by selection equal the linear-interpolation percentiles of the sorted
 /// data (the definition numpy calls "linear"), exactly, for random data with ties.
 #[test]
@@ -454,6 +507,29 @@ fn percentiles_by_selection_equal_sorted_percentiles() {
             assert_eq!(g, percentile_sorted(&sorted, *p), "n {n}, p {p}");
         }
     }
+}
+
+/// Analytic yield: an RC low-pass whose capacitor alone varies (Gaussian, relative σ = 2 %) has
+/// fc = fc0/(1 + σz); a mask that asks for at most 3.01 dB at fc0/(1 + σ) passes exactly when
+/// z ≤ 1, so the yield is Φ(1) = 0.841345 (standard normal table, from memory). Sampling error
+/// over 20,000 runs is √(p(1−p)/n) = 0.0026; tolerance 0.01.
+#[test]
+fn rc_yield_matches_the_normal_distribution() {
+    let (r, c, sigma) = (10e3, 10e-9, 0.02);
+    let fc0 = 1.0 / (2.0 * PI * r * c);
+    let mask = Mask {
+        pass: Edge::Single(fc0 / (1.0 + sigma)),
+        apass_db: 10.0 * 2f64.log10(),
+        stop: Edge::Single(1e6),
+        astop_db: 20.0,
+    };
+    let settings = mc_settings(20_000, 9, 0.0, 3.0 * 100.0 * sigma, ResponseClass::LowPass);
+    let mc = MonteCarlo::from_stages(&[rc_lowpass(r, c)], &OpAmp::ideal(), Some(&mask), settings)
+        .unwrap();
+    let s = run_all(mc, 4096);
+    let y = s.yield_fraction.unwrap();
+    assert!((y - 0.841345).abs() < 0.01, "yield {y}");
+    assert_eq!(s.n_pass, Some((y * 20_000.0).round() as usize));
 }
 
 // ---------------------------------------------------------------------------------------------

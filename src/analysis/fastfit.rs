@@ -457,6 +457,9 @@ impl FastFit {
     }
 
     /// Samples D and N at every point for a stage of exactly `N` unknowns.
+    // The elimination indexes several arrays by the same row and column numbers; index loops
+    // read more plainly here than iterator chains.
+    #[allow(clippy::needless_range_loop)]
     fn sample_fixed<const N: usize>(&mut self, a: &Assembled) -> bool {
         let mut g = [[0.0f64; N]; N];
         let mut c = [[0.0f64; N]; N];

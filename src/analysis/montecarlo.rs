@@ -45,8 +45,10 @@ use std::f64::consts::PI;
 pub const MAX_RUNS: usize = 100_000;
 /// Largest part tolerance accepted, %.
 pub const MAX_TOLERANCE_PCT: f64 = 50.0;
-/// Runs per block of the single-precision sample table.
-const SAMPLE_BLOCK: usize = 64;
+/// Runs per block of the single-precision sample table: sixteen f32 are one 64-byte cache line,
+/// so a run writes one line per frequency into an L1-resident block, and a frequency is read as
+/// one line per block.
+const SAMPLE_BLOCK: usize = 16;
 /// Frequencies evaluated together in the branch-free kernel.
 const LANES: usize = 32;
 
@@ -455,7 +457,7 @@ fn mask_edges(mask: &Mask) -> Vec<f64> {
 pub(crate) fn bairstow(d: &[f64], u: f64, v: f64) -> Option<(f64, f64)> {
     const MAXN: usize = 32;
     let n = d.iter().rposition(|&c| c != 0.0)?;
-    if n < 2 || n >= MAXN {
+    if !(2..MAXN).contains(&n) {
         return None;
     }
     let lead = d[n];
