@@ -139,8 +139,10 @@
   function syncVisibility() {
     var values = { resp: radioValue('resp'), ordermode: radioValue('ordermode'), family: form.elements.family.value };
     $$('[data-show]', form).forEach(function (el) {
-      var rule = el.getAttribute('data-show').split('=');
-      el.hidden = values[rule[0]] !== rule[1];
+      el.hidden = !el.getAttribute('data-show').split('&').every(function (rule) {
+        var pair = rule.split('=');
+        return values[pair[0]] === pair[1];
+      });
     });
     $$('[data-text-resp]', form).forEach(function (el) {
       var parts = el.getAttribute('data-text-resp').split(':');

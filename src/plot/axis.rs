@@ -156,7 +156,7 @@ impl Axis {
     pub fn readout(&self, value: f64) -> String {
         let number = match self.format {
             TickFormat::Engineering => engineering(value, 4),
-            TickFormat::Plain => significant(value, 4),
+            TickFormat::Plain => fixed(value),
         };
         match self.format {
             TickFormat::Engineering => engineering_unit(value, 4, &self.unit),
@@ -329,6 +329,31 @@ pub fn engineering_unit(value: f64, digits: usize, unit: &str) -> String {
         }
         _ => format!("{text} {unit}"),
     }
+}
+
+/// A plain readout value (dB, degrees): three decimals below 10, two below 100, one above, so that
+/// a passband a thousandth of a dB off reads as 0.001 rather than in exponent form.
+fn fixed(value: f64) -> String {
+    if !value.is_finite() {
+        return engineering(value, 4);
+    }
+    let decimals = match value.abs() {
+        m if m < 10.0 => 3,
+        m if m < 100.0 => 2,
+        _ => 1,
+    };
+    let text = format!("{value:.decimals$}");
+    // −0.000 reads as 0.000.
+    let text = if text
+        .trim_start_matches('-')
+        .chars()
+        .all(|c| c == '0' || c == '.')
+    {
+        text.trim_start_matches('-').to_string()
+    } else {
+        text
+    };
+    text.replace('-', "−")
 }
 
 /// Formats `value` with `digits` significant digits in plain decimal notation (no exponent for

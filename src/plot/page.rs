@@ -1161,6 +1161,15 @@ impl PageModel {
     }
 }
 
+/// The shortest engineering notation of `value` that reads back as exactly `value` (`12k`,
+/// `4.99k`, `2.2n`), so a typed-over part survives the round trip through a link to the bit.
+fn exact_si(value: f64) -> String {
+    (1..=17)
+        .map(|digits| format_si(value, digits))
+        .find(|text| crate::units::parse_si(text) == Ok(value))
+        .unwrap_or_else(|| format!("{value:e}"))
+}
+
 /// The link a design JSON file describes.
 ///
 /// A `link` field (a query string or a whole URL) is used as it is. Otherwise the link is rebuilt
@@ -1328,7 +1337,7 @@ pub fn link_of_json(text: &str) -> Result<String, InputError> {
         }
         if let Some((_, value)) = saved.iter().find(|(r, _)| *r == part.reference) {
             if (value - part.value).abs() > 1e-12 * part.value.abs() {
-                typed.push(format!("{}:{value}", part.reference));
+                typed.push(format!("{}:{}", part.reference, exact_si(*value)));
             }
         }
     }
@@ -1402,7 +1411,7 @@ mod tests {
         };
         assert_eq!(values(&again), values(&model), "rebuilt link: {reopened}");
         assert!(
-            reopened.contains("R2%3A4700"),
+            reopened.contains("R2%3A4.7k"),
             "the override is kept: {reopened}"
         );
     }

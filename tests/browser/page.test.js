@@ -262,6 +262,46 @@ test('a link with markup or script in every key executes nothing and inserts no 
   await refused.close();
 });
 
+test('a saved design JSON opens again as the same board, and the shown plot saves as PNG', async () => {
+  const { page, close } = await open(STRAIN + '&set=R1:12k&topo=mfb');
+  const saved = await download(page, 'json');
+  const stages = await readStages(page);
+  const file = path.join(h.OUT, 'saved-design.json');
+  fs.writeFileSync(file, saved);
+  await page.goto(h.PAGE_URL + '?v=1');
+  await page.waitForSelector('body[data-ready="1"]');
+  assert.notDeepEqual(await readStages(page), stages, 'a different design before the import');
+  await page.setInputFiles('#import-json', file);
+  await page.waitForFunction(() => /set=/.test(window.location.search));
+  assert.deepEqual(await readStages(page), stages, 'the imported board has the saved parts');
+  await page.click('#save-menu summary');
+  const [png] = await Promise.all([page.waitForEvent('download'), page.click('#save-png')]);
+  const target = path.join(h.OUT, 'plot.png');
+  await png.saveAs(target);
+  const bytes = fs.readFileSync(target);
+  // PNG signature (ISO/IEC 15948): 89 50 4E 47 0D 0A 1A 0A.
+  assert.deepEqual([...bytes.subarray(0, 8)], [0x89, 0x50, 0x4e, 0x47, 0x0d, 0x0a, 0x1a, 0x0a]);
+  await close();
+});
+
+test('the plots are reachable by keyboard and read out under the crosshair', async () => {
+  const { page, close } = await open(STRAIN);
+  await page.focus('#plot-main');
+  await page.keyboard.press('ArrowRight');
+  const readout = page.locator('figure.main-plot .readout');
+  await readout.waitFor({ state: 'visible' });
+  const text = await readout.textContent();
+  assert.match(text, /Hz/, 'the readout names the frequency');
+  assert.match(text, /built: .*dB/, 'and the built gain there');
+  // The thumbnails are buttons: Enter on one brings its plot into the large slot.
+  await page.focus('.thumb[data-plot="step"]');
+  await page.keyboard.press('Enter');
+  assert.equal(await page.getAttribute('.thumb[data-plot="step"]', 'aria-pressed'), 'true');
+  const outline = await page.evaluate(() => getComputedStyle(document.activeElement).outlineStyle);
+  assert.notEqual(outline, 'none', 'focus is visible');
+  await close();
+});
+
 test('screenshots at 1366×768 in light and dark are written for review', async () => {
   for (const scheme of ['light', 'dark']) {
     const { page, close } = await open(DEMO, { colorScheme: scheme });
