@@ -300,6 +300,55 @@ fn real_point_fit_matches_the_circle_fit() {
     }
 }
 
+/// Oracle: the circle fit of the perturbed stage (checked above against the nodal analysis). The
+/// tolerance study's multilinear expansion gives the same |H|² for parts moved by up to ±30 %,
+/// within 1e-9 relative.
+#[test]
+fn multilinear_expansion_matches_a_fresh_fit() {
+    use rolloff::analysis::multilinear::Multilinear;
+    let mut rng = Xoshiro256PlusPlus::seed_from_u64(21);
+    let mut n_checked = 0;
+    for board in design_zoo() {
+        for stage in &board.stages {
+            let compiled = Compiled::new(&stage.netlist, &board.op_amp).unwrap();
+            let rho = stage_transfer(&stage.netlist, &board.op_amp)
+                .unwrap()
+                .scale_rad_s;
+            let w_g = 2.0 * PI * 1500.0;
+            let mut ml =
+                Multilinear::new(&compiled, &stage.netlist, rho, w_g).expect("small stage");
+            for _ in 0..5 {
+                let mut net = stage.netlist.clone();
+                for p in net.parts.iter_mut().filter(|p| p.kind != PartKind::OpAmp) {
+                    p.value *= 0.7 + 0.6 * unit(&mut rng);
+                }
+                let values: Vec<f64> = net.parts.iter().map(|p| p.value).collect();
+                let k = compiled.degree_bound + 1;
+                let (mut nu, mut du) = (vec![0.0; k], vec![0.0; k]);
+                ml.evaluate(&values, &mut nu, &mut du);
+                let rat = stage_transfer(&net, &board.op_amp).unwrap();
+                for f in log_grid(stage.section.f0_hz / 30.0, stage.section.f0_hz * 300.0, 25) {
+                    let u = num_complex::Complex64::new(0.0, 2.0 * PI * f / w_g);
+                    let horner = |c: &[f64]| {
+                        c.iter()
+                            .rev()
+                            .fold(Complex64::new(0.0, 0.0), |a, &v| a * u + v)
+                    };
+                    let got = (horner(&nu) / horner(&du)).norm_sqr();
+                    let want = rat.eval_hz(f).norm_sqr();
+                    assert!(
+                        (got / want - 1.0).abs() < 1e-9,
+                        "stage {:?} at {f} Hz: {got} vs {want}",
+                        stage.section
+                    );
+                    n_checked += 1;
+                }
+            }
+        }
+    }
+    assert!(n_checked > 500);
+}
+
 // ---------------------------------------------------------------------------------------------
 // Tolerance study.
 

@@ -5,6 +5,7 @@ pub mod circuit;
 pub mod fastfit;
 pub mod levels;
 pub mod montecarlo;
+pub mod multilinear;
 pub mod noise;
 pub mod opamp_need;
 pub mod poles;

@@ -10,7 +10,9 @@
 //! clamped to 0.001 so that no part value turns non-positive.
 //!
 //! Each stage's transfer function `N(s)/D(s)` (op amp included, see [`super::poly`]) is formed once
-//! per run; `|N(jω)|²` and `|D(jω)|²` are then polynomials in `x = (ω/ω_g)²` and the response of the
+//! per run — from its precomputed multilinear expansion in the part admittances
+//! ([`super::multilinear`], exact), or for large stages by nodal solves at a few real frequencies
+//! ([`super::fastfit`]); `|N(jω)|²` and `|D(jω)|²` are then polynomials in `x = (ω/ω_g)²` and the response of the
 //! cascade at each frequency is a few multiply-adds per stage and one division, evaluated eight
 //! frequencies at a time without branches. The yield compares `|H|²` with the mask bounds in
 //! linear terms (no logarithms).
@@ -28,6 +30,7 @@
 
 use super::circuit::{AnalysisError, Assembled, Compiled};
 use super::fastfit::{magnitude_squared_into, FastFit};
+use super::multilinear::Multilinear;
 use super::poly::{FitWork, Poly};
 use crate::board::Board;
 use crate::error::InputError;
@@ -263,6 +266,9 @@ struct StageRun {
     compiled: Compiled,
     assembled: Assembled,
     fast: FastFit,
+    /// The multilinear expansion of N and D (stages of up to eight parts), used instead of
+    /// solving per run.
+    multi: Option<Multilinear>,
     /// Index into the run's value vector of this stage's first part.
     value_offset: usize,
     n_parts: usize,
@@ -693,7 +699,9 @@ impl MonteCarlo {
                         .next()
                 })
                 .flatten();
+            let multi = Multilinear::new(&compiled, net, rat.scale_rad_s, w_g);
             runs.push(StageRun {
+                multi,
                 far_root_u,
                 compiled,
                 assembled,
@@ -859,7 +867,9 @@ impl MonteCarlo {
         let w_g = self.w_g;
         for (k, st) in self.stages.iter_mut().enumerate() {
             let vals = &self.values[st.value_offset..st.value_offset + st.n_parts];
-            if !st.fast.fit_values(&st.compiled, vals, &mut st.assembled) {
+            if let Some(ml) = st.multi.as_mut() {
+                ml.evaluate(vals, &mut st.fast.num_u, &mut st.fast.den_u);
+            } else if !st.fast.fit_values(&st.compiled, vals, &mut st.assembled) {
                 return Err(AnalysisError::Singular("a stage of a tolerance run".into()));
             }
             st.fast.trim();
