@@ -7,8 +7,8 @@
 //! only `wasm` (built for wasm32) knows JavaScript types.
 
 pub mod analysis;
-pub mod cli;
 pub mod board;
+pub mod cli;
 pub mod design;
 pub mod error;
 pub mod eseries;
