@@ -543,7 +543,9 @@ fn nominal_cutoffs_of_high_and_band_pass_are_analytic() {
 /// data (the definition numpy calls "linear"), exactly, for random data with ties.
 #[test]
 fn percentiles_by_selection_equal_sorted_percentiles() {
-    use rolloff::analysis::montecarlo::{percentile_sorted, percentiles_by_selection};
+    use rolloff::analysis::montecarlo::{
+        percentile_sorted, percentiles_by_selection, percentiles_f32_by_histogram,
+    };
     let mut rng = Xoshiro256PlusPlus::seed_from_u64(3);
     for n in [1usize, 2, 3, 10, 101, 1000] {
         let data: Vec<f64> = (0..n).map(|_| (unit(&mut rng) * 20.0).floor()).collect();
@@ -554,6 +556,31 @@ fn percentiles_by_selection_equal_sorted_percentiles() {
         let got = percentiles_by_selection(&mut work, &ps, |a, b| a.total_cmp(b));
         for (p, g) in ps.iter().zip(got) {
             assert_eq!(g, percentile_sorted(&sorted, *p), "n {n}, p {p}");
+        }
+        // The f32 histogram path, on values spread over many decades and on clustered ones.
+        for spread in [1e-3f64, 30.0] {
+            let data32: Vec<f32> = (0..n)
+                .map(|_| (10f64.powf(spread * (unit(&mut rng) - 0.5)) * 3.0) as f32)
+                .collect();
+            let mut sorted32: Vec<f64> = data32.iter().map(|&v| v as f64).collect();
+            sorted32.sort_by(|a, b| a.total_cmp(b));
+            let got = percentiles_f32_by_histogram(&data32, &ps);
+            for (p, g) in ps.iter().zip(got) {
+                assert_eq!(
+                    g,
+                    percentile_sorted(&sorted32, *p),
+                    "f32, n {n}, spread {spread}, p {p}"
+                );
+            }
+        }
+        let ties32: Vec<f32> = data.iter().map(|&v| v as f32).collect();
+        let got = percentiles_f32_by_histogram(&ties32, &ps);
+        for (p, g) in ps.iter().zip(got) {
+            assert_eq!(
+                g,
+                percentile_sorted(&sorted, *p),
+                "f32 with ties, n {n}, p {p}"
+            );
         }
     }
 }

@@ -583,22 +583,47 @@ impl FastFit {
 /// `|P(jy)|²` as a polynomial in `x = y²` written into `out` (length ≥ len(p)); see
 /// [`super::poly::Poly::magnitude_squared_in_x`]. Returns the number of coefficients written.
 pub fn magnitude_squared_into(p: &[f64], out: &mut [f64]) -> usize {
+    const MAXC: usize = 32;
     let len = p.len();
-    out[..len].iter_mut().for_each(|v| *v = 0.0);
-    // |P(jy)|² = E(−x)² + x·O(−x)² with E, O the even and odd parts (x = y²): the coefficient of
-    // x^m collects p_a·p_b with a + b = 2m, signed (−1)^(m + b).
-    for a in 0..len {
-        let pa = p[a];
-        if pa == 0.0 {
-            continue;
+    // |P(jy)|² = E(−x)² + x·O(−x)² with E, O the even and odd parts (x = y²).
+    let mut even = [0.0f64; MAXC];
+    let mut odd = [0.0f64; MAXC];
+    if len > 2 * MAXC {
+        // Beyond any stage Rolloff builds; the plain double sum below still applies.
+        out[..len].iter_mut().for_each(|v| *v = 0.0);
+        for a in 0..len {
+            let mut b = a % 2;
+            while b < len {
+                let m = (a + b) / 2;
+                let term = p[a] * p[b];
+                out[m] += if (m + b) % 2 == 0 { term } else { -term };
+                b += 2;
+            }
         }
-        let mut b = a % 2;
-        while b < len {
-            let m = (a + b) / 2;
-            let term = pa * p[b];
-            out[m] += if (m + b) % 2 == 0 { term } else { -term };
-            b += 2;
+        return len;
+    }
+    let (mut n_even, mut n_odd) = (0, 0);
+    for (i, &c) in p.iter().enumerate() {
+        let v = if (i / 2) % 2 == 0 { c } else { -c };
+        if i % 2 == 0 {
+            even[i / 2] = v;
+            n_even = i / 2 + 1;
+        } else {
+            odd[i / 2] = v;
+            n_odd = i / 2 + 1;
         }
     }
+    let mut acc = [0.0f64; 2 * MAXC];
+    for a in 0..n_even {
+        for b in 0..n_even {
+            acc[a + b] += even[a] * even[b];
+        }
+    }
+    for a in 0..n_odd {
+        for b in 0..n_odd {
+            acc[a + b + 1] += odd[a] * odd[b];
+        }
+    }
+    out[..len].copy_from_slice(&acc[..len]);
     len
 }
