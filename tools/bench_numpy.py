@@ -7,7 +7,15 @@ w0 = 1/sqrt(R1 R2 C1 C2), Q = sqrt(R1 R2 C1 C2) / (C2 (R1 + R2)) (ideal op amp),
 |H|^2 = w0^4 / ((w0^2 - w^2)^2 + (w w0 / Q)^2) per frequency, multiplied over the stages
 (magnitude only, no complex numbers). Prints stage-evaluations per second
 (runs x points x stages / s).
+
+Side by side: when the release binary `target/release/rolloff` exists (cargo build --release), the
+script also times a whole `rolloff spread` of the same design with 20,000 runs (start-up, design,
+200-point study and statistics included) right after the numpy kernel, so both figures come from
+the same minute of a shared machine. The Rust kernel's own figure comes from
+`cargo bench --bench montecarlo`.
 """
+import os
+import subprocess
 import time
 
 import numpy as np
@@ -56,6 +64,16 @@ def main():
     evals = RUNS * N_POINTS * N_STAGES
     print(f"numpy {np.__version__}: {RUNS} runs x {N_POINTS} points x {N_STAGES} stages "
           f"in {total:.3f} s = {evals / total:.3e} stage-evaluations/s")
+    binary = os.path.join(os.path.dirname(__file__), "..", "target", "release", "rolloff")
+    if os.path.exists(binary):
+        link = ("v=1&resp=lp&family=butterworth&order=8&fc=1000"
+                "&fpass=800&apass=1&fstop=3000&astop=60")
+        t0 = time.perf_counter()
+        subprocess.run([binary, "spread", link, "--runs", str(RUNS), "--seed", "1",
+                        "--format", "json"], check=True, stdout=subprocess.DEVNULL)
+        whole = time.perf_counter() - t0
+        print(f"rolloff spread, {RUNS} runs, whole command: {whole:.3f} s "
+              f"({total / whole:.1f}x faster than the numpy kernel alone)")
 
 
 if __name__ == "__main__":
