@@ -235,6 +235,7 @@ test('a link with markup or script in every key executes nothing and inserts no 
   // only such elements, inserted by the parser.
   assert.ok(added.some((line) => /^LI /.test(line)), 'the observer saw the page list the ignored keys');
   const own = [
+    'LINK <link rel="icon" href="data:,">',
     'LINK <link rel="stylesheet" href="style.css">',
     'A <a class="skip" href="#plots">Skip to the plots</a>',
     'SCRIPT <script src="rolloff-wasm.js"></script>',
