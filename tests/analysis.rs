@@ -585,6 +585,83 @@ fn percentiles_by_selection_equal_sorted_percentiles() {
     }
 }
 
+/// Analytic: a uniform spread over ±t has standard deviation t/√3; the RC cutoff follows the
+/// capacitor alone to first order (second-order term ~t²/3 = 3e-4 relative) when a per-part
+/// override sets the resistor's tolerance to zero. 20,000 runs: sampling error 0.5 %; tolerance 2 %.
+#[test]
+fn uniform_parts_and_per_part_overrides() {
+    use rolloff::analysis::montecarlo::PartTolerance;
+    let (r, c) = (10e3, 10e-9);
+    let mut settings = mc_settings(20_000, 17, 5.0, 3.0, ResponseClass::LowPass);
+    settings.tolerances.distribution = PartDistribution::Uniform;
+    settings.tolerances.overrides = vec![PartTolerance {
+        reference: "R1".into(),
+        pct: 0.0,
+    }];
+    let s = run_all(
+        MonteCarlo::from_stages(&[rc_lowpass(r, c)], &OpAmp::ideal(), None, settings).unwrap(),
+        20_000,
+    );
+    let rel = s.cutoffs[0].hz.std_dev / s.cutoffs[0].hz.mean;
+    let want = 0.03 / 3f64.sqrt();
+    assert!(
+        (rel / want - 1.0).abs() < 0.02,
+        "relative spread {rel}, expected {want}"
+    );
+    // Every run stays inside the ±3 % band of the capacitor: fc within fc0/(1 ± 0.03).
+    let fc0 = 1.0 / (2.0 * PI * r * c);
+    assert!(
+        s.cutoffs[0].hz.min >= fc0 / 1.03 * (1.0 - 1e-9)
+            && s.cutoffs[0].hz.max <= fc0 / 0.97 * (1.0 + 1e-9)
+    );
+}
+
+/// Bad settings come back as input errors that name the key and the accepted range.
+#[test]
+fn bad_study_settings_name_their_key() {
+    let net = rc_lowpass(1e3, 1e-9);
+    let check = |settings: MonteCarloSettings, key: &str| match MonteCarlo::from_stages(
+        &[net.clone()],
+        &OpAmp::ideal(),
+        None,
+        settings,
+    ) {
+        Err(rolloff::analysis::circuit::AnalysisError::Input(e)) => {
+            assert_eq!(e.key, key, "{}", e.message);
+            assert!(!e.message.is_empty());
+        }
+        other => panic!(
+            "expected an input error on {key}, got {:?}",
+            other.map(|_| ())
+        ),
+    };
+    check(mc_settings(0, 1, 1.0, 1.0, ResponseClass::LowPass), "runs");
+    check(
+        mc_settings(100_001, 1, 1.0, 1.0, ResponseClass::LowPass),
+        "runs",
+    );
+    check(
+        mc_settings(10, 1, 60.0, 1.0, ResponseClass::LowPass),
+        "rtol",
+    );
+    check(
+        mc_settings(10, 1, 1.0, -1.0, ResponseClass::LowPass),
+        "ctol",
+    );
+    let mut s = mc_settings(10, 1, 1.0, 1.0, ResponseClass::LowPass);
+    s.tolerances.distribution = PartDistribution::Gaussian { sigmas: 0.5 };
+    check(s, "sigmas");
+    let mut s = mc_settings(10, 1, 1.0, 1.0, ResponseClass::LowPass);
+    s.tolerances.overrides = vec![rolloff::analysis::montecarlo::PartTolerance {
+        reference: "R9".into(),
+        pct: 1.0,
+    }];
+    check(s, "tol:R9");
+    let mut s = mc_settings(10, 1, 1.0, 1.0, ResponseClass::LowPass);
+    s.freqs_hz = vec![100.0, 10.0];
+    check(s, "from");
+}
+
 /// Analytic yield: an RC low-pass whose capacitor alone varies (Gaussian, relative σ = 2 %) has
 /// fc = fc0/(1 + σz); a mask that asks for at most 3.01 dB at fc0/(1 + σ) passes exactly when
 /// z ≤ 1, so the yield is Φ(1) = 0.841345 (standard normal table, from memory). Sampling error
