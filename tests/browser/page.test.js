@@ -303,6 +303,42 @@ test('the plots are reachable by keyboard and read out under the crosshair', asy
   await close();
 });
 
+test('text contrast is at least 4.5:1 in light and dark (WCAG 2 AA for normal text)', async () => {
+  // WCAG 2.x relative luminance and contrast ratio (W3C Recommendation), computed from the
+  // colours the browser resolves for the page's text roles against the surface under them.
+  for (const scheme of ['light', 'dark']) {
+    const { page, close } = await open(STRAIN, { colorScheme: scheme });
+    const pairs = await page.evaluate(() => {
+      const rgb = (text) => (text.match(/[\d.]+/g) || []).slice(0, 3).map(Number);
+      const surface = (el) => {
+        for (let node = el; node; node = node.parentElement) {
+          const bg = getComputedStyle(node).backgroundColor;
+          const alpha = (bg.match(/[\d.]+/g) || [])[3];
+          if (bg && bg !== 'transparent' && alpha !== '0') return rgb(bg);
+        }
+        return [255, 255, 255];
+      };
+      const roles = ['#summary', '.requirement h2', '.field .label', '.unit', '.hint', 'input[name="fc"]',
+        '.card th', '.card td', '.thumb span', '#figures', '.caution', '.segmented input:checked + span'];
+      return roles.map((selector) => {
+        const el = document.querySelector(selector);
+        return el ? { selector, fg: rgb(getComputedStyle(el).color), bg: surface(el) } : { selector, missing: true };
+      });
+    });
+    const luminance = ([r, g, b]) => {
+      const lin = (c) => { const v = c / 255; return v <= 0.03928 ? v / 12.92 : ((v + 0.055) / 1.055) ** 2.4; };
+      return 0.2126 * lin(r) + 0.7152 * lin(g) + 0.0722 * lin(b);
+    };
+    for (const pair of pairs) {
+      assert.ok(!pair.missing, `${scheme}: ${pair.selector} is on the page`);
+      const [a, b] = [luminance(pair.fg), luminance(pair.bg)].sort((x, y) => y - x);
+      const ratio = (a + 0.05) / (b + 0.05);
+      assert.ok(ratio >= 4.5, `${scheme}: ${pair.selector} contrast ${ratio.toFixed(2)}:1`);
+    }
+    await close();
+  }
+});
+
 test('screenshots at 1366×768 in light and dark are written for review', async () => {
   for (const scheme of ['light', 'dark']) {
     const { page, close } = await open(DEMO, { colorScheme: scheme });
