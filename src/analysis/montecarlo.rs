@@ -280,7 +280,7 @@ struct StageRun {
     /// Index into the run's value vector of this stage's first part.
     value_offset: usize,
     n_parts: usize,
-    /// 1 or 2 (degree of the denominator with an ideal op amp).
+    /// 0, 1 or 2 (degree of the denominator with an ideal op amp, at most 2).
     order: usize,
     /// Nominal f0 (rad/s) and Q of the dominant factor, the start of each run's iteration.
     nominal_w0: f64,
@@ -685,15 +685,20 @@ impl MonteCarlo {
             // The stage order from the ideal-op-amp denominator; the nominal dominant factor from
             // the real one.
             let ideal_rat = super::poly::stage_transfer(net, &ideal)?;
-            let order = ideal_rat.den.degree().clamp(1, 2);
+            // Order 0: a stage without frequency-setting poles (a gain stage); it has no f0 or Q.
+            let order = ideal_rat.den.degree().min(2);
             let rat = super::poly::fitted_rational(&compiled, &assembled, &mut work)?;
             let poles = rat.poles()?;
-            let (w0, q) = dominant_w0_q(&poles, order).ok_or_else(|| {
-                AnalysisError::NoConvergence(format!(
-                    "no dominant pole {} found in a stage of order {order}",
-                    if order == 2 { "pair" } else { "" }
-                ))
-            })?;
+            let (w0, q) = if order == 0 {
+                (f64::NAN, f64::NAN)
+            } else {
+                dominant_w0_q(&poles, order).ok_or_else(|| {
+                    AnalysisError::NoConvergence(format!(
+                        "no dominant pole {} found in a stage of order {order}",
+                        if order == 2 { "pair" } else { "" }
+                    ))
+                })?
+            };
             let mut fast = FastFit::new(&compiled, rat.scale_rad_s, w_g);
             fast.choose_pivots(&compiled, &assembled);
             let k = fast.n_coef();
@@ -905,11 +910,13 @@ impl MonteCarlo {
                         dominant_w0_q(&poles, 2).unwrap_or((f64::NAN, f64::NAN))
                     }
                 }
-            } else {
+            } else if st.order == 1 {
                 match newton_real(d, -st.nominal_w0 / w_g) {
                     Some(z) => (-z * w_g, f64::NAN),
                     None => (f64::NAN, f64::NAN),
                 }
+            } else {
+                (f64::NAN, f64::NAN)
             };
             f0q[k] = (w0, q);
             let n_coef = magnitude_squared_into(&st.fast.num_u, &mut st.sq_n);
