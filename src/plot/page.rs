@@ -520,12 +520,14 @@ impl Analyses {
         let state = &design.state;
         let mut problems = Vec::new();
         let gain = 10f64.powf(state.requirement.gain_db / 20.0);
+        let first_freq = freqs.first().copied().unwrap_or(design.span_hz.0);
+        let last_freq = freqs.last().copied().unwrap_or(design.span_hz.1);
 
         // Noise: density at the output, the largest contributors, rms over the band.
         let band_hz = state
             .signal
             .noise_band_hz
-            .unwrap_or((freqs[0], freqs[freqs.len() - 1]));
+            .unwrap_or((first_freq, last_freq));
         let signal_v_rms = Some(state.signal.vin_pk * gain / 2f64.sqrt());
         let (mut noise_total, mut noise_parts, mut noise_line) = (None, Vec::new(), String::new());
         // Every second plot frequency: the densities are smooth on a log axis, and the noise
@@ -605,7 +607,7 @@ impl Analyses {
                 let half = bw / 2.0;
                 half + (half * half + design.synthesis.fc_hz.powi(2)).sqrt()
             }
-            (ResponseClass::HighPass, _) => freqs[freqs.len() - 1],
+            (ResponseClass::HighPass, _) => last_freq,
             _ => design.synthesis.fc_hz,
         };
         let vout_pk = state.signal.vin_pk * gain;
