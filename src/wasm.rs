@@ -235,8 +235,8 @@ struct StudyProgress {
 }
 
 /// Runs up to `n_runs` more runs of the study in progress and reports
-/// `{ done, total, finished, status, summary }`. When the last run is done the results go into
-/// the plots (envelope, histograms) and the summary.
+/// `{ done, total, finished: false, status }`. When every run is done, [`study_finish`] turns
+/// the runs into the results (a separate call, so the page can paint in between).
 #[wasm_bindgen]
 pub fn study_step(n_runs: usize) -> JsValue {
     SHEET.with(|sheet| {
@@ -251,29 +251,38 @@ pub fn study_step(n_runs: usize) -> JsValue {
             });
         };
         let progress = study.step(n_runs.max(1));
-        if !study.is_done() {
-            return to_js(&StudyProgress {
-                done: progress.done,
-                total: progress.total,
-                finished: false,
-                status: format!("{} of {} runs", progress.done, progress.total),
-                summary: String::new(),
-            });
-        }
+        to_js(&StudyProgress {
+            done: progress.done,
+            total: progress.total,
+            finished: false,
+            status: if study.is_done() {
+                format!("{} runs done; summarizing", progress.total)
+            } else {
+                format!("{} of {} runs", progress.done, progress.total)
+            },
+            summary: String::new(),
+        })
+    })
+}
+
+/// Summarizes the finished study (percentiles, envelope, histograms, yield) into the plots and
+/// the summary sentence; returns `{ done, total, finished: true, status, summary }`.
+#[wasm_bindgen]
+pub fn study_finish() -> JsValue {
+    SHEET.with(|sheet| {
+        let mut sheet = sheet.borrow_mut();
+        let progress = sheet.study.as_ref().map(MonteCarlo::progress);
         let summary = sheet.study.take().map(MonteCarlo::finish);
         let (status, line) = match (sheet.model.as_mut(), summary) {
             (Some(model), Some(summary)) => {
                 model.apply_study(summary);
                 (model.study_line(), model.summary_with_study())
             }
-            _ => (
-                "the design changed during the study".to_string(),
-                String::new(),
-            ),
+            _ => ("no study to summarize".to_string(), String::new()),
         };
         to_js(&StudyProgress {
-            done: progress.done,
-            total: progress.total,
+            done: progress.map_or(0, |p| p.done),
+            total: progress.map_or(0, |p| p.total),
             finished: true,
             status,
             summary: line,

@@ -588,17 +588,26 @@
       else job.chunk = Math.min(20000, job.chunk * 2);
       bar.value = p.done;
       $('#study-status').textContent = p.status;
-      if (p.finished) {
-        state.study = null;
-        $('#study-cancel').disabled = true;
-        $('#study-run').disabled = false;
-        $('#study-status').textContent = p.status;
-        if (p.summary) $('#summary').textContent = p.summary;
-        state.studies += 1;
-        document.body.setAttribute('data-study-ms', String(Math.round(performance.now() - job.t0)));
-        document.body.setAttribute('data-study-done', String(state.studies));
-        drawCanvas($('#plot-main'));
-        $$('canvas[data-plot^="hist-"], .thumb canvas[data-plot="magnitude"]').forEach(drawCanvas);
+      if (p.finished) { cancelStudy(true); return; }
+      if (p.done >= p.total) {
+        // Summarize in a task of its own, then redraw on the next frame.
+        window.setTimeout(function () {
+          if (job.cancelled) return;
+          var result = engine.study_finish();
+          state.study = null;
+          $('#study-cancel').disabled = true;
+          $('#study-run').disabled = false;
+          $('#study-status').textContent = result.status;
+          if (result.summary) $('#summary').textContent = result.summary;
+          window.requestAnimationFrame(function () {
+            if (job.cancelled) return;
+            drawCanvas($('#plot-main'));
+            $$('canvas[data-plot^="hist-"], .thumb canvas[data-plot="magnitude"]').forEach(drawCanvas);
+            state.studies += 1;
+            document.body.setAttribute('data-study-ms', String(Math.round(performance.now() - job.t0)));
+            document.body.setAttribute('data-study-done', String(state.studies));
+          });
+        }, 0);
         return;
       }
       window.setTimeout(function () { channel.port2.postMessage(0); }, 0);
