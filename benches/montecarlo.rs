@@ -4,7 +4,9 @@
 //! stage-evaluations per second = runs × points × stages / time (criterion reports it as
 //! "elements/s"). `tools/bench_numpy.py` runs the same textbook computation vectorised in numpy
 //! for comparison. A second group times a whole study of 20,000 runs including set-up and the
-//! statistics of `finish()`, the work behind one `rolloff spread`.
+//! statistics of `finish()`, the work behind one `rolloff spread`; a third times the
+//! per-frequency kernel alone, to show how the time of a run divides between its 200 points and
+//! its per-run work (draws, stage polynomials, f0 and Q, cutoff search, statistics).
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use rolloff::analysis::montecarlo::{
@@ -86,6 +88,47 @@ fn bench(c: &mut Criterion) {
         })
     });
     group.finish();
+
+    // The per-frequency kernel alone (what each run spends on its 200 points once its stage
+    // polynomials are formed): |N|² of degree 2 and |D|² of degree 3 in x per stage, as the
+    // Sallen-Key stages with the op-amp model have.
+    let n_eval = 224; // 200 points and the mask/reference points, padded to the lane count
+    let x: Vec<f64> = (0..n_eval)
+        .map(|i| 10f64.powf(-4.0 + 8.0 * i as f64 / n_eval as f64))
+        .collect();
+    let width = 4;
+    let coef_n: Vec<f64> = (0..n_stages * width)
+        .map(|i| {
+            if i % width < 3 {
+                1.0 / (1 + i) as f64
+            } else {
+                0.0
+            }
+        })
+        .collect();
+    let coef_d: Vec<f64> = (0..n_stages * width)
+        .map(|i| 0.5 + (i % 7) as f64)
+        .collect();
+    let deg_n = vec![2usize; n_stages];
+    let deg_d = vec![3usize; n_stages];
+    let mut out = vec![0.0; n_eval];
+    let mut kernel = c.benchmark_group("cascade_kernel_only");
+    kernel.throughput(Throughput::Elements((n_eval * n_stages) as u64));
+    kernel.bench_function("4 stages, 224 points", |b| {
+        b.iter(|| {
+            rolloff::analysis::montecarlo::cascade_kernel(
+                criterion::black_box(&x),
+                &coef_n,
+                &coef_d,
+                &deg_n,
+                &deg_d,
+                width,
+                &mut out,
+            );
+            criterion::black_box(out[0])
+        })
+    });
+    kernel.finish();
 
     let mut whole = c.benchmark_group("montecarlo_whole");
     whole.throughput(Throughput::Elements((20_000 * N_POINTS * n_stages) as u64));
