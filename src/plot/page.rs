@@ -1459,6 +1459,76 @@ mod tests {
     }
 
     #[test]
+    fn extreme_links_never_panic_anywhere_on_the_sheet() {
+        // Every view of the page (text, every figure drawn to SVG, every schematic, a short
+        // tolerance study, the downloads) for links at the edges of each key's range and beyond.
+        // The assertion is that all of it returns: a panic in wasm would kill the page.
+        let links = [
+            "v=1&order=20&fc=1G&family=chebyshev&ripple=3",
+            "v=1&order=1&fc=0.001",
+            "v=1&resp=hp&order=19&family=bessel&fc=1m&gain=60&topo=mfb",
+            "v=1&resp=bp&order=20&fc=1k&bw=1&family=critical",
+            "v=1&resp=bp&order=2&fc=1k&bw=1G",
+            "v=1&fpass=1k&fstop=1.001k&apass=0.001&astop=300",
+            "v=1&gbw=1&a0=0&rout=100k&order=8&fc=100k",
+            "v=1&rser=e6&cser=e6&rlevel=10&order=6&fc=10",
+            "v=1&rlevel=10M&order=6&fc=1M&topo=mfb&cratio=10000",
+            "v=1&order=4&fc=1k&set=R1:1,C1:1,R2:1e12",
+            "v=1&order=4&fc=1k&set=U1:1k,R99:1k",
+            "v=1&order=4&fc=1k&span=1e-3,1e11&noiseband=1,2",
+            "v=1&order=4&fc=1k&vin=1e-9&swing=1e9&drift=0.01&gain=-40",
+            "v=1&fsample=1&adcbits=32&fsignal=0.4",
+            "v=1&stageorder=3,1,2&order=6&fc=1k&dist=uniform&sigmas=6&rtol=50&ctol=50",
+            "v=2&order=4",
+            "",
+            "%%%&&&===",
+        ];
+        let look = crate::plot::Look {
+            theme: crate::plot::Theme::Dark,
+            scale: 2.0,
+            compact: false,
+        };
+        for link in links {
+            let evaluation = evaluate(&format!("{link}&runs=50"));
+            let Some(mut model) = evaluation.model else {
+                assert!(
+                    !evaluation.view.errors.is_empty() || evaluation.refused,
+                    "{link}: no design and no reason"
+                );
+                continue;
+            };
+            for kind in PlotKind::ALL {
+                let figure = model.figure(kind);
+                let svg = crate::plot::render_svg(&figure, 500, 260, look.theme);
+                assert!(svg.is_ok(), "{link} {kind:?}: {svg:?}");
+                let _ = crate::plot::readout(&figure, 500, 260, &look, 250.0, 130.0);
+            }
+            for stage in &model.design.board.stages {
+                let mut svg = String::new();
+                let mut backend = plotters::prelude::SVGBackend::with_string(&mut svg, (320, 150));
+                assert!(schematic::draw(&mut backend, &stage.netlist, &[], &look).is_ok());
+            }
+            for kind in ["bom", "spice", "json"] {
+                let _ = model.export(kind);
+            }
+            if let Ok(mut study) = model.start_study() {
+                study.step(50);
+                assert!(study.is_done(), "{link}: 50 runs asked, 50 run");
+                model.apply_study(study.finish());
+                for kind in [
+                    PlotKind::Magnitude,
+                    PlotKind::HistCutoff,
+                    PlotKind::HistGain,
+                ] {
+                    assert!(
+                        crate::plot::render_svg(&model.figure(kind), 400, 200, look.theme).is_ok()
+                    );
+                }
+            }
+        }
+    }
+
+    #[test]
     fn phase_unwrapping_removes_wraps() {
         let mut phase = vec![170.0, -170.0, -150.0, 179.0];
         unwrap_deg(&mut phase);
