@@ -5,8 +5,9 @@
 //!
 //! 1. the prototype order: the fixed `order`, or the minimum for the mask ([`crate::order`]);
 //! 2. the prototype at 1 rad/s ([`crate::prototype`]);
-//! 3. the band: `fc` (and `bw`) from the requirement, or placed so that the mask's passband edge
-//!    gets exactly `apass` (see [`band_from_mask`]);
+//! 3. the band: `fc` (and `bw`) from the requirement, or placed from the mask with its spare
+//!    selectivity shared between the edges, given to the stopband (the passband edge gets exactly
+//!    `apass`) or given to the passband, as link key `margin` says (see [`band_from_mask`]);
 //! 4. the transform ([`crate::transform`]) and the sections ([`crate::sections`]), with the overall
 //!    gain split evenly in dB and the chosen stage order.
 
@@ -17,7 +18,7 @@ use crate::order;
 use crate::prototype::{self, Prototype};
 use crate::response;
 use crate::sections::{self, Section, StageOrder};
-use crate::spec::{Edge, Family, Mask, OrderChoice, Requirement, ResponseClass};
+use crate::spec::{Edge, Family, MarginPlacement, Mask, OrderChoice, Requirement, ResponseClass};
 use crate::transform::{self, Band};
 
 const TWO_PI: f64 = 2.0 * std::f64::consts::PI;
@@ -112,7 +113,7 @@ pub fn synthesize(req: &Requirement, stage_order: &StageOrder) -> Result<Synthes
                         .to_string(),
                 );
             }
-            band_from_mask(&proto, class, mask)?
+            band_from_mask(&proto, class, mask, req.margin)?
         }
         (OrderChoice::Fixed(_), None, None) => {
             return Err(missing_band_error(class, req));
@@ -125,7 +126,7 @@ pub fn synthesize(req: &Requirement, stage_order: &StageOrder) -> Result<Synthes
                         .to_string(),
                 );
             }
-            band_from_mask(&proto, class, mask)?
+            band_from_mask(&proto, class, mask, req.margin)?
         }
         (OrderChoice::FromMask, _, None) => {
             // Unreachable after step 1, which already demanded a mask; kept as an error, not a
@@ -265,13 +266,33 @@ fn missing_band_error(class: ResponseClass, req: &Requirement) -> InputError {
     }
 }
 
-/// Places the band so that the mask's passband edge gets exactly `apass`.
+/// Places the band from the mask; `margin` decides which edge keeps the spare selectivity.
 ///
-/// With `w_p` the prototype frequency where its attenuation is `apass`
-/// ([`Prototype::passband_edge`]): low-pass `fc = fpass / w_p`; high-pass `fc = fpass · w_p`;
-/// band-pass centre `√(fpass_lo · fpass_hi)` and bandwidth `(fpass_hi − fpass_lo) / w_p`, so that
-/// the prototype's `w_p` lands on both passband edges (scipy `buttord` does the same for
-/// Butterworth). For Chebyshev with ripple = apass, `w_p = 1` and the ripple band ends at fpass.
+/// Every class reduces to one number, the prototype frequency `u` (rad/s, normalized) that the
+/// passband edge maps to: low-pass `fc = fpass / u`; high-pass `fc = fpass · u`; band-pass centre
+/// `√(fpass_lo · fpass_hi)` and bandwidth `(fpass_hi − fpass_lo) / u`, so that `u` lands on both
+/// passband edges. The nearer stopband edge then maps to `Ω·u`, with `Ω` the selectivity of
+/// [`order::selectivity`] (band-pass: the worse of the two stopband edges). With `A(w)` the
+/// prototype attenuation in dB ([`Prototype::attenuation_db`]) the two margins, in dB, are
+///
+/// `m_pass(u) = apass − A(u)` and `m_stop(u) = A(Ω·u) − astop`.
+///
+/// * [`MarginPlacement::Pass`]: `u = w_p` with `A(w_p) = apass` ([`Prototype::passband_edge`]),
+///   so `m_pass = 0` and all spare goes to the stopband (scipy's `buttord` places Butterworth
+///   bands this way). For Chebyshev with ripple = apass, `w_p = 1` and the ripple band ends at
+///   fpass.
+/// * [`MarginPlacement::Stop`]: `u = w_s / Ω` with `A(w_s) = astop`, so `m_stop = 0` and all spare
+///   goes to the passband edge.
+/// * [`MarginPlacement::Split`]: with `S = m_stop(w_p)` (the stopband's margin under `Pass`) and
+///   `P = m_pass(u_lo)` (the passband edge's margin at the other end of the range, `u_lo = w_s/Ω`),
+///   the `u` between `u_lo` and `w_p` at which `m_pass(u) / P = m_stop(u) / S`: each edge keeps
+///   the same fraction `t` of the margin it would have if it got all of it
+///   (`m_pass = t·P`, `m_stop = t·S`). Both margins are monotone in `u` there, so bisection on
+///   `ln u` finds the one root. For Chebyshev `u_lo` is at least 1 (the ripple-band edge): below it
+///   the worst passband loss stays at the ripple, so moving further only spends stopband margin;
+///   a Chebyshev whose ripple equals apass therefore has nothing to share and is placed as `Pass`.
+///   When a fixed order is too low for the mask, `P` and `S` are negative and `Split` shares the
+///   shortfall by the same rule.
 ///
 /// # Errors
 /// The mask keys as in [`order::selectivity`], and `ripple` for a Chebyshev ripple above apass.
@@ -279,19 +300,25 @@ pub fn band_from_mask(
     proto: &Prototype,
     class: ResponseClass,
     mask: &Mask,
+    margin: MarginPlacement,
 ) -> Result<Band, InputError> {
-    order::selectivity(class, mask)?;
+    let selectivity = order::selectivity(class, mask)?;
     let w_pass = proto.passband_edge(mask.apass_db)?;
+    let u = match margin {
+        MarginPlacement::Pass => w_pass,
+        MarginPlacement::Stop => stop_edge(proto, mask.astop_db) / selectivity,
+        MarginPlacement::Split => split_edge(proto, mask, selectivity, w_pass),
+    };
     Ok(match (class, mask.pass) {
         (ResponseClass::LowPass, Edge::Single(fp)) => Band::LowPass {
-            wc: TWO_PI * fp / w_pass,
+            wc: TWO_PI * fp / u,
         },
         (ResponseClass::HighPass, Edge::Single(fp)) => Band::HighPass {
-            wc: TWO_PI * fp * w_pass,
+            wc: TWO_PI * fp * u,
         },
         (ResponseClass::BandPass, Edge::Pair(lo, hi)) => Band::BandPass {
             w0: TWO_PI * (lo * hi).sqrt(),
-            bw: TWO_PI * (hi - lo) / w_pass,
+            bw: TWO_PI * (hi - lo) / u,
         },
         // selectivity() has already rejected every other combination.
         _ => {
@@ -301,6 +328,66 @@ pub fn band_from_mask(
             ))
         }
     })
+}
+
+/// The normalized frequency `w_s` at which the prototype's attenuation reaches `astop_db` (its
+/// attenuation rises monotonically past the passband for every family).
+fn stop_edge(proto: &Prototype, astop_db: f64) -> f64 {
+    solve_in_ln(|w| proto.attenuation_db(w) - astop_db, 1e-30, 1e30)
+}
+
+/// The `Split` placement of [`band_from_mask`]: the `u` where `m_pass(u)/P = m_stop(u)/S`.
+fn split_edge(proto: &Prototype, mask: &Mask, selectivity: f64, w_pass: f64) -> f64 {
+    let m_pass = |u: f64| mask.apass_db - proto.attenuation_db(u);
+    let m_stop = |u: f64| proto.attenuation_db(selectivity * u) - mask.astop_db;
+    let mut u_lo = stop_edge(proto, mask.astop_db) / selectivity;
+    if matches!(proto.family, Family::Chebyshev { .. }) {
+        u_lo = u_lo.max(1.0);
+    }
+    let spare_pass = m_pass(u_lo);
+    let spare_stop = m_stop(w_pass);
+    // A mask met with nothing to spare on either side leaves nothing to share.
+    let tiny = 1e-12;
+    if spare_pass.abs() <= tiny || spare_stop.abs() <= tiny || (u_lo / w_pass).ln().abs() <= tiny {
+        return w_pass;
+    }
+    // g runs from −1 at w_pass to about +1 at u_lo and is monotone between them.
+    let g = |u: f64| m_pass(u) / spare_pass - m_stop(u) / spare_stop;
+    let (a, b) = if u_lo < w_pass {
+        (u_lo, w_pass)
+    } else {
+        (w_pass, u_lo)
+    };
+    // solve_in_ln wants a function that rises with u.
+    if g(a) > g(b) {
+        solve_in_ln(|u| -g(u), a, b)
+    } else {
+        solve_in_ln(g, a, b)
+    }
+}
+
+/// Finds `w` in `[lo, hi]` (both positive) where the increasing `f` changes sign, by bisection
+/// on `ln w` to double precision. Returns an end of the bracket when `f` keeps one sign on it.
+fn solve_in_ln(f: impl Fn(f64) -> f64, lo: f64, hi: f64) -> f64 {
+    let (mut a, mut b) = (lo.ln(), hi.ln());
+    if f(lo) >= 0.0 {
+        return lo;
+    }
+    if f(hi) <= 0.0 {
+        return hi;
+    }
+    for _ in 0..400 {
+        let mid = 0.5 * (a + b);
+        if mid <= a || mid >= b {
+            break;
+        }
+        if f(mid.exp()) < 0.0 {
+            a = mid;
+        } else {
+            b = mid;
+        }
+    }
+    (0.5 * (a + b)).exp()
 }
 
 /// Warnings for the mask edges a designed cascade misses (attenuation above `apass` at a
@@ -345,6 +432,7 @@ mod tests {
             bw_hz: None,
             mask: None,
             gain_db: 0.0,
+            margin: MarginPlacement::Split,
         }
     }
 

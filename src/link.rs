@@ -12,7 +12,7 @@ use crate::error::InputError;
 use crate::eseries::Series;
 use crate::opamp::OpAmp;
 use crate::sections::StageOrder;
-use crate::spec::{Edge, Family, Mask, OrderChoice, Requirement, ResponseClass};
+use crate::spec::{Edge, Family, MarginPlacement, Mask, OrderChoice, Requirement, ResponseClass};
 use crate::topology::Topology;
 use crate::units::parse_si;
 use serde::Serialize;
@@ -156,6 +156,7 @@ impl Default for LinkState {
                 bw_hz: None,
                 mask: None,
                 gain_db: 0.0,
+                margin: MarginPlacement::Split,
             },
             topology: Topology::SallenKey,
             r_series: Series::E96,
@@ -211,7 +212,7 @@ impl LinkReport {
 }
 
 /// Every key this version reads.
-pub const KEYS: [&str; 43] = [
+pub const KEYS: [&str; 44] = [
     "v",
     "resp",
     "family",
@@ -223,6 +224,7 @@ pub const KEYS: [&str; 43] = [
     "apass",
     "fstop",
     "astop",
+    "margin",
     "gain",
     "topo",
     "rser",
@@ -509,6 +511,16 @@ impl Reader {
         let gain = self.number("gain", -40.0, 60.0, "overall passband gain in dB");
         state.requirement.gain_db = gain.unwrap_or(0.0);
         let mask = self.read_mask(class, &mut state);
+        if let Some(m) = self.choice(
+            "margin",
+            &[
+                ("split", MarginPlacement::Split),
+                ("pass", MarginPlacement::Pass),
+                ("stop", MarginPlacement::Stop),
+            ],
+        ) {
+            state.requirement.margin = m;
+        }
 
         let ripple_db = match (ripple, &mask) {
             (Some(r), _) => r,
@@ -598,6 +610,12 @@ impl Reader {
                 None
             }
         };
+
+        // The margin only moves a band that follows from the limits.
+        if self.raw("margin").is_some() && state.requirement.fc_hz.is_some() {
+            self.notes
+                .push("margin: the band is set by fc (or there are no limits); ignored".into());
+        }
 
         self.read_build(&mut state);
         state

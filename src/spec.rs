@@ -91,6 +91,35 @@ pub enum OrderChoice {
     FromMask,
 }
 
+/// Where the spare selectivity of a mask goes when the band follows from the mask (link key
+/// `margin`).
+///
+/// The minimum order meets a mask with some attenuation to spare; the band placement decides
+/// which edge keeps it. See [`crate::design::band_from_mask`] for the formulas.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize)]
+pub enum MarginPlacement {
+    /// The spare is shared: each edge keeps the same fraction of the margin it would have if it
+    /// got all of it (link value `split`, the default).
+    #[default]
+    Split,
+    /// The passband edge gets exactly `apass`, all spare goes to the stopband (link value `pass`;
+    /// the placement of scipy's `buttord`).
+    Pass,
+    /// The stopband edge gets exactly `astop`, all spare goes to the passband (link value `stop`).
+    Stop,
+}
+
+impl MarginPlacement {
+    /// The link value: `split`, `pass` or `stop`.
+    pub fn key(self) -> &'static str {
+        match self {
+            Self::Split => "split",
+            Self::Pass => "pass",
+            Self::Stop => "stop",
+        }
+    }
+}
+
 /// A validated requirement.
 ///
 /// Invariants (established by [`crate::link`]): `FromMask` implies `mask.is_some()`; a fixed
@@ -114,4 +143,6 @@ pub struct Requirement {
     pub mask: Option<Mask>,
     /// Overall passband gain, dB.
     pub gain_db: f64,
+    /// Where the spare selectivity goes when the band follows from the mask (`margin`).
+    pub margin: MarginPlacement,
 }

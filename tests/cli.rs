@@ -274,3 +274,24 @@ fn plot_writes_an_svg_for_every_kind_and_refuses_an_unknown_one() {
     assert_eq!(code, 2);
     assert!(err.contains("--kind"), "{err}");
 }
+
+/// `margin` accepts split, pass and stop; anything else is bad input (exit 2, one line naming
+/// the key and the accepted values).
+#[test]
+fn margin_takes_split_pass_or_stop() {
+    let mask = "?v=1&fpass=1k&apass=1&fstop=3k&astop=40";
+    for value in ["split", "pass", "stop"] {
+        let (code, _out, err) = rolloff(&["design", &format!("{mask}&margin={value}")]);
+        assert_eq!(code, 0, "margin={value}: {err}");
+    }
+    let (code, _out, err) = rolloff(&["design", &format!("{mask}&margin=xyz")]);
+    assert_eq!(code, 2, "{err}");
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert!(err.contains("margin"), "message should name margin: {err}");
+    for accepted in ["split", "pass", "stop"] {
+        assert!(
+            err.contains(accepted),
+            "message should list {accepted}: {err}"
+        );
+    }
+}

@@ -17,7 +17,7 @@ use rolloff::order::{self, OrderError};
 use rolloff::prototype::{self, Prototype};
 use rolloff::response;
 use rolloff::sections::{Section, SectionKind, StageOrder};
-use rolloff::spec::{Edge, Family, Mask, OrderChoice, Requirement, ResponseClass};
+use rolloff::spec::{Edge, Family, MarginPlacement, Mask, OrderChoice, Requirement, ResponseClass};
 use serde_json::Value;
 
 /// The committed reference data from tests/reference/make_reference.py (scipy.signal).
@@ -209,6 +209,7 @@ fn from_mask(class: ResponseClass, family: Family, mask: Mask) -> Requirement {
         bw_hz: None,
         mask: Some(mask),
         gain_db: 0.0,
+        margin: MarginPlacement::Split,
     }
 }
 
@@ -226,7 +227,10 @@ fn check_order_row(
         Ok(min) => {
             assert_eq!(min.prototype_order, scipy_order, "{label}");
             assert_eq!(min.order, order::total_order(class, scipy_order));
-            let syn = synthesize(&from_mask(class, family, mask), &StageOrder::AscendingQ)
+            // scipy's estimators give the passband edge exactly gpass: our `pass` placement.
+            let mut req = from_mask(class, family, mask);
+            req.margin = MarginPlacement::Pass;
+            let syn = synthesize(&req, &StageOrder::AscendingQ)
                 .unwrap_or_else(|e| panic!("{label}: {e}"));
             assert_eq!(syn.order, min.order);
             let ours = expect_wn(&syn);
@@ -340,6 +344,7 @@ fn complete_designs_match_scipy_zpk_and_freqs() {
             bw_hz,
             mask: None,
             gain_db: 6.0,
+            margin: MarginPlacement::Split,
         };
         let syn = synthesize(&req, &StageOrder::AscendingQ).unwrap();
         let label = format!("{family:?} {class:?} n={n}");
@@ -491,6 +496,7 @@ fn sweep_phase_is_unwrapped_over_many_turns() {
             bw_hz: None,
             mask: None,
             gain_db: 0.0,
+            margin: MarginPlacement::Split,
         };
         let syn = synthesize(&req, &StageOrder::AscendingQ).unwrap();
         let points = response::sweep(&syn.sections, 1.0, 1e7, 20_000).unwrap();
@@ -531,6 +537,7 @@ fn dc_group_delay_matches_scipy_poles() {
             bw_hz: None,
             mask: None,
             gain_db: 0.0,
+            margin: MarginPlacement::Split,
         };
         let syn = synthesize(&req, &StageOrder::AscendingQ).unwrap();
         let got = response::group_delay_s(&syn.sections, fc * 1e-6);
@@ -742,6 +749,7 @@ fn stage_orders_permute_sections() {
         bw_hz: Some(300.0),
         mask: None,
         gain_db: 12.0,
+        margin: MarginPlacement::Split,
     };
     let asc = synthesize(&req, &StageOrder::AscendingQ).unwrap();
     let desc = synthesize(&req, &StageOrder::DescendingQ).unwrap();
@@ -775,4 +783,172 @@ fn stage_orders_permute_sections() {
             point.freq_hz
         );
     }
+}
+
+/// Attenuation at the passband edges (the larger) and at the stopband edges (the smaller), dB,
+/// from the section cascade of a design from `mask` with the given margin placement.
+fn edge_attenuations(
+    class: ResponseClass,
+    family: Family,
+    mask: Mask,
+    margin: MarginPlacement,
+) -> (f64, f64) {
+    let mut req = from_mask(class, family, mask);
+    req.margin = margin;
+    let syn = synthesize(&req, &StageOrder::AscendingQ)
+        .unwrap_or_else(|e| panic!("{family:?} {class:?} {margin:?}: {e}"));
+    let pass = edges(mask.pass)
+        .iter()
+        .map(|f| response::attenuation_db(&syn.sections, *f, 0.0))
+        .fold(f64::NEG_INFINITY, f64::max);
+    let stop = edges(mask.stop)
+        .iter()
+        .map(|f| response::attenuation_db(&syn.sections, *f, 0.0))
+        .fold(f64::INFINITY, f64::min);
+    (pass, stop)
+}
+
+/// Masks of our own (invented for this test) that the minimum order meets with spare.
+fn margin_masks() -> Vec<(ResponseClass, Family, Mask)> {
+    let single = |fp: f64, apass_db: f64, fs: f64, astop_db: f64| Mask {
+        pass: Edge::Single(fp),
+        apass_db,
+        stop: Edge::Single(fs),
+        astop_db,
+    };
+    let pair = |p: (f64, f64), apass_db: f64, s: (f64, f64), astop_db: f64| Mask {
+        pass: Edge::Pair(p.0, p.1),
+        apass_db,
+        stop: Edge::Pair(s.0, s.1),
+        astop_db,
+    };
+    vec![
+        (
+            ResponseClass::LowPass,
+            Family::Butterworth,
+            single(1e3, 1.0, 3e3, 40.0),
+        ),
+        (
+            ResponseClass::HighPass,
+            Family::Bessel,
+            single(500.0, 3.0, 100.0, 30.0),
+        ),
+        (
+            ResponseClass::LowPass,
+            Family::Critical,
+            single(100.0, 3.0, 2e3, 20.0),
+        ),
+        (
+            ResponseClass::HighPass,
+            Family::LinkwitzRiley,
+            single(1e3, 1.0, 200.0, 40.0),
+        ),
+        (
+            ResponseClass::BandPass,
+            Family::Butterworth,
+            pair((2e3, 20e3), 1.0, (400.0, 100e3), 30.0),
+        ),
+        (
+            ResponseClass::BandPass,
+            Family::Bessel,
+            pair((1e3, 2e3), 1.0, (300.0, 8e3), 25.0),
+        ),
+    ]
+}
+
+/// The three margin placements, checked on the section cascade (an evaluation independent of
+/// the placement code) for our own masks: `pass` puts exactly apass on the passband edge and
+/// `stop` exactly astop on the stopband edge (1e-6 dB); `split` leaves both edges a positive
+/// margin, and each edge the same fraction of the margin it gets alone (the documented rule of
+/// `band_from_mask`: `(apass − A_pass) / P = (A_stop − astop) / S`, with `P` the passband margin
+/// under `stop` and `S` the stopband margin under `pass`), to 1e-6.
+#[test]
+fn split_margin_gives_both_edges_the_same_share() {
+    for (class, family, mask) in margin_masks() {
+        let label = format!("{family:?} {class:?} {mask:?}");
+        let (pass_at_pass, stop_at_pass) =
+            edge_attenuations(class, family, mask, MarginPlacement::Pass);
+        let (pass_at_stop, stop_at_stop) =
+            edge_attenuations(class, family, mask, MarginPlacement::Stop);
+        let (pass_split, stop_split) =
+            edge_attenuations(class, family, mask, MarginPlacement::Split);
+        assert!(
+            (pass_at_pass - mask.apass_db).abs() < 1e-6,
+            "{label}: pass placement has {pass_at_pass} dB at fpass"
+        );
+        assert!(
+            (stop_at_stop - mask.astop_db).abs() < 1e-6,
+            "{label}: stop placement has {stop_at_stop} dB at fstop"
+        );
+        let spare_stop = stop_at_pass - mask.astop_db;
+        let spare_pass = mask.apass_db - pass_at_stop;
+        assert!(
+            spare_stop > 0.01 && spare_pass > 0.01,
+            "{label}: the mask must leave spare on both sides (S {spare_stop}, P {spare_pass})"
+        );
+        let margin_pass = mask.apass_db - pass_split;
+        let margin_stop = stop_split - mask.astop_db;
+        assert!(
+            margin_pass > 0.0 && margin_stop > 0.0,
+            "{label}: split margins {margin_pass} dB and {margin_stop} dB"
+        );
+        let (share_pass, share_stop) = (margin_pass / spare_pass, margin_stop / spare_stop);
+        assert!(
+            (share_pass - share_stop).abs() < 1e-6,
+            "{label}: shares {share_pass} (pass) and {share_stop} (stop)"
+        );
+        eprintln!(
+            "{label}: split keeps {margin_pass:.4} dB of {spare_pass:.4} at fpass and \
+             {margin_stop:.4} dB of {spare_stop:.4} at fstop (share {share_pass:.4})"
+        );
+    }
+}
+
+/// A Chebyshev with ripple below apass has room between its ripple-band edge and the apass
+/// point; `split` keeps both edge margins positive and the whole passband within apass (our own
+/// mask; attenuation from the section cascade, 1e-6 dB).
+#[test]
+fn split_margin_keeps_a_chebyshev_inside_its_mask() {
+    let mask = Mask {
+        pass: Edge::Single(1e3),
+        apass_db: 1.0,
+        stop: Edge::Single(2.5e3),
+        astop_db: 45.0,
+    };
+    let family = Family::Chebyshev { ripple_db: 0.25 };
+    let class = ResponseClass::LowPass;
+    let mut req = from_mask(class, family, mask);
+    req.margin = MarginPlacement::Split;
+    let syn = synthesize(&req, &StageOrder::AscendingQ).unwrap();
+    let (worst_pass, _, worst_stop) = mask_attenuations(&syn.sections, class, &mask, 0.0);
+    let at_edge = response::attenuation_db(&syn.sections, 1e3, 0.0);
+    assert!(at_edge < mask.apass_db, "fpass {at_edge} dB");
+    assert!(
+        worst_pass <= mask.apass_db + 1e-6,
+        "passband {worst_pass} dB"
+    );
+    assert!(worst_stop > mask.astop_db, "stopband {worst_stop} dB");
+}
+
+/// A Chebyshev whose ripple equals apass already touches apass in its ripple troughs, so `split`
+/// has no passband margin to give and places the band as `pass` (the same cutoff, 1e-12
+/// relative).
+#[test]
+fn split_margin_leaves_a_full_ripple_chebyshev_at_the_pass_placement() {
+    let mask = Mask {
+        pass: Edge::Single(1e3),
+        apass_db: 0.5,
+        stop: Edge::Single(2.5e3),
+        astop_db: 45.0,
+    };
+    let family = Family::Chebyshev { ripple_db: 0.5 };
+    let mut req = from_mask(ResponseClass::LowPass, family, mask);
+    let split = synthesize(&req, &StageOrder::AscendingQ).unwrap();
+    req.margin = MarginPlacement::Pass;
+    let pass = synthesize(&req, &StageOrder::AscendingQ).unwrap();
+    assert!((split.fc_hz - pass.fc_hz).abs() <= 1e-12 * pass.fc_hz);
+    assert!(
+        (pass.fc_hz - 1e3).abs() <= 1e-9 * 1e3,
+        "ripple edge at fpass"
+    );
 }
