@@ -318,6 +318,10 @@ pub struct MonteCarlo {
     w_g: f64,
     /// Per-stage |N|², |D|² coefficients in x, `width` each, and their degrees.
     coef_n: Vec<f64>,
+    /// The same coefficients, four stages side by side (`[(chunk·width + j)·4 + lane]`), padded
+    /// with unit stages, for the scalar evaluations of the cutoff search.
+    lane_n: Vec<f64>,
+    lane_d: Vec<f64>,
     coef_d: Vec<f64>,
     deg_n: Vec<usize>,
     deg_d: Vec<usize>,
@@ -515,6 +519,19 @@ pub(crate) fn bairstow(d: &[f64], u: f64, v: f64) -> Option<(f64, f64)> {
     // Accept a factor whose remainder is negligible even if the last steps dithered.
     let scale = a[..=n].iter().fold(0.0f64, |m, x| m.max(x.abs()));
     (b[1].abs() + b[0].abs() <= 1e-12 * scale).then_some((-r, -s))
+}
+
+/// Lane tables for `n_stages` stages of `width` coefficients, every lane a unit stage (constant
+/// 1) until a stage's coefficients are written into it.
+fn unit_lanes(n_stages: usize, width: usize) -> Vec<f64> {
+    let n_chunks = n_stages.div_ceil(4);
+    let mut v = vec![0.0; n_chunks * width * 4];
+    for chunk in 0..n_chunks {
+        for lane in 0..4 {
+            v[chunk * width * 4 + lane] = 1.0;
+        }
+    }
+    v
 }
 
 /// The quadratic factor `z² + u·z + v` of the cubic `d` (ascending) that remains when its real
@@ -788,6 +805,8 @@ impl MonteCarlo {
             has_stop,
             w_g,
             coef_n: vec![0.0; n_stages * width],
+            lane_n: unit_lanes(n_stages, width),
+            lane_d: unit_lanes(n_stages, width),
             coef_d: vec![0.0; n_stages * width],
             deg_n: vec![0; n_stages],
             deg_d: vec![0; n_stages],
@@ -933,6 +952,11 @@ impl MonteCarlo {
             }
             self.deg_n[k] = row_n.iter().rposition(|&v| v != 0.0).unwrap_or(0);
             self.deg_d[k] = row_d.iter().rposition(|&v| v != 0.0).unwrap_or(0);
+            let (chunk, lane) = (k / 4, k % 4);
+            for j in 0..width {
+                self.lane_n[(chunk * width + j) * 4 + lane] = row_n[j];
+                self.lane_d[(chunk * width + j) * 4 + lane] = row_d[j];
+            }
         }
         Ok(())
     }
@@ -950,16 +974,27 @@ impl MonteCarlo {
         );
     }
 
-    /// |H|² of the current run's cascade at `x = (f/f_g)²` (scalar path for the cutoff search).
+    /// |H|² of the current run's cascade at `x = (f/f_g)²` (scalar path for the cutoff search):
+    /// four stages at a time in the lanes of small arrays.
     fn h2_x(&self, x: f64) -> f64 {
+        let w = self.width;
         let mut num = 1.0;
         let mut den = 1.0;
-        let w = self.width;
-        for (k, (&dn, &dd)) in self.deg_n.iter().zip(&self.deg_d).enumerate() {
-            let row_n = &self.coef_n[k * w..k * w + dn + 1];
-            let row_d = &self.coef_d[k * w..k * w + dd + 1];
-            num *= row_n.iter().rev().fold(0.0, |a, &c| a * x + c);
-            den *= row_d.iter().rev().fold(0.0, |a, &c| a * x + c);
+        for (cn, cd) in self
+            .lane_n
+            .chunks_exact(4 * w)
+            .zip(self.lane_d.chunks_exact(4 * w))
+        {
+            let mut pn = [0.0f64; 4];
+            let mut pd = [0.0f64; 4];
+            for j in (0..w).rev() {
+                for l in 0..4 {
+                    pn[l] = pn[l] * x + cn[j * 4 + l];
+                    pd[l] = pd[l] * x + cd[j * 4 + l];
+                }
+            }
+            num *= (pn[0] * pn[1]) * (pn[2] * pn[3]);
+            den *= (pd[0] * pd[1]) * (pd[2] * pd[3]);
         }
         num / den
     }
@@ -1016,7 +1051,7 @@ impl MonteCarlo {
         let h2 = &self.h2;
         // Yield: linear comparisons only, accumulated without branches in eight lanes (the
         // evaluation arrays are padded to a multiple of the kernel's lane count).
-        let mut viol = [0u64; 8];
+        let mut viol = [0.0f64; 8];
         let mut worst = [0.0f64; 8];
         for (((v, lo), hi), w) in h2
             .chunks_exact(8)
@@ -1026,12 +1061,13 @@ impl MonteCarlo {
         {
             for l in 0..8 {
                 // A NaN fails both comparisons and so counts as a violation.
-                viol[l] += u64::from(!(v[l] >= lo[l] && v[l] <= hi[l]));
+                let inside = v[l] >= lo[l] && v[l] <= hi[l];
+                viol[l] += if inside { 0.0 } else { 1.0 };
                 let s = v[l] * w[l];
                 worst[l] = if s > worst[l] { s } else { worst[l] };
             }
         }
-        let violations: u64 = viol.iter().sum();
+        let violations: f64 = viol.iter().sum();
         let worst_stop = worst.iter().fold(0.0f64, |m, &v| if v > m { v } else { m });
         let g2 = self.settings.reference_gain * self.settings.reference_gain;
         let level = self.cutoff_level;
@@ -1076,7 +1112,7 @@ impl MonteCarlo {
         }
         let gain = h2[self.ref_idx];
         RunResult {
-            pass: violations == 0,
+            pass: violations == 0.0,
             cut_lo_hz: cut_lo,
             cut_hi_hz: cut_hi,
             gain_db: 10.0 * gain.log10(),
