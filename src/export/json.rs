@@ -125,6 +125,7 @@ pub fn design_value(design: &Design) -> Value {
         "ripple_db": ripple,
         "order": syn.order,
         "order_from_mask": req.order == OrderChoice::FromMask,
+        "margin": req.margin.key(),
         "fc_hz": finite(syn.fc_hz),
         "bw_hz": syn.bw_hz.and_then(finite),
         "gain_db": req.gain_db,
