@@ -71,6 +71,7 @@ const KEYS: &[&str] = &[
     "adcbits",
     "fsignal",
     "title",
+    "margin",
     "zzz",
 ];
 
@@ -103,6 +104,9 @@ const VALUES: &[&str] = &[
     "bessel",
     "linkwitz-riley",
     "critical",
+    "split",
+    "pass",
+    "stop",
     "sk",
     "mfb",
     "e6",
