@@ -1362,8 +1362,11 @@ fn cascade_kernel_portable(
     out: &mut [f64],
 ) {
     for (xb, ob) in x.chunks_exact(LANES).zip(out.chunks_exact_mut(LANES)) {
-        let mut xv = [0.0; LANES];
-        xv.copy_from_slice(xb);
+        // A fixed-size view of the chunk: no copy, no bounds checks in the lane loops.
+        let xv: &[f64; LANES] = match xb.try_into() {
+            Ok(v) => v,
+            Err(_) => continue,
+        };
         let mut num = [1.0; LANES];
         let mut den = [1.0; LANES];
         for (k, (&dn, &dd)) in deg_n.iter().zip(deg_d).enumerate() {
