@@ -622,7 +622,7 @@ fn uniform_parts_and_per_part_overrides() {
 fn bad_study_settings_name_their_key() {
     let net = rc_lowpass(1e3, 1e-9);
     let check = |settings: MonteCarloSettings, key: &str| match MonteCarlo::from_stages(
-        &[net.clone()],
+        std::slice::from_ref(&net),
         &OpAmp::ideal(),
         None,
         settings,
