@@ -970,3 +970,235 @@ mod tests {
         });
     }
 }
+
+/// Characters kept as they are in a written link: letters, digits, `-._~` and the `,` and `:`
+/// that separate our lists (`fpass=2k,20k`, `set=R3:4k7`). Everything else is percent-encoded.
+const LINK_SAFE: &percent_encoding::AsciiSet = &percent_encoding::NON_ALPHANUMERIC
+    .remove(b'-')
+    .remove(b'.')
+    .remove(b'_')
+    .remove(b'~')
+    .remove(b',')
+    .remove(b':');
+
+/// A number as a link writes it: engineering notation when that reads back exactly, else the
+/// shortest decimal that does (`4700` → `4.7k`, `1e-9` → `1n`).
+fn number_text(value: f64) -> String {
+    if value.is_infinite() && value > 0.0 {
+        return "ideal".into();
+    }
+    // `u` rather than `µ` keeps written links plain ASCII.
+    let si = crate::units::format_si(value, 15).replace('µ', "u");
+    if parse_si(&si).ok() == Some(value) {
+        si
+    } else {
+        format!("{value}")
+    }
+}
+
+fn edge_text(edge: Edge) -> String {
+    match edge {
+        Edge::Single(f) => number_text(f),
+        Edge::Pair(lo, hi) => format!("{},{}", number_text(lo), number_text(hi)),
+    }
+}
+
+/// Writes a state as a query string (starting with `?v=1`) that [`parse`] reads back to the same
+/// state. Keys at their default are left out, so links stay short.
+pub fn to_query(state: &LinkState) -> String {
+    let default = LinkState::default();
+    let req = &state.requirement;
+    let mut pairs: Vec<(&str, String)> = vec![("v", FORMAT_VERSION.to_string())];
+    if let Some(title) = &state.title {
+        pairs.push(("title", title.clone()));
+    }
+    pairs.push(("resp", req.class.key().into()));
+    pairs.push(("family", req.family.key().into()));
+    if let Family::Chebyshev { ripple_db } = req.family {
+        pairs.push(("ripple", number_text(ripple_db)));
+    }
+    if let OrderChoice::Fixed(n) = req.order {
+        pairs.push(("order", n.to_string()));
+    }
+    if let Some(fc) = req.fc_hz {
+        pairs.push(("fc", number_text(fc)));
+    }
+    if let Some(bw) = req.bw_hz {
+        pairs.push(("bw", number_text(bw)));
+    }
+    if let Some(m) = &req.mask {
+        pairs.push(("fpass", edge_text(m.pass)));
+        pairs.push(("apass", number_text(m.apass_db)));
+        pairs.push(("fstop", edge_text(m.stop)));
+        pairs.push(("astop", number_text(m.astop_db)));
+    }
+    if req.margin != default.requirement.margin {
+        pairs.push(("margin", req.margin.key().into()));
+    }
+    if let Some(c) = &state.converter {
+        pairs.push(("fsample", number_text(c.sample_rate_hz)));
+        pairs.push(("adcbits", c.bits.to_string()));
+        pairs.push(("fsignal", number_text(c.signal_band_hz)));
+    }
+    if req.gain_db != 0.0 {
+        pairs.push(("gain", number_text(req.gain_db)));
+    }
+    let mut differs = |key: &'static str, same: bool, text: String| {
+        if !same {
+            pairs.push((key, text));
+        }
+    };
+    differs(
+        "topo",
+        state.topology == default.topology,
+        state.topology.key().into(),
+    );
+    differs(
+        "rser",
+        state.r_series == default.r_series,
+        state.r_series.key().into(),
+    );
+    differs(
+        "cser",
+        state.c_series == default.c_series,
+        state.c_series.key().into(),
+    );
+    differs(
+        "rtol",
+        state.rtol_pct == default.rtol_pct,
+        number_text(state.rtol_pct),
+    );
+    differs(
+        "ctol",
+        state.ctol_pct == default.ctol_pct,
+        number_text(state.ctol_pct),
+    );
+    let (op, op_default) = (&state.op_amp, &default.op_amp);
+    differs(
+        "gbw",
+        op.gbw_hz == op_default.gbw_hz,
+        number_text(op.gbw_hz),
+    );
+    differs("a0", op.a0_db == op_default.a0_db, number_text(op.a0_db));
+    differs(
+        "rout",
+        op.rout_ohm == op_default.rout_ohm,
+        number_text(op.rout_ohm),
+    );
+    differs(
+        "vnoise",
+        op.en_v_per_rthz == op_default.en_v_per_rthz,
+        number_text(op.en_v_per_rthz),
+    );
+    differs(
+        "inoise",
+        op.in_a_per_rthz == op_default.in_a_per_rthz,
+        number_text(op.in_a_per_rthz),
+    );
+    differs(
+        "slew",
+        op.slew_v_per_s == op_default.slew_v_per_s,
+        number_text(op.slew_v_per_s),
+    );
+    let optional = |v: Option<f64>| v.map(number_text).unwrap_or_default();
+    differs(
+        "rlevel",
+        state.r_level_ohm.is_none(),
+        optional(state.r_level_ohm),
+    );
+    differs("cratio", state.c_ratio.is_none(), optional(state.c_ratio));
+    differs("rratio", state.r_ratio.is_none(), optional(state.r_ratio));
+    let rounding = match state.rounding {
+        Rounding::Nearest => "nearest",
+        Rounding::Search => "search",
+    };
+    differs("round", state.rounding == default.rounding, rounding.into());
+    let list = |items: &[(String, f64)]| {
+        items
+            .iter()
+            .map(|(r, v)| format!("{r}:{}", number_text(*v)))
+            .collect::<Vec<_>>()
+            .join(",")
+    };
+    differs("set", state.overrides.is_empty(), list(&state.overrides));
+    differs(
+        "tolset",
+        state.tolerance_overrides.is_empty(),
+        list(&state.tolerance_overrides),
+    );
+    let stage_order = match &state.stage_order {
+        StageOrder::AscendingQ => "q-up".to_string(),
+        StageOrder::DescendingQ => "q-down".to_string(),
+        StageOrder::Explicit(n) => n
+            .iter()
+            .map(|i| i.to_string())
+            .collect::<Vec<_>>()
+            .join(","),
+    };
+    differs(
+        "stageorder",
+        state.stage_order == default.stage_order,
+        stage_order,
+    );
+    let study = &state.study;
+    differs(
+        "runs",
+        study.runs == default.study.runs,
+        study.runs.to_string(),
+    );
+    differs(
+        "seed",
+        study.seed == default.study.seed,
+        study.seed.to_string(),
+    );
+    let dist = match study.distribution {
+        Distribution::Gaussian => "gauss",
+        Distribution::Uniform => "uniform",
+    };
+    differs(
+        "dist",
+        study.distribution == default.study.distribution,
+        dist.into(),
+    );
+    differs(
+        "sigmas",
+        study.sigmas == default.study.sigmas,
+        number_text(study.sigmas),
+    );
+    let signal = &state.signal;
+    differs(
+        "vin",
+        signal.vin_pk == default.signal.vin_pk,
+        number_text(signal.vin_pk),
+    );
+    differs(
+        "swing",
+        signal.swing_pk == default.signal.swing_pk,
+        number_text(signal.swing_pk),
+    );
+    differs(
+        "drift",
+        signal.drift_pct == default.signal.drift_pct,
+        number_text(signal.drift_pct),
+    );
+    let band = |b: Option<(f64, f64)>| {
+        b.map(|(lo, hi)| format!("{},{}", number_text(lo), number_text(hi)))
+            .unwrap_or_default()
+    };
+    differs(
+        "noiseband",
+        signal.noise_band_hz.is_none(),
+        band(signal.noise_band_hz),
+    );
+    differs("span", state.span_hz.is_none(), band(state.span_hz));
+    let body: Vec<String> = pairs
+        .iter()
+        .map(|(k, v)| {
+            format!(
+                "{k}={}",
+                percent_encoding::utf8_percent_encode(v, LINK_SAFE)
+            )
+        })
+        .collect();
+    format!("?{}", body.join("&"))
+}

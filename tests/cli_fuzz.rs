@@ -253,3 +253,31 @@ fn markup_in_every_key_is_refused_or_ignored_never_echoed_as_markup() {
     let (code, _out, err) = run(&["design".to_string(), format!("?{link}")]);
     assert_eq!(code, 2, "{err}");
 }
+
+#[test]
+fn written_links_read_back_to_the_same_state() {
+    // link::to_query is the writer behind the page's address bar and the JSON's `link` field:
+    // whatever a valid link says must survive being written and read again.
+    let mut g = Gen(0xC0FF_EE00);
+    let mut n_checked = 0;
+    for _ in 0..20_000 {
+        let link = random_link(&mut g);
+        let report = rolloff::link::parse(&link);
+        if !report.errors.is_empty() {
+            continue;
+        }
+        let written = rolloff::link::to_query(&report.state);
+        let again = rolloff::link::parse(&written);
+        assert!(
+            again.errors.is_empty(),
+            "{link} → {written}: {:?}",
+            again.errors
+        );
+        assert_eq!(again.state, report.state, "{link} → {written}");
+        n_checked += 1;
+    }
+    assert!(
+        n_checked > 2000,
+        "only {n_checked} valid links were generated"
+    );
+}

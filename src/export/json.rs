@@ -119,6 +119,7 @@ pub fn design_value(design: &Design) -> Value {
     let op = &design.board.op_amp;
     json!({
         "format": FORMAT_VERSION,
+        "link": crate::link::to_query(&design.state),
         "title": design.state.title,
         "resp": req.class.key(),
         "family": req.family.key(),
