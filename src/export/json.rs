@@ -170,7 +170,31 @@ pub fn spread_json(design: &Design, summary: &Summary) -> String {
     to_text(&value)
 }
 
+/// Significant digits of every non-integer number in the JSON. Twelve is far beyond what any part
+/// or measurement carries, and rounding there makes the page's export (wasm's maths library) and
+/// the command line's (the native one) the same bytes, although the two differ in the last bits.
+pub const JSON_DIGITS: usize = 12;
+
+fn round_numbers(value: &mut Value) {
+    match value {
+        Value::Number(n) if n.is_f64() => {
+            if let Some(x) = n.as_f64() {
+                let rounded: f64 = format!("{:.*e}", JSON_DIGITS - 1, x).parse().unwrap_or(x);
+                if let Some(r) = serde_json::Number::from_f64(rounded) {
+                    *n = r;
+                }
+            }
+        }
+        Value::Array(items) => items.iter_mut().for_each(round_numbers),
+        Value::Object(map) => map.values_mut().for_each(round_numbers),
+        _ => {}
+    }
+}
+
 fn to_text(value: &Value) -> String {
+    let mut value = value.clone();
+    round_numbers(&mut value);
+    let value = &value;
     // serde_json writes non-finite floats as null already; pretty printing cannot fail on a Value.
     let mut text =
         serde_json::to_string_pretty(value).unwrap_or_else(|e| format!("{{\"error\": \"{e}\"}}"));
