@@ -350,6 +350,34 @@ fn multilinear_expansion_matches_a_fresh_fit() {
     assert!(n_checked > 500);
 }
 
+/// Identity: |P(jy)|² from the tolerance study's helper equals |P(jy)|² evaluated directly, for
+/// every length 1–9 (relative 1e-13).
+#[test]
+fn magnitude_squared_polynomial_is_the_squared_magnitude() {
+    let mut rng = Xoshiro256PlusPlus::seed_from_u64(5);
+    for len in 1..=9 {
+        let p: Vec<f64> = (0..len).map(|_| unit(&mut rng) - 0.3).collect();
+        let mut out = vec![0.0; len];
+        assert_eq!(magnitude_squared_into(&p, &mut out), len);
+        for y in [0.1, 0.7, 1.3, 4.0] {
+            let direct = rolloff::analysis::poly::Poly::new(p.clone())
+                .eval_c(Complex64::new(0.0, y))
+                .norm_sqr();
+            let via_x = out.iter().rev().fold(0.0, |a, &c| a * y * y + c);
+            let scale: f64 = p
+                .iter()
+                .enumerate()
+                .map(|(k, c)| c.abs() * y.powi(k as i32))
+                .sum::<f64>()
+                .powi(2);
+            assert!(
+                (via_x - direct).abs() <= 1e-13 * scale,
+                "len {len}, y {y}: {via_x} vs {direct}"
+            );
+        }
+    }
+}
+
 // ---------------------------------------------------------------------------------------------
 // Tolerance study.
 

@@ -585,6 +585,21 @@ impl FastFit {
 pub fn magnitude_squared_into(p: &[f64], out: &mut [f64]) -> usize {
     const MAXC: usize = 32;
     let len = p.len();
+    // The common sizes written out: |p0 + p1·jy + p2·(jy)² + p3·(jy)³|² =
+    // p0² + (p1² − 2·p0·p2)·x + (p2² − 2·p1·p3)·x² + p3²·x³.
+    if len == 4 && out.len() >= 4 {
+        out[0] = p[0] * p[0];
+        out[1] = p[1] * p[1] - 2.0 * p[0] * p[2];
+        out[2] = p[2] * p[2] - 2.0 * p[1] * p[3];
+        out[3] = p[3] * p[3];
+        return 4;
+    }
+    if len == 3 && out.len() >= 3 {
+        out[0] = p[0] * p[0];
+        out[1] = p[1] * p[1] - 2.0 * p[0] * p[2];
+        out[2] = p[2] * p[2];
+        return 3;
+    }
     // |P(jy)|² = E(−x)² + x·O(−x)² with E, O the even and odd parts (x = y²).
     let mut even = [0.0f64; MAXC];
     let mut odd = [0.0f64; MAXC];
