@@ -24,7 +24,7 @@ use rolloff::eseries::Series;
 use rolloff::netlist::{Part, PartKind, StageNetlist};
 use rolloff::opamp::OpAmp;
 use rolloff::sections::StageOrder;
-use rolloff::spec::{Edge, Family, Mask, OrderChoice, Requirement, ResponseClass};
+use rolloff::spec::{Edge, Family, MarginPlacement, Mask, OrderChoice, Requirement, ResponseClass};
 use rolloff::topology::Topology;
 use std::f64::consts::PI;
 

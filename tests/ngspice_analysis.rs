@@ -18,7 +18,7 @@ use rolloff::design::synthesize;
 use rolloff::export::spice::{self, AcSweep};
 use rolloff::opamp::OpAmp;
 use rolloff::sections::StageOrder;
-use rolloff::spec::{Family, OrderChoice, Requirement, ResponseClass};
+use rolloff::spec::{Family, MarginPlacement, OrderChoice, Requirement, ResponseClass};
 use rolloff::topology::Topology;
 use std::path::PathBuf;
 use std::process::Command;
