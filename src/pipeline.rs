@@ -82,7 +82,7 @@ pub fn compose(state: &LinkState) -> Result<Design, InputError> {
             Family::Chebyshev { ripple_db } => Some(ripple_db),
             _ => None,
         };
-        order::compare_families(state.requirement.class, mask, ripple)
+        family_comparison(state.requirement.class, mask, ripple)
     });
     let mut warnings = synthesis.warnings.clone();
     warnings.extend(board.warnings.iter().cloned());
@@ -100,6 +100,27 @@ pub fn compose(state: &LinkState) -> Result<Design, InputError> {
         span_hz,
         family_orders,
         warnings,
+    })
+}
+
+/// The family comparison for a mask, remembered for the last mask asked about: the page
+/// recomposes on every keystroke, and the comparison (a search over orders for three families)
+/// is most of the composer's time while the limits themselves rarely change.
+fn family_comparison(class: ResponseClass, mask: &Mask, ripple: Option<f64>) -> Vec<FamilyOrder> {
+    type Key = (ResponseClass, Mask, Option<f64>);
+    thread_local! {
+        static LAST: std::cell::RefCell<Option<(Key, Vec<FamilyOrder>)>> = const { std::cell::RefCell::new(None) };
+    }
+    let key: Key = (class, *mask, ripple);
+    LAST.with(|last| {
+        if let Some((k, rows)) = last.borrow().as_ref() {
+            if *k == key {
+                return rows.clone();
+            }
+        }
+        let rows = order::compare_families(class, mask, ripple);
+        *last.borrow_mut() = Some((key, rows.clone()));
+        rows
     })
 }
 

@@ -170,10 +170,10 @@ pub fn spread_json(design: &Design, summary: &Summary) -> String {
     to_text(&value)
 }
 
-/// Significant digits of every non-integer number in the JSON. Twelve is far beyond what any part
+/// Significant digits of every non-integer number in the JSON. Nine is far beyond what any part
 /// or measurement carries, and rounding there makes the page's export (wasm's maths library) and
 /// the command line's (the native one) the same bytes, although the two differ in the last bits.
-pub const JSON_DIGITS: usize = 12;
+pub const JSON_DIGITS: usize = 9;
 
 fn round_numbers(value: &mut Value) {
     match value {
