@@ -286,7 +286,7 @@ struct StageRun {
     nominal_w0: f64,
     nominal_q: f64,
     /// The nominal far real pole of a third-degree denominator (the op amp's), in u = s/ω_g;
-    /// each run finds it by Newton's iteration and splits off the filter's quadratic factor.
+    /// each run finds it by Halley's iteration and splits off the filter's quadratic factor.
     far_root_u: Option<f64>,
     /// Scratch for |N|², |D|².
     sq_n: Vec<f64>,
@@ -535,17 +535,19 @@ fn unit_lanes(n_stages: usize, width: usize) -> Vec<f64> {
 }
 
 /// The quadratic factor `z² + u·z + v` of the cubic `d` (ascending) that remains when its real
-/// root near `r0` is divided out: Newton's iteration for the root, then backward deflation
+/// root near `r0` is divided out: Halley's iteration for the root, then backward deflation
 /// (`v = −d0/(d3·r)`, `u = (v − d1/d3)/r`), which is the stable direction for a root larger than
 /// the others. `None` when the iteration fails or the factor is not a stable pair.
 pub(crate) fn split_cubic(d: &[f64], r0: f64) -> Option<(f64, f64)> {
     let lead = d[3];
     let (a0, a1, a2) = (d[0] / lead, d[1] / lead, d[2] / lead);
     let mut r = r0;
+    // Halley's iteration (cubic convergence): two or three steps from the nominal root.
     for _ in 0..40 {
         let p = ((r + a2) * r + a1) * r + a0;
         let dp = (3.0 * r + 2.0 * a2) * r + a1;
-        let step = p / dp;
+        let ddp = 6.0 * r + 2.0 * a2;
+        let step = 2.0 * p * dp / (2.0 * dp * dp - p * ddp);
         if !step.is_finite() {
             return None;
         }
@@ -1061,7 +1063,7 @@ impl MonteCarlo {
         {
             for l in 0..8 {
                 // A NaN fails both comparisons and so counts as a violation.
-                let inside = v[l] >= lo[l] && v[l] <= hi[l];
+                let inside = (v[l] >= lo[l]) & (v[l] <= hi[l]);
                 viol[l] += if inside { 0.0 } else { 1.0 };
                 let s = v[l] * w[l];
                 worst[l] = if s > worst[l] { s } else { worst[l] };

@@ -140,14 +140,28 @@ impl Multilinear {
         for j in 0..self.k {
             let rn = &self.a_num[j * n_terms..(j + 1) * n_terms];
             let rd = &self.a_den[j * n_terms..(j + 1) * n_terms];
-            let mut sn = 0.0;
-            let mut sd = 0.0;
-            for ((&cn, &cd), &m) in rn.iter().zip(rd).zip(&self.mono) {
-                sn += cn * m;
-                sd += cd * m;
+            // Eight partial sums break the dependency chain of the dot product (and let it
+            // vectorise); they are added in a fixed order, so the result does not depend on the
+            // platform.
+            let mut an = [0.0f64; 8];
+            let mut ad = [0.0f64; 8];
+            let chunks = rn
+                .chunks_exact(8)
+                .zip(rd.chunks_exact(8))
+                .zip(self.mono.chunks_exact(8));
+            for ((cn, cd), m) in chunks {
+                for l in 0..8 {
+                    an[l] += cn[l] * m[l];
+                    ad[l] += cd[l] * m[l];
+                }
             }
-            num_u[j] = sn;
-            den_u[j] = sd;
+            let tail = n_terms - n_terms % 8;
+            for i in tail..n_terms {
+                an[0] += rn[i] * self.mono[i];
+                ad[0] += rd[i] * self.mono[i];
+            }
+            num_u[j] = ((an[0] + an[1]) + (an[2] + an[3])) + ((an[4] + an[5]) + (an[6] + an[7]));
+            den_u[j] = ((ad[0] + ad[1]) + (ad[2] + ad[3])) + ((ad[4] + ad[5]) + (ad[6] + ad[7]));
         }
     }
 }
