@@ -17,7 +17,7 @@
 //! evaluated 32 frequencies at a time without branches (compiled for AVX-512 or AVX2 when the
 //! processor has them; the results are bit-identical on every path). The yield compares `|H|²`
 //! with the mask bounds in linear terms (no logarithms). Each stage's f0 and Q come from the
-//! dominant quadratic factor of its denominator (the op amp's far pole split off by Newton's
+//! dominant quadratic factor of its denominator (the op amp's far pole split off by Halley's
 //! iteration from the nominal one, or Bairstow's iteration for other shapes); each run's cutoff
 //! from the grid crossing refined by regula falsi (Illinois) to about 1e-11.
 //!
