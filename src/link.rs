@@ -987,6 +987,13 @@ fn number_text(value: f64) -> String {
     if value.is_infinite() && value > 0.0 {
         return "ideal".into();
     }
+    // Plain decimals read best between 1 m and 1 k (ripple=0.5, gain=20).
+    if (1e-3..1e3).contains(&value.abs()) {
+        let plain = format!("{value}");
+        if plain.len() <= 8 {
+            return plain;
+        }
+    }
     // `u` rather than `µ` keeps written links plain ASCII.
     let si = crate::units::format_si(value, 15).replace('µ', "u");
     if parse_si(&si).ok() == Some(value) {

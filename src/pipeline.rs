@@ -230,7 +230,9 @@ pub fn study_settings(design: &Design, n_points: usize) -> Result<MonteCarloSett
     let class = state.requirement.class;
     let passband_ref_hz = match class {
         ResponseClass::LowPass => 0.0,
-        ResponseClass::HighPass => design.synthesis.fc_hz * 1e3,
+        // A decade above the cutoff: in the passband, and well below where the op amp's
+        // gain-bandwidth starts to take gain away.
+        ResponseClass::HighPass => design.synthesis.fc_hz * 10.0,
         ResponseClass::BandPass => design.synthesis.fc_hz,
     };
     Ok(MonteCarloSettings {

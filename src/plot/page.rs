@@ -1413,7 +1413,7 @@ mod tests {
         };
         assert_eq!(values(&again), values(&model), "rebuilt link: {reopened}");
         assert!(
-            reopened.contains("R2%3A4.7k"),
+            reopened.contains("R2:4.7k"),
             "the override is kept: {reopened}"
         );
     }
