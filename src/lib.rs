@@ -30,4 +30,6 @@ pub mod transform;
 pub mod units;
 
 #[cfg(target_arch = "wasm32")]
+pub mod canvas;
+#[cfg(target_arch = "wasm32")]
 pub mod wasm;

@@ -414,10 +414,23 @@ impl DoubleDouble {
         (s, (a - (s - bb)) + (b - bb))
     }
 
-    /// Error-free product by fused multiply-add: `a·b = p + e` exactly.
+    /// Dekker's error-free product: `a·b = p + e` exactly (barring overflow), from Veltkamp's
+    /// split of each factor into two 26-bit halves. The same pair as `a.mul_add(b, −p)` gives,
+    /// without the fused multiply-add, which wasm and baseline x86-64 lack and emulate slowly.
     fn two_prod(a: f64, b: f64) -> (f64, f64) {
         let p = a * b;
-        (p, a.mul_add(b, -p))
+        let (a_hi, a_lo) = Self::split(a);
+        let (b_hi, b_lo) = Self::split(b);
+        let e = ((a_hi * b_hi - p) + a_hi * b_lo + a_lo * b_hi) + a_lo * b_lo;
+        (p, e)
+    }
+
+    /// Veltkamp's split: `x = hi + lo` exactly, each half with at most 26 significant bits.
+    fn split(x: f64) -> (f64, f64) {
+        const FACTOR: f64 = 134_217_729.0; // 2^27 + 1
+        let t = FACTOR * x;
+        let hi = t - (t - x);
+        (hi, x - hi)
     }
 
     fn normalize(s: f64, e: f64) -> Self {
@@ -572,6 +585,27 @@ fn bessel_delay_roots(order: usize) -> Vec<Complex64> {
 /// Bessel poles as groups, magnitude-normalized so that `|H(j1)|² = 1/2` (scipy
 /// `besselap(norm='mag')`).
 fn bessel_groups(order: usize) -> Vec<PoleGroup> {
+    // The roots depend on the order alone, and the family comparison asks for many orders on
+    // every edit of a mask: each order is computed once per thread and remembered.
+    thread_local! {
+        static KNOWN: std::cell::RefCell<Vec<Option<Vec<PoleGroup>>>> =
+            const { std::cell::RefCell::new(Vec::new()) };
+    }
+    KNOWN.with(|known| {
+        if let Some(Some(groups)) = known.borrow().get(order) {
+            return groups.clone();
+        }
+        let groups = bessel_groups_computed(order);
+        let mut known = known.borrow_mut();
+        if known.len() <= order {
+            known.resize(order + 1, None);
+        }
+        known[order] = Some(groups.clone());
+        groups
+    })
+}
+
+fn bessel_groups_computed(order: usize) -> Vec<PoleGroup> {
     let roots = bessel_delay_roots(order);
     let mut all: Vec<Complex64> = Vec::with_capacity(order);
     for r in &roots {
@@ -643,6 +677,21 @@ pub(crate) fn bisect_log_increasing(f: impl Fn(f64) -> f64) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn dekker_product_equals_the_fused_multiply_add() {
+        // Both give the exact rounding error of a·b (IEEE 754 arithmetic, common practice), so
+        // they must agree to the bit wherever nothing overflows or underflows.
+        let mut x = 0.123_456_789_f64;
+        for i in 0..10_000 {
+            x = (x * 3.987_654_321 + 0.271_828).fract();
+            let a = (x - 0.5) * 10f64.powi(i % 40 - 20);
+            let b = (0.75 - x) * 10f64.powi(17 - i % 35);
+            let (p, e) = DoubleDouble::two_prod(a, b);
+            assert_eq!(p, a * b);
+            assert_eq!(e.to_bits(), a.mul_add(b, -p).to_bits(), "{a} × {b}");
+        }
+    }
 
     #[test]
     fn reverse_bessel_recurrence_matches_coefficients() {

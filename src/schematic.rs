@@ -477,6 +477,25 @@ impl Pen {
     }
 }
 
+/// Renders the schematic of one stage as an SVG document of `width` × `height` pixels (reports
+/// and the native page benchmark).
+///
+/// # Errors
+/// [`PlotError`] when the SVG backend fails.
+pub fn render_svg(
+    net: &StageNetlist,
+    width: u32,
+    height: u32,
+    look: &Look,
+) -> Result<String, PlotError> {
+    let mut svg = String::new();
+    {
+        let mut backend = plotters::prelude::SVGBackend::with_string(&mut svg, (width, height));
+        draw(&mut backend, net, &[], look)?;
+    }
+    Ok(svg)
+}
+
 /// Draws the schematic of one stage onto `backend`. Parts whose reference is in `highlight` (the
 /// values typed over by the user) are drawn in the target colour.
 ///

@@ -38,6 +38,17 @@ fn to_js<T: Serialize>(value: &T) -> JsValue {
         .unwrap_or_else(|e| JsValue::from_str(&format!("serialization failed: {e}")))
 }
 
+/// A large value (the page's view model) as one JSON text read by the browser's `JSON.parse`:
+/// one call across the boundary instead of one per field and array element, which made the view
+/// the slowest part of an edit after the analyses themselves. Non-finite numbers become `null`
+/// either way.
+fn to_js_via_json<T: Serialize>(value: &T) -> JsValue {
+    match serde_json::to_string(value) {
+        Ok(text) => js_sys::JSON::parse(&text).unwrap_or_else(|_| to_js(value)),
+        Err(_) => to_js(value),
+    }
+}
+
 #[derive(Serialize)]
 struct Outcome<'a> {
     ok: bool,
@@ -91,7 +102,7 @@ pub fn evaluate(query: &str, accept_errors: bool) -> JsValue {
             });
         }
     }
-    to_js(&view)
+    to_js_via_json(&view)
 }
 
 /// Draws plot `kind` (`magnitude`, `phase`, … see [`PlotKind::key`]) of the design on screen onto
@@ -111,7 +122,7 @@ pub fn draw_plot(
         .ok_or_else(|| JsValue::from_str(&format!("unknown plot '{kind}'")))?;
     let figure = SHEET.with(|sheet| sheet.borrow().model.as_ref().map(|m| m.figure(kind)));
     let figure = figure.ok_or_else(|| JsValue::from_str("no design to draw yet"))?;
-    let mut backend = plotters_canvas::CanvasBackend::with_canvas_object(canvas)
+    let mut backend = crate::canvas::StyledCanvas::new(canvas)
         .ok_or_else(|| JsValue::from_str("the canvas has no 2D context"))?;
     plot::draw(&mut backend, &figure, &look(dark, dpr, compact))
         .map_err(|e| JsValue::from_str(&e.to_string()))
@@ -182,7 +193,7 @@ pub fn draw_schematic(
             .iter()
             .map(|(reference, _)| reference.clone())
             .collect();
-        let mut backend = plotters_canvas::CanvasBackend::with_canvas_object(canvas)
+        let mut backend = crate::canvas::StyledCanvas::new(canvas)
             .ok_or_else(|| JsValue::from_str("the canvas has no 2D context"))?;
         schematic::draw(&mut backend, netlist, &typed, &look(dark, dpr, false))
             .map(|_| ())

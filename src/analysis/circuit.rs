@@ -383,6 +383,7 @@ pub struct Solver {
     m: Vec<Complex64>,
     rhs: Vec<Complex64>,
     perm: Vec<usize>,
+    row_end: Vec<usize>,
 }
 
 impl Solver {
@@ -393,6 +394,7 @@ impl Solver {
             m: vec![Complex64::new(0.0, 0.0); n * n],
             rhs: vec![Complex64::new(0.0, 0.0); n],
             perm: (0..n).collect(),
+            row_end: Vec::with_capacity(n),
         }
     }
 
@@ -430,6 +432,19 @@ impl Solver {
         for (i, p) in self.perm.iter_mut().enumerate() {
             *p = i;
         }
+        // The last non-zero column of every row. A board is a chain of stages, so its matrix is
+        // banded and most of each row is zero: elimination touches only the columns up to a
+        // row's end (a row's end grows to the pivot row's end when it is eliminated). Skipped
+        // terms are exact zeros, so the result is the same to the bit as the dense loop's.
+        self.row_end.clear();
+        for r in 0..n {
+            let row = &self.m[r * n..(r + 1) * n];
+            let end = row
+                .iter()
+                .rposition(|v| v.re != 0.0 || v.im != 0.0)
+                .map_or(0, |c| c + 1);
+            self.row_end.push(end);
+        }
         for k in 0..n {
             // Partial pivoting by the largest |·|₁ in column k.
             let mut best = k;
@@ -453,27 +468,32 @@ impl Solver {
                     self.m.swap(k * n + c, best * n + c);
                 }
                 self.rhs.swap(k, best);
+                self.row_end.swap(k, best);
                 det = -det;
             }
             let pivot = self.m[k * n + k];
             det *= pivot;
             let inv = 1.0 / pivot;
+            let end_k = self.row_end[k].max(k + 1);
             for r in (k + 1)..n {
                 let factor = self.m[r * n + k] * inv;
                 if factor.re == 0.0 && factor.im == 0.0 {
                     continue;
                 }
-                for c in (k + 1)..n {
-                    let v = self.m[k * n + c];
-                    self.m[r * n + c] -= factor * v;
+                let (upper, lower) = self.m.split_at_mut(r * n);
+                let pivot_row = &upper[k * n + k + 1..k * n + end_k];
+                let row = &mut lower[k + 1..end_k];
+                for (dst, &v) in row.iter_mut().zip(pivot_row) {
+                    *dst -= factor * v;
                 }
+                self.row_end[r] = self.row_end[r].max(end_k);
                 let v = self.rhs[k];
                 self.rhs[r] -= factor * v;
             }
         }
         for k in (0..n).rev() {
             let mut acc = self.rhs[k];
-            for c in (k + 1)..n {
+            for c in (k + 1)..self.row_end[k].max(k + 1) {
                 acc -= self.m[k * n + c] * self.rhs[c];
             }
             self.rhs[k] = acc / self.m[k * n + k];

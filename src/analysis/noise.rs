@@ -10,7 +10,8 @@
 //!   its output stage, not a physical resistor, and is taken as noiseless.
 //!
 //! Method: the transimpedance from every source to the output at once, from one adjoint solve
-//! per frequency: with `M·x = J` the board's nodal equations, `V_out = yᵀ·J` where `Mᵀ·y = e_out`.
+//! per frequency: with `M·x = J` the board's nodal equations, `V_out = yᵀ·J` where `Mᵀ·y = e_out`
+//! (the signal gain, for the input-referred density, is `yᵀ·b` with `b` the input's drive).
 //! A current injected into node b is `y_b`; a voltage in an op amp's gain constraint is `y_row`.
 //! The board input is held at 0 V by its (ideal) source. The integrated noise is
 //! `√(∫ v²(f) df)` over the band, by composite Simpson's rule in ln f on at least 100 points per
@@ -207,11 +208,13 @@ pub fn stages_noise(
         }
     }
     let mut solver = Solver::new(compiled.n);
-    let mut fwd = Solver::new(compiled.n);
-    // Output power density of each source at frequency f, and |H(f)|.
+    let mut drive = vec![Complex64::new(0.0, 0.0); compiled.n];
+    // Output power density of each source at frequency f, and |H(f)|. The same adjoint solution
+    // gives the signal gain: with `M·x = b` driven by the board input, `V_out = yᵀ·b`.
     let mut eval = |f: f64, out: &mut Vec<f64>| -> Result<f64, AnalysisError> {
         let s = Complex64::new(0.0, 2.0 * PI * f);
-        solver.load(&assembled, s, Complex64::new(0.0, 0.0));
+        solver.load(&assembled, s, Complex64::new(1.0, 0.0));
+        drive.copy_from_slice(solver.rhs_mut());
         solver.transpose();
         for v in solver.rhs_mut().iter_mut() {
             *v = Complex64::new(0.0, 0.0);
@@ -229,9 +232,8 @@ pub fn stages_noise(
             let z: Complex64 = src.rows.iter().map(|&(r, sign)| y[r] * sign).sum();
             out.push(z.norm_sqr() * src.psd);
         }
-        fwd.load(&assembled, s, Complex64::new(1.0, 0.0));
-        fwd.solve();
-        Ok(fwd.solution()[compiled.output_col].norm())
+        let gain: Complex64 = y.iter().zip(&drive).map(|(a, b)| a * b).sum();
+        Ok(gain.norm())
     };
     // Curves.
     let n_f = settings.freqs_hz.len();
