@@ -105,6 +105,13 @@ pub fn evaluate(query: &str, accept_errors: bool) -> JsValue {
     to_js_via_json(&view)
 }
 
+/// Reads a link without composing its design: the view carries its bad values (`errors`), its
+/// ignored keys and `refused`, and no design. The design on screen is not changed.
+#[wasm_bindgen]
+pub fn check_link(query: &str) -> JsValue {
+    to_js(&page::check(query))
+}
+
 /// Draws plot `kind` (`magnitude`, `phase`, … see [`PlotKind::key`]) of the design on screen onto
 /// `canvas` (sized by the caller in device pixels).
 ///

@@ -489,35 +489,48 @@
   }
 
   /* Opens a link: loads what is valid; a field whose value was refused goes back to its default
-   * (the value the design used) and the refusal is listed in the notice. */
+   * (the value the design used) and the refusal is listed in the notice. The link is first only
+   * read (no design is made), then the form's link is composed once; only when that design
+   * cannot be made (a value valid alone but not with the rest) do the fields it names go back to
+   * their defaults for a second try. */
   function openQuery(search) {
     var params = new URLSearchParams(search);
     // The link as it came is read first, so that its unknown keys and refused values are known.
-    var view = engine.evaluate(params.toString(), true);
+    var view = engine.check_link(params.toString());
     if (view.refused) {
       params = new URLSearchParams();
     }
     applyQuery(params);
-    var reset = false;
-    view.errors.forEach(function (error) {
-      var target = fields().filter(function (e) { return e.name === error.key; });
-      target.forEach(function (e) {
-        if (e.type === 'radio') e.checked = e.defaultChecked;
-        else e.value = fieldDefault(e);
-        reset = true;
+    var refused = view.errors.slice();
+    function resetFields(errors) {
+      errors.forEach(function (error) {
+        var target = fields().filter(function (e) { return e.name === error.key; });
+        target.forEach(function (e) {
+          if (e.type === 'radio') e.checked = e.defaultChecked;
+          else e.value = fieldDefault(e);
+        });
+        if (error.key === 'set' || error.key.indexOf('set:') === 0) state.overrides = new Map();
       });
-      if (error.key === 'set' || error.key.indexOf('set:') === 0) { state.overrides = new Map(); reset = true; }
-    });
-    syncVisibility();
-    var query = readForm();
-    window.history.replaceState(null, '', window.location.pathname + '?' + query + window.location.hash);
-    var final = engine.evaluate(query, true);
-    state.lastQuery = query;
+    }
+    function compose() {
+      syncVisibility();
+      var query = readForm();
+      window.history.replaceState(null, '', window.location.pathname + '?' + query + window.location.hash);
+      state.lastQuery = query;
+      return engine.evaluate(query, true);
+    }
+    resetFields(refused);
+    var final = compose();
+    if (!final.committed && final.errors.length) {
+      resetFields(final.errors);
+      refused = refused.concat(final.errors);
+      final = compose();
+    }
     // What the opened link carried but the design does not use: its unknown keys and notes, and
     // every refused value (the field went back to its default).
     var notes = view.ignored.slice();
     final.ignored.forEach(function (n) { if (notes.indexOf(n) < 0) notes.push(n); });
-    view.errors.forEach(function (e) {
+    refused.forEach(function (e) {
       notes.push(e.key + ': ' + e.message + (view.refused ? ' — the link is not opened' : ' (the default is used)'));
     });
     render(final, false);

@@ -96,6 +96,37 @@ pub fn stages_levels(
             curve.push(20.0 * x[c].norm().log10());
         }
     }
+    from_curves(freqs_hz, curves, vin_pk, swing_pk)
+}
+
+/// The levels of a board from its stage curves already computed: `curves[k][i]` is stage k's
+/// output relative to the input in dB at `freqs_hz[i]` (the page's built sweep gives them on
+/// the way). Peak, peak output for `vin_pk` and headroom against `swing_pk` as in
+/// [`stages_levels`].
+///
+/// # Errors
+/// `vin` / `swing` when not positive and finite; `points` when a curve's length differs from the
+/// frequency list's or the list is empty.
+pub fn from_curves(
+    freqs_hz: &[f64],
+    curves: Vec<Vec<f64>>,
+    vin_pk: f64,
+    swing_pk: f64,
+) -> Result<Levels, AnalysisError> {
+    for (key, v) in [("vin", vin_pk), ("swing", swing_pk)] {
+        if !(v.is_finite() && v > 0.0) {
+            return Err(AnalysisError::Input(InputError::new(
+                key,
+                format!("{v} V; accepted a positive amplitude"),
+            )));
+        }
+    }
+    if freqs_hz.is_empty() || curves.iter().any(|c| c.len() != freqs_hz.len()) {
+        return Err(AnalysisError::Input(InputError::new(
+            "points",
+            "each stage curve needs one level per frequency, at least one",
+        )));
+    }
     let mut warnings = Vec::new();
     let stages_out = curves
         .into_iter()

@@ -221,6 +221,17 @@ pub fn evaluate(query: &str) -> Evaluation {
     }
 }
 
+/// Reads `query` without composing: its bad values, its ignored keys and whether it is refused
+/// as a whole (what the page needs to know before it fills the form from a link). The view has
+/// no design (`committed: false`).
+pub fn check(query: &str) -> View {
+    let report = link::parse(query);
+    let errors: Vec<FieldError> = report.errors.iter().map(FieldError::from).collect();
+    let mut view = empty_view(errors, ignored_of(&report));
+    view.refused = report.refused();
+    view
+}
+
 fn empty_view(errors: Vec<FieldError>, ignored: Vec<String>) -> View {
     View {
         committed: false,
@@ -440,7 +451,7 @@ pub fn compose_timed(state: &LinkState, watch: &mut Stopwatch) -> Result<PageMod
     watch.lap("ideal sweep");
     let (built, level_curves) = built_sweep(board, &freqs)?;
     watch.lap("built sweep");
-    let analyses = Analyses::of(&design, &freqs, watch);
+    let analyses = Analyses::of(&design, &freqs, &level_curves, watch);
     let to_hz = |p: &Complex64| p / (2.0 * PI);
     let data = PlotData {
         class: Some(synthesis.class),
@@ -514,7 +525,12 @@ struct Analyses {
 }
 
 impl Analyses {
-    fn of(design: &Design, freqs: &[f64], watch: &mut Stopwatch) -> Analyses {
+    fn of(
+        design: &Design,
+        freqs: &[f64],
+        built_levels: &[Vec<f64>],
+        watch: &mut Stopwatch,
+    ) -> Analyses {
         use crate::analysis::{levels, noise, opamp_need, poles, sensitivity, timeresp};
         let board = &design.board;
         let state = &design.state;
@@ -580,7 +596,19 @@ impl Analyses {
 
         // Stage levels and headroom against the op amp's swing.
         let (mut level_curves, mut headroom) = (Vec::new(), Vec::new());
-        match levels::board_levels(board, freqs, state.signal.vin_pk, state.signal.swing_pk) {
+        // The built sweep solved the whole board at these frequencies already: its stage
+        // outputs are the levels.
+        let levels = if built_levels.len() == board.stages.len() {
+            levels::from_curves(
+                freqs,
+                built_levels.to_vec(),
+                state.signal.vin_pk,
+                state.signal.swing_pk,
+            )
+        } else {
+            levels::board_levels(board, freqs, state.signal.vin_pk, state.signal.swing_pk)
+        };
+        match levels {
             Ok(report) => {
                 for stage in &report.stages {
                     level_curves.push(Curve {
