@@ -10,7 +10,8 @@
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use rolloff::analysis::montecarlo::{
-    CutoffDefinition, MonteCarlo, MonteCarloSettings, PartDistribution, Tolerances,
+    CutoffDefinition, MonteCarlo, MonteCarloSettings, PartDistribution, RunLanes, Tolerances,
+    RUN_LANES,
 };
 use rolloff::board::{Board, BuildChoices};
 use rolloff::sections::{Section, SectionKind};
@@ -90,33 +91,42 @@ fn bench(c: &mut Criterion) {
     group.finish();
 
     // The per-frequency kernel alone (what each run spends on its 200 points once its stage
-    // polynomials are formed): |N|² of degree 2 and |D|² of degree 3 in x per stage, as the
-    // Sallen-Key stages with the op-amp model have.
-    let n_eval = 224; // 200 points and the mask/reference points, padded to the lane count
+    // polynomials are formed), for one batch of RUN_LANES runs side by side: |N|² of degree 2
+    // and |D|² of degree 3 in x per stage, as the Sallen-Key stages with the op-amp model have.
+    let n_eval = 203; // 200 points, the two mask edges and the passband reference
+    let lanes = RUN_LANES;
     let x: Vec<f64> = (0..n_eval)
         .map(|i| 10f64.powf(-4.0 + 8.0 * i as f64 / n_eval as f64))
         .collect();
     let width = 4;
-    let coef_n: Vec<f64> = (0..n_stages * width)
+    let coef_n: Vec<RunLanes> = (0..n_stages * width)
         .map(|i| {
-            if i % width < 3 {
-                1.0 / (1 + i) as f64
-            } else {
-                0.0
+            let mut row = [0.0; RUN_LANES];
+            for (l, v) in row.iter_mut().enumerate() {
+                if i % width < 3 {
+                    *v = 1.0 / (1 + i + l) as f64;
+                }
             }
+            row
         })
         .collect();
-    let coef_d: Vec<f64> = (0..n_stages * width)
-        .map(|i| 0.5 + (i % 7) as f64)
+    let coef_d: Vec<RunLanes> = (0..n_stages * width)
+        .map(|i| {
+            let mut row = [0.0; RUN_LANES];
+            for (l, v) in row.iter_mut().enumerate() {
+                *v = 0.5 + ((i + l) % 7) as f64;
+            }
+            row
+        })
         .collect();
     let deg_n = vec![2usize; n_stages];
     let deg_d = vec![3usize; n_stages];
-    let mut out = vec![0.0; n_eval];
+    let mut out = vec![[0.0; RUN_LANES]; n_eval];
     let mut kernel = c.benchmark_group("cascade_kernel_only");
-    kernel.throughput(Throughput::Elements((n_eval * n_stages) as u64));
-    kernel.bench_function("4 stages, 224 points", |b| {
+    kernel.throughput(Throughput::Elements((n_eval * n_stages * lanes) as u64));
+    kernel.bench_function("4 stages, 203 points, 8 runs in lanes", |b| {
         b.iter(|| {
-            rolloff::analysis::montecarlo::cascade_kernel(
+            rolloff::analysis::montecarlo::cascade_kernel_lanes(
                 criterion::black_box(&x),
                 &coef_n,
                 &coef_d,
@@ -125,7 +135,7 @@ fn bench(c: &mut Criterion) {
                 width,
                 &mut out,
             );
-            criterion::black_box(out[0])
+            criterion::black_box(out[0][0])
         })
     });
     kernel.finish();

@@ -170,6 +170,31 @@ impl FastFit {
         }
     }
 
+    /// [`FastFit::trim`] for `L` runs side by side: `poly[j][l]` is coefficient `j` (in u) of run
+    /// `l`. Each lane is trimmed exactly as the scalar version trims that run.
+    #[inline(always)]
+    pub fn trim_lanes<const L: usize>(&self, poly: &mut [[f64; L]]) {
+        let mut max = [0.0f64; L];
+        for (c, &t) in poly.iter().zip(&self.to_z) {
+            for l in 0..L {
+                max[l] = max[l].max((c[l] * t).abs());
+            }
+        }
+        let mut thr = [0.0f64; L];
+        for l in 0..L {
+            thr[l] = super::poly::FIT_TRIM_REL * max[l];
+        }
+        for (c, &t) in poly.iter_mut().zip(&self.to_z) {
+            for l in 0..L {
+                c[l] = if (c[l] * t).abs() <= thr[l] {
+                    0.0
+                } else {
+                    c[l]
+                };
+            }
+        }
+    }
+
     /// Number of coefficients K.
     pub fn n_coef(&self) -> usize {
         self.k
@@ -640,5 +665,96 @@ pub fn magnitude_squared_into(p: &[f64], out: &mut [f64]) -> usize {
         }
     }
     out[..len].copy_from_slice(&acc[..len]);
+    len
+}
+
+/// [`magnitude_squared_into`] for `L` polynomials side by side: `p[i][l]` is coefficient `i` of
+/// polynomial `l`; `out` (length ≥ `p.len()`) receives the coefficients in x the same way. Every
+/// lane does the operations of the scalar function in the same order, so each lane's result is
+/// bit-identical to it. Returns the number of coefficients written.
+#[inline(always)]
+pub fn magnitude_squared_lanes<const L: usize>(p: &[[f64; L]], out: &mut [[f64; L]]) -> usize {
+    const MAXC: usize = 16;
+    let len = p.len();
+    if out.len() < len {
+        return 0;
+    }
+    match p {
+        [p0] => {
+            for l in 0..L {
+                out[0][l] = p0[l] * p0[l];
+            }
+        }
+        [p0, p1] => {
+            for l in 0..L {
+                out[0][l] = p0[l] * p0[l];
+                out[1][l] = p1[l] * p1[l];
+            }
+        }
+        [p0, p1, p2] => {
+            for l in 0..L {
+                out[0][l] = p0[l] * p0[l];
+                out[1][l] = p1[l] * p1[l] - 2.0 * p0[l] * p2[l];
+                out[2][l] = p2[l] * p2[l];
+            }
+        }
+        [p0, p1, p2, p3] => {
+            for l in 0..L {
+                out[0][l] = p0[l] * p0[l];
+                out[1][l] = p1[l] * p1[l] - 2.0 * p0[l] * p2[l];
+                out[2][l] = p2[l] * p2[l] - 2.0 * p1[l] * p3[l];
+                out[3][l] = p3[l] * p3[l];
+            }
+        }
+        _ if len <= 2 * MAXC => {
+            // The even/odd products of the scalar function, lane by lane.
+            let mut even = [[0.0f64; L]; MAXC];
+            let mut odd = [[0.0f64; L]; MAXC];
+            let (mut n_even, mut n_odd) = (0, 0);
+            for (i, c) in p.iter().enumerate() {
+                let negate = (i / 2) % 2 != 0;
+                let dst = if i % 2 == 0 {
+                    n_even = i / 2 + 1;
+                    &mut even[i / 2]
+                } else {
+                    n_odd = i / 2 + 1;
+                    &mut odd[i / 2]
+                };
+                for l in 0..L {
+                    dst[l] = if negate { -c[l] } else { c[l] };
+                }
+            }
+            let mut acc = [[0.0f64; L]; 2 * MAXC];
+            for a in 0..n_even {
+                for b in 0..n_even {
+                    for l in 0..L {
+                        acc[a + b][l] += even[a][l] * even[b][l];
+                    }
+                }
+            }
+            for a in 0..n_odd {
+                for b in 0..n_odd {
+                    for l in 0..L {
+                        acc[a + b + 1][l] += odd[a][l] * odd[b][l];
+                    }
+                }
+            }
+            out[..len].copy_from_slice(&acc[..len]);
+        }
+        _ => {
+            // Beyond any stage Rolloff builds: lane by lane through the scalar function.
+            let mut poly = vec![0.0; len];
+            let mut sq = vec![0.0; len];
+            for l in 0..L {
+                for (dst, c) in poly.iter_mut().zip(p) {
+                    *dst = c[l];
+                }
+                magnitude_squared_into(&poly, &mut sq);
+                for (o, &v) in out.iter_mut().zip(&sq) {
+                    o[l] = v;
+                }
+            }
+        }
+    }
     len
 }

@@ -9,17 +9,28 @@
 //! into chunks. A drawn factor below 0.001 (a Gaussian tail beyond 1/t standard deviations) is
 //! clamped to 0.001 so that no part value turns non-positive.
 //!
+//! Runs are worked in batches of [`RUN_LANES`] (eight) side by side, one run per SIMD lane: run
+//! `r` sits in lane `r mod 8`, so a batch is the runs of one aligned group of eight that fall in
+//! the current [`MonteCarlo::step`] (a step that starts or ends inside a group fills only some
+//! lanes; the others are computed and thrown away). The draws stay in the order above — a batch
+//! draws its runs one after another — and every lane does the same operations in the same order
+//! as a run worked alone, so a run's numbers do not depend on its batch or on how the runs are
+//! cut into steps. The batch work is compiled three times, for AVX-512F, for AVX2 and as plain
+//! code (wasm, other processors), and chosen at run time; each operation is a single IEEE
+//! operation per lane (Rust does not fuse multiplies and adds), so all three give bit-identical
+//! results.
+//!
 //! Each stage's transfer function `N(s)/D(s)` (op amp included, see [`super::poly`]) is formed once
 //! per run — from its precomputed multilinear expansion in the part admittances
-//! ([`super::multilinear`], exact), or for large stages by nodal solves at a few real frequencies
-//! ([`super::fastfit`]). `|N(jω)|²` and `|D(jω)|²` are then polynomials in `x = (ω/ω_g)²`, and the
-//! response of the cascade at each frequency is a few multiply-adds per stage and one division,
-//! evaluated 32 frequencies at a time without branches (compiled for AVX-512 or AVX2 when the
-//! processor has them; the results are bit-identical on every path). The yield compares `|H|²`
-//! with the mask bounds in linear terms (no logarithms). Each stage's f0 and Q come from the
-//! dominant quadratic factor of its denominator (the op amp's far pole split off by Halley's
-//! iteration from the nominal one, or Bairstow's iteration for other shapes); each run's cutoff
-//! from the grid crossing refined by regula falsi (Illinois) to about 1e-11.
+//! ([`super::multilinear`], exact, eight runs at a time), or for large stages by nodal solves at a
+//! few real frequencies ([`super::fastfit`], run by run). `|N(jω)|²` and `|D(jω)|²` are then
+//! polynomials in `x = (ω/ω_g)²`, and the response of the cascade at each frequency is a few
+//! multiply-adds per stage and one division, for the eight runs of a batch at once without
+//! branches. The yield compares `|H|²` with the mask bounds in linear terms (no logarithms). Each
+//! stage's f0 and Q come from the dominant quadratic factor of its denominator (the op amp's far
+//! pole split off by Halley's iteration from the nominal one, in lanes, or Bairstow's iteration
+//! for other shapes, run by run); each run's cutoff from the grid crossing refined by regula falsi
+//! (Illinois) to about 1e-11, in lanes, each lane stopping when it has converged.
 //!
 //! Approximation: the cascade is the product of the stage transfer functions, each stage driven
 //! by an ideal source and unloaded. The loading of an op-amp output (its `Rout`, reduced by the
@@ -29,15 +40,19 @@
 //! up to 100 kHz; it grows towards the op amp's GBW, where the loop gain is gone.
 //!
 //! Memory: the envelope's percentiles are exact order statistics of every run's |H|², kept in
-//! single precision: 4 bytes × runs × frequencies (16 MB for 20,000 runs of 200 points).
+//! single precision: 4 bytes × runs × frequencies (16 MB for 20,000 runs of 200 points), in
+//! blocks of sixteen runs stored frequency-major (a batch writes eight contiguous values per
+//! frequency). The envelope's min and max are kept per lane (2 × 8 × 8 bytes per frequency) and
+//! reduced at the end.
 //!
 //! The mask is checked at the frequencies of the grid that lie in the passband or the stopband and
 //! at the band edges themselves: the passband needs `|H|² ≥ G²·10^(−apass/10)`, the stopband
 //! `|H|² ≤ G²·10^(−astop/10)`, with G the reference gain (the design's passband gain). Gain above G
 //! in the passband is not a violation: the mask states only the attenuation allowed.
 
+use self::lanes::Lane8;
 use super::circuit::{AnalysisError, Assembled, Compiled};
-use super::fastfit::{magnitude_squared_into, FastFit};
+use super::fastfit::{magnitude_squared_lanes, FastFit};
 use super::multilinear::Multilinear;
 use super::poly::{FitWork, Poly};
 use crate::board::Board;
@@ -60,8 +75,13 @@ pub const MAX_TOLERANCE_PCT: f64 = 50.0;
 /// so a run writes one line per frequency into an L1-resident block, and a frequency is read as
 /// one line per block.
 const SAMPLE_BLOCK: usize = 16;
-/// Frequencies evaluated together in the branch-free kernel.
-const LANES: usize = 32;
+/// Runs evaluated side by side in the lanes of the batch work (eight f64 are one AVX-512
+/// register, two AVX2 registers, four wasm SIMD registers).
+pub const RUN_LANES: usize = 8;
+/// One f64 per run of a batch.
+pub type RunLanes = [f64; RUN_LANES];
+// A lane group of a batch must lie inside one sample block.
+const _: () = assert!(SAMPLE_BLOCK % RUN_LANES == 0);
 
 /// How part values are spread around their nominal value.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
@@ -288,9 +308,46 @@ struct StageRun {
     /// The nominal far real pole of a third-degree denominator (the op amp's), in u = s/ω_g;
     /// each run finds it by Halley's iteration and splits off the filter's quadratic factor.
     far_root_u: Option<f64>,
-    /// Scratch for |N|², |D|².
-    sq_n: Vec<f64>,
-    sq_d: Vec<f64>,
+    /// N and D in u of the batch's runs (K coefficients, one lane per run).
+    num_l: Vec<RunLanes>,
+    den_l: Vec<RunLanes>,
+    /// |N|², |D|² in x of the batch's runs.
+    sq_n: Vec<RunLanes>,
+    sq_d: Vec<RunLanes>,
+    /// Monomials of the multilinear expansion, one lane per run.
+    mono: Vec<RunLanes>,
+    /// One run's part values, for the per-run solve of stages without an expansion.
+    scalar_values: Vec<f64>,
+}
+
+/// The runs of one batch, side by side in [`RUN_LANES`] lanes (lane `l` holds the run whose index
+/// is `l` modulo [`RUN_LANES`]), and the working values they share.
+#[derive(Debug, Clone)]
+struct Batch {
+    /// Lanes holding a run of this batch.
+    active: [bool; RUN_LANES],
+    /// Lanes whose run hit a singular matrix (a failed board without readings).
+    failed: [bool; RUN_LANES],
+    /// Part values of every part of the board in draw order, one lane per run.
+    values: Vec<RunLanes>,
+    /// Per-stage |N|², |D|² coefficients in x, `width` each, normalized by max |D|² coefficient.
+    coef_n: Vec<RunLanes>,
+    coef_d: Vec<RunLanes>,
+    /// Per stage, the highest degree of |N|², |D|² over the batch's runs (the Horner loops start
+    /// there; a higher coefficient of a lane is zero, which Horner's rule passes exactly).
+    deg_n: Vec<usize>,
+    deg_d: Vec<usize>,
+    /// Per stage, the dominant factor's f0 (rad/s) and Q.
+    w0: Vec<RunLanes>,
+    q: Vec<RunLanes>,
+    /// |H|² at every evaluation point.
+    h2: Vec<RunLanes>,
+    /// The readings of each lane's run.
+    pass: [bool; RUN_LANES],
+    cut_lo_hz: RunLanes,
+    cut_hi_hz: RunLanes,
+    gain_db: RunLanes,
+    atten_db: RunLanes,
 }
 
 /// A tolerance study in progress. Create with [`MonteCarlo::new`], advance with
@@ -304,9 +361,10 @@ pub struct MonteCarlo {
     nominal_values: Vec<f64>,
     /// Relative spread `t` per part (0 for op amps), see the module docs.
     spread: Vec<f64>,
-    is_drawn: Vec<bool>,
-    values: Vec<f64>,
-    /// Evaluation frequencies: grid, then edge points and the passband reference, padded to LANES.
+    /// Indices of the parts that get a draw (every resistor and capacitor), in draw order.
+    drawn: Vec<usize>,
+    /// Evaluation frequencies as `x = (f/f_g)²`: grid, then edge points and the passband
+    /// reference.
     x_eval: Vec<f64>,
     n_grid: usize,
     ref_idx: usize,
@@ -316,25 +374,19 @@ pub struct MonteCarlo {
     has_mask: bool,
     has_stop: bool,
     w_g: f64,
-    /// Per-stage |N|², |D|² coefficients in x, `width` each, and their degrees.
-    coef_n: Vec<f64>,
-    /// The same coefficients, four stages side by side (`[(chunk·width + j)·4 + lane]`), padded
-    /// with unit stages, for the scalar evaluations of the cutoff search.
-    lane_n: Vec<f64>,
-    lane_d: Vec<f64>,
-    coef_d: Vec<f64>,
-    deg_n: Vec<usize>,
-    deg_d: Vec<usize>,
     width: usize,
-    h2: Vec<f64>,
+    /// Which compiled form of the batch work runs on this processor.
+    isa: Isa,
+    batch: Batch,
     // Accumulated results.
     done: usize,
     n_pass: usize,
-    env_min: Vec<f64>,
-    env_max: Vec<f64>,
+    /// Smallest and largest |H|² per grid point, per lane (reduced over the lanes at the end).
+    env_min: Vec<RunLanes>,
+    env_max: Vec<RunLanes>,
     /// |H|² of every run in single precision, in blocks of [`SAMPLE_BLOCK`] runs stored
-    /// frequency-major inside each block: writing a run stays within one block (cache-resident)
-    /// and reading one frequency over all runs reads contiguous stretches.
+    /// frequency-major inside each block: a batch writes contiguous lanes per frequency, and
+    /// reading one frequency over all runs reads contiguous stretches.
     samples_h2: Vec<f32>,
     cut_lo: Vec<f64>,
     cut_hi: Vec<f64>,
@@ -350,9 +402,37 @@ pub struct MonteCarlo {
     cutoff_level: f64,
 }
 
+/// Instruction-set extension the batch work is compiled for (chosen at run time; every path gives
+/// bit-identical results).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Isa {
+    /// Plain code (wasm, other processors).
+    Portable,
+    /// x86-64 with AVX2.
+    #[cfg(target_arch = "x86_64")]
+    Avx2,
+    /// x86-64 with AVX-512F.
+    #[cfg(target_arch = "x86_64")]
+    Avx512,
+}
+
+impl Isa {
+    fn detect() -> Isa {
+        #[cfg(target_arch = "x86_64")]
+        {
+            if std::arch::is_x86_feature_detected!("avx512f") {
+                return Isa::Avx512;
+            }
+            if std::arch::is_x86_feature_detected!("avx2") {
+                return Isa::Avx2;
+            }
+        }
+        Isa::Portable
+    }
+}
+
 #[derive(Debug, Clone, Copy, Default)]
 struct RunResult {
-    pass: bool,
     cut_lo_hz: f64,
     cut_hi_hz: f64,
     gain_db: f64,
@@ -521,46 +601,6 @@ pub(crate) fn bairstow(d: &[f64], u: f64, v: f64) -> Option<(f64, f64)> {
     (b[1].abs() + b[0].abs() <= 1e-12 * scale).then_some((-r, -s))
 }
 
-/// Lane tables for `n_stages` stages of `width` coefficients, every lane a unit stage (constant
-/// 1) until a stage's coefficients are written into it.
-fn unit_lanes(n_stages: usize, width: usize) -> Vec<f64> {
-    let n_chunks = n_stages.div_ceil(4);
-    let mut v = vec![0.0; n_chunks * width * 4];
-    for chunk in 0..n_chunks {
-        for lane in 0..4 {
-            v[chunk * width * 4 + lane] = 1.0;
-        }
-    }
-    v
-}
-
-/// The quadratic factor `z² + u·z + v` of the cubic `d` (ascending) that remains when its real
-/// root near `r0` is divided out: Halley's iteration for the root, then backward deflation
-/// (`v = −d0/(d3·r)`, `u = (v − d1/d3)/r`), which is the stable direction for a root larger than
-/// the others. `None` when the iteration fails or the factor is not a stable pair.
-pub(crate) fn split_cubic(d: &[f64], r0: f64) -> Option<(f64, f64)> {
-    let lead = d[3];
-    let (a0, a1, a2) = (d[0] / lead, d[1] / lead, d[2] / lead);
-    let mut r = r0;
-    // Halley's iteration (cubic convergence): two or three steps from the nominal root.
-    for _ in 0..40 {
-        let p = ((r + a2) * r + a1) * r + a0;
-        let dp = (3.0 * r + 2.0 * a2) * r + a1;
-        let ddp = 6.0 * r + 2.0 * a2;
-        let step = 2.0 * p * dp / (2.0 * dp * dp - p * ddp);
-        if !step.is_finite() {
-            return None;
-        }
-        r -= step;
-        if step.abs() <= 1e-15 * r.abs() {
-            let v = -a0 / r;
-            let u = (v - a1) / r;
-            return (v > 0.0 && u > 0.0 && u.is_finite()).then_some((u, v));
-        }
-    }
-    None
-}
-
 /// The dominant real root of `d` near `z0` by Newton's iteration.
 pub(crate) fn newton_real(d: &[f64], mut z: f64) -> Option<f64> {
     let scale = d.iter().fold(0.0f64, |m, x| m.max(x.abs()));
@@ -674,7 +714,7 @@ impl MonteCarlo {
         let w_g = 2.0 * PI * f_g;
         let mut nominal_values = Vec::new();
         let mut spread = Vec::new();
-        let mut is_drawn = Vec::new();
+        let mut drawn = Vec::new();
         let mut runs = Vec::with_capacity(stages.len());
         let ideal = OpAmp::ideal();
         for net in stages {
@@ -693,13 +733,15 @@ impl MonteCarlo {
                     .iter()
                     .find(|o| o.reference == p.reference && p.kind != PartKind::OpAmp)
                     .map_or(pct, |o| o.pct);
+                if p.kind != PartKind::OpAmp {
+                    drawn.push(nominal_values.len());
+                }
                 nominal_values.push(if p.kind == PartKind::OpAmp {
                     0.0
                 } else {
                     p.value
                 });
                 spread.push(pct / 100.0 / divisor);
-                is_drawn.push(p.kind != PartKind::OpAmp);
             }
             // The stage order from the ideal-op-amp denominator; the nominal dominant factor from
             // the real one.
@@ -732,14 +774,19 @@ impl MonteCarlo {
                 })
                 .flatten();
             let multi = Multilinear::new(&compiled, net, rat.scale_rad_s, w_g);
+            let n_terms = multi.as_ref().map_or(0, Multilinear::n_terms);
             runs.push(StageRun {
                 multi,
                 far_root_u,
                 compiled,
                 assembled,
                 fast,
-                sq_n: vec![0.0; k],
-                sq_d: vec![0.0; k],
+                num_l: vec![[0.0; RUN_LANES]; k],
+                den_l: vec![[0.0; RUN_LANES]; k],
+                sq_n: vec![[0.0; RUN_LANES]; k],
+                sq_d: vec![[0.0; RUN_LANES]; k],
+                mono: vec![[0.0; RUN_LANES]; n_terms],
+                scalar_values: vec![0.0; net.parts.len()],
                 value_offset,
                 n_parts: net.parts.len(),
                 order,
@@ -774,13 +821,6 @@ impl MonteCarlo {
             stop_weight.push(if in_stop { 1.0 } else { 0.0 });
             has_stop |= in_stop;
         }
-        // Pad to a multiple of LANES by repeating the last point with no mask bounds.
-        while eval_f.len() % LANES != 0 {
-            eval_f.push(settings.passband_ref_hz);
-            lo_bound.push(0.0);
-            hi_bound.push(f64::INFINITY);
-            stop_weight.push(0.0);
-        }
         let x_eval: Vec<f64> = eval_f.iter().map(|fr| (fr / f_g) * (fr / f_g)).collect();
         let width = runs
             .iter()
@@ -790,12 +830,28 @@ impl MonteCarlo {
         let n_stages = runs.len();
         let n_eval = x_eval.len();
         let runs_total = settings.runs;
+        let batch = Batch {
+            active: [false; RUN_LANES],
+            failed: [false; RUN_LANES],
+            values: nominal_values.iter().map(|&v| [v; RUN_LANES]).collect(),
+            coef_n: vec![[0.0; RUN_LANES]; n_stages * width],
+            coef_d: vec![[0.0; RUN_LANES]; n_stages * width],
+            deg_n: vec![0; n_stages],
+            deg_d: vec![0; n_stages],
+            w0: vec![[f64::NAN; RUN_LANES]; n_stages],
+            q: vec![[f64::NAN; RUN_LANES]; n_stages],
+            h2: vec![[0.0; RUN_LANES]; n_eval],
+            pass: [false; RUN_LANES],
+            cut_lo_hz: [f64::NAN; RUN_LANES],
+            cut_hi_hz: [f64::NAN; RUN_LANES],
+            gain_db: [f64::NAN; RUN_LANES],
+            atten_db: [f64::NAN; RUN_LANES],
+        };
         let mut mc = MonteCarlo {
             rng: Xoshiro256PlusPlus::seed_from_u64(settings.seed),
-            values: nominal_values.clone(),
             nominal_values,
             spread,
-            is_drawn,
+            drawn,
             stages: runs,
             x_eval,
             n_grid,
@@ -806,18 +862,13 @@ impl MonteCarlo {
             has_mask: mask.is_some(),
             has_stop,
             w_g,
-            coef_n: vec![0.0; n_stages * width],
-            lane_n: unit_lanes(n_stages, width),
-            lane_d: unit_lanes(n_stages, width),
-            coef_d: vec![0.0; n_stages * width],
-            deg_n: vec![0; n_stages],
-            deg_d: vec![0; n_stages],
             width,
-            h2: vec![0.0; n_eval],
+            isa: Isa::detect(),
+            batch,
             done: 0,
             n_pass: 0,
-            env_min: vec![f64::INFINITY; n_grid],
-            env_max: vec![0.0; n_grid],
+            env_min: vec![[f64::INFINITY; RUN_LANES]; n_grid],
+            env_max: vec![[0.0; RUN_LANES]; n_grid],
             samples_h2: Vec::new(),
             cut_lo: Vec::with_capacity(runs_total),
             cut_hi: Vec::with_capacity(runs_total),
@@ -835,31 +886,34 @@ impl MonteCarlo {
             },
             settings,
         };
-        // The nominal board: the same path with every factor 1.
-        let mut f0q = vec![(0.0, 0.0); n_stages];
-        mc.form_stages(&mut f0q)?;
-        mc.kernel();
-        mc.nominal = mc.evaluate_run();
-        mc.nominal_h2 = mc.h2[..n_grid].to_vec();
-        mc.nominal_f0q = f0q;
+        // The nominal board: the same path, in lane 0, with every part at its nominal value.
+        mc.batch.active[0] = true;
+        mc.run_batch(None);
+        if mc.batch.failed[0] {
+            return Err(AnalysisError::Singular("a stage of a tolerance run".into()));
+        }
+        let b = &mc.batch;
+        mc.nominal = RunResult {
+            cut_lo_hz: b.cut_lo_hz[0],
+            cut_hi_hz: b.cut_hi_hz[0],
+            gain_db: b.gain_db[0],
+            atten_db: b.atten_db[0],
+        };
+        mc.nominal_h2 = b.h2[..n_grid].iter().map(|v| v[0]).collect();
+        mc.nominal_f0q = b.w0.iter().zip(&b.q).map(|(w, q)| (w[0], q[0])).collect();
         Ok(mc)
     }
 
     /// Runs up to `n_runs` more runs (fewer at the end) and reports the progress.
     pub fn step(&mut self, n_runs: usize) -> Progress {
         let todo = n_runs.min(self.settings.runs - self.done);
-        let n_stages = self.stages.len();
-        let mut f0q = vec![(0.0, 0.0); n_stages];
-        for _ in 0..todo {
-            self.draw();
-            if self.form_stages(&mut f0q).is_err() {
-                // A run whose matrices turn singular counts as a failed board with no readings.
-                self.record_failed_run();
-                continue;
-            }
-            self.kernel();
-            let r = self.evaluate_run();
-            self.record(r, &f0q);
+        let end = self.done + todo;
+        while self.done < end {
+            // Lane = run index modulo the lane count, so a batch never straddles a lane group
+            // and the runs of a group land side by side in the sample table.
+            let first = self.done % RUN_LANES;
+            let last = (first + (end - self.done)).min(RUN_LANES);
+            self.run_batch(Some((first, last)));
         }
         self.progress()
     }
@@ -877,203 +931,239 @@ impl MonteCarlo {
         self.done >= self.settings.runs
     }
 
-    fn draw(&mut self) {
-        for i in 0..self.values.len() {
-            if !self.is_drawn[i] {
-                continue;
-            }
-            let z: f64 = match self.settings.tolerances.distribution {
-                PartDistribution::Gaussian { .. } => StandardNormal.sample(&mut self.rng),
-                PartDistribution::Uniform => {
-                    let u: f64 = rand_distr::Standard.sample(&mut self.rng);
-                    2.0 * u - 1.0
-                }
-            };
-            let factor = (1.0 + self.spread[i] * z).max(1e-3);
-            self.values[i] = self.nominal_values[i] * factor;
+    /// One batch: with `Some((first, last))` the runs of lanes `first..last` are drawn, analysed
+    /// and recorded; with `None` the batch's current values are analysed for the lanes already
+    /// marked active (the nominal board), and nothing is recorded.
+    fn run_batch(&mut self, lanes: Option<(usize, usize)>) {
+        match self.isa {
+            #[cfg(target_arch = "x86_64")]
+            // SAFETY: `Isa::detect` chose AVX-512 only when the processor supports AVX-512F.
+            Isa::Avx512 => unsafe { self.run_batch_avx512(lanes) },
+            #[cfg(target_arch = "x86_64")]
+            // SAFETY: `Isa::detect` chose AVX2 only when the processor supports AVX2.
+            Isa::Avx2 => unsafe { self.run_batch_avx2(lanes) },
+            _ => self.run_batch_body::<lanes::Plain>(lanes),
         }
     }
 
-    /// Fits every stage for the current values, fills the |N|², |D|² coefficient table and each
-    /// stage's (f0 rad/s, Q).
-    fn form_stages(&mut self, f0q: &mut [(f64, f64)]) -> Result<(), AnalysisError> {
-        let width = self.width;
-        let w_g = self.w_g;
-        for (k, st) in self.stages.iter_mut().enumerate() {
-            let vals = &self.values[st.value_offset..st.value_offset + st.n_parts];
-            if let Some(ml) = st.multi.as_mut() {
-                ml.evaluate(vals, &mut st.fast.num_u, &mut st.fast.den_u);
-            } else if !st.fast.fit_values(&st.compiled, vals, &mut st.assembled) {
-                return Err(AnalysisError::Singular("a stage of a tolerance run".into()));
-            }
-            st.fast.trim();
-            let d = &st.fast.den_u;
-            // Dominant factor, in u = s/ω_g, from the nominal one.
-            let cubic = match (st.far_root_u, d.iter().rposition(|&c| c != 0.0)) {
-                (Some(r0), Some(3)) if st.order == 2 => split_cubic(d, r0),
-                _ => None,
-            };
-            let (w0, q) = if let Some((u, v)) = cubic {
-                (v.sqrt() * w_g, v.sqrt() / u)
-            } else if st.order == 2 {
-                let u0 = st.nominal_w0 / st.nominal_q / w_g;
-                let v0 = (st.nominal_w0 / w_g) * (st.nominal_w0 / w_g);
-                match bairstow(d, u0, v0) {
-                    Some((u, v)) if v > 0.0 && u != 0.0 => (v.sqrt() * w_g, v.sqrt() / u),
-                    _ => {
-                        self.fallbacks += 1;
-                        let poles: Vec<Complex64> = Poly::new(d.clone())
-                            .roots()
-                            .unwrap_or_default()
-                            .into_iter()
-                            .map(|p| p * w_g)
-                            .collect();
-                        dominant_w0_q(&poles, 2).unwrap_or((f64::NAN, f64::NAN))
+    #[cfg(target_arch = "x86_64")]
+    #[target_feature(enable = "avx512f")]
+    unsafe fn run_batch_avx512(&mut self, lanes: Option<(usize, usize)>) {
+        self.run_batch_body::<lanes::Avx512>(lanes);
+    }
+
+    #[cfg(target_arch = "x86_64")]
+    #[target_feature(enable = "avx2")]
+    unsafe fn run_batch_avx2(&mut self, lanes: Option<(usize, usize)>) {
+        self.run_batch_body::<lanes::Avx2>(lanes);
+    }
+
+    /// The batch work, inlined into each compiled form of [`MonteCarlo::run_batch`].
+    #[inline(always)]
+    fn run_batch_body<V: Lane8>(&mut self, lanes: Option<(usize, usize)>) {
+        if let Some((first, last)) = lanes {
+            self.draw(first, last);
+        }
+        self.form_batch::<V>();
+        cascade_kernel_lanes_body::<V>(
+            &self.x_eval,
+            &self.batch.coef_n,
+            &self.batch.coef_d,
+            &self.batch.deg_n,
+            &self.batch.deg_d,
+            self.width,
+            &mut self.batch.h2,
+        );
+        self.evaluate_batch::<V>();
+        if let Some((first, last)) = lanes {
+            self.record_batch::<V>(first, last);
+        }
+    }
+
+    /// Draws the runs of lanes `first..last`, run after run, part after part (the order of the
+    /// module docs). The other lanes keep values of earlier runs: they are analysed (the lanes are
+    /// computed together) but not recorded.
+    #[inline(always)]
+    fn draw(&mut self, first: usize, last: usize) {
+        let b = &mut self.batch;
+        for l in 0..RUN_LANES {
+            b.active[l] = (first..last).contains(&l);
+            b.failed[l] = false;
+        }
+        let rng = &mut self.rng;
+        // The distribution is chosen once per batch, not per draw.
+        match self.settings.tolerances.distribution {
+            PartDistribution::Gaussian { .. } => {
+                for l in first..last {
+                    for &i in &self.drawn {
+                        let z: f64 = StandardNormal.sample(rng);
+                        let factor = (1.0 + self.spread[i] * z).max(1e-3);
+                        b.values[i][l] = self.nominal_values[i] * factor;
                     }
                 }
-            } else if st.order == 1 {
-                match newton_real(d, -st.nominal_w0 / w_g) {
-                    Some(z) => (-z * w_g, f64::NAN),
-                    None => (f64::NAN, f64::NAN),
+            }
+            PartDistribution::Uniform => {
+                for l in first..last {
+                    for &i in &self.drawn {
+                        let u: f64 = rand_distr::Standard.sample(rng);
+                        let z = 2.0 * u - 1.0;
+                        let factor = (1.0 + self.spread[i] * z).max(1e-3);
+                        b.values[i][l] = self.nominal_values[i] * factor;
+                    }
                 }
+            }
+        }
+    }
+
+    /// Forms every stage for the batch's values: N and D, the dominant factor's f0 and Q, and the
+    /// |N|², |D|² coefficient table of the kernel.
+    #[inline(always)]
+    fn form_batch<V: Lane8>(&mut self) {
+        let MonteCarlo {
+            stages,
+            batch,
+            fallbacks,
+            w_g,
+            width,
+            ..
+        } = self;
+        let (w_g, width) = (*w_g, *width);
+        for (k, st) in stages.iter_mut().enumerate() {
+            let vals = &batch.values[st.value_offset..st.value_offset + st.n_parts];
+            if let Some(ml) = st.multi.as_ref() {
+                ml.evaluate_lanes::<V>(vals, &mut st.mono, &mut st.num_l, &mut st.den_l);
             } else {
-                (f64::NAN, f64::NAN)
-            };
-            f0q[k] = (w0, q);
-            let n_coef = magnitude_squared_into(&st.fast.num_u, &mut st.sq_n);
-            magnitude_squared_into(&st.fast.den_u, &mut st.sq_d);
-            let norm = st.sq_d.iter().fold(0.0f64, |m, v| m.max(v.abs()));
-            let norm = if norm > 0.0 { 1.0 / norm } else { 1.0 };
-            let row_n = &mut self.coef_n[k * width..(k + 1) * width];
-            let row_d = &mut self.coef_d[k * width..(k + 1) * width];
-            row_n.iter_mut().for_each(|v| *v = 0.0);
-            row_d.iter_mut().for_each(|v| *v = 0.0);
-            for j in 0..n_coef.min(width) {
-                row_n[j] = st.sq_n[j] * norm;
-                row_d[j] = st.sq_d[j] * norm;
+                for l in 0..RUN_LANES {
+                    if !batch.active[l] || batch.failed[l] {
+                        continue;
+                    }
+                    for (dst, v) in st.scalar_values.iter_mut().zip(vals) {
+                        *dst = v[l];
+                    }
+                    if !st
+                        .fast
+                        .fit_values(&st.compiled, &st.scalar_values, &mut st.assembled)
+                    {
+                        batch.failed[l] = true;
+                        continue;
+                    }
+                    for ((n, d), (&nu, &du)) in st
+                        .num_l
+                        .iter_mut()
+                        .zip(st.den_l.iter_mut())
+                        .zip(st.fast.num_u.iter().zip(&st.fast.den_u))
+                    {
+                        n[l] = nu;
+                        d[l] = du;
+                    }
+                }
             }
-            self.deg_n[k] = row_n.iter().rposition(|&v| v != 0.0).unwrap_or(0);
-            self.deg_d[k] = row_d.iter().rposition(|&v| v != 0.0).unwrap_or(0);
-            let (chunk, lane) = (k / 4, k % 4);
-            for j in 0..width {
-                self.lane_n[(chunk * width + j) * 4 + lane] = row_n[j];
-                self.lane_d[(chunk * width + j) * 4 + lane] = row_d[j];
+            st.fast.trim_lanes(&mut st.num_l);
+            st.fast.trim_lanes(&mut st.den_l);
+            let live = live_lanes(batch);
+            // Dominant factor, in u = s/ω_g, from the nominal one: the cubic split in lanes where
+            // the denominator is a cubic, the scalar iterations elsewhere.
+            let mut w0 = [f64::NAN; RUN_LANES];
+            let mut q = [f64::NAN; RUN_LANES];
+            let mut solved = [false; RUN_LANES];
+            if let (2, Some(r0), true) = (st.order, st.far_root_u, st.den_l.len() >= 4) {
+                let mut cubic = [false; RUN_LANES];
+                for (l, c) in cubic.iter_mut().enumerate() {
+                    *c = live[l] && st.den_l.iter().rposition(|v| v[l] != 0.0) == Some(3);
+                }
+                let (u, v, ok) = split_cubic_lanes(&st.den_l, r0, cubic);
+                for l in 0..RUN_LANES {
+                    if ok[l] {
+                        w0[l] = v[l].sqrt() * w_g;
+                        q[l] = v[l].sqrt() / u[l];
+                        solved[l] = true;
+                    }
+                }
             }
+            for l in 0..RUN_LANES {
+                if solved[l] || !live[l] || st.order == 0 {
+                    continue;
+                }
+                let d: Vec<f64> = st.den_l.iter().map(|v| v[l]).collect();
+                (w0[l], q[l]) = if st.order == 2 {
+                    let u0 = st.nominal_w0 / st.nominal_q / w_g;
+                    let v0 = (st.nominal_w0 / w_g) * (st.nominal_w0 / w_g);
+                    match bairstow(&d, u0, v0) {
+                        Some((u, v)) if v > 0.0 && u != 0.0 => (v.sqrt() * w_g, v.sqrt() / u),
+                        _ => {
+                            *fallbacks += 1;
+                            let poles: Vec<Complex64> = Poly::new(d)
+                                .roots()
+                                .unwrap_or_default()
+                                .into_iter()
+                                .map(|p| p * w_g)
+                                .collect();
+                            dominant_w0_q(&poles, 2).unwrap_or((f64::NAN, f64::NAN))
+                        }
+                    }
+                } else {
+                    match newton_real(&d, -st.nominal_w0 / w_g) {
+                        Some(z) => (-z * w_g, f64::NAN),
+                        None => (f64::NAN, f64::NAN),
+                    }
+                };
+            }
+            batch.w0[k] = w0;
+            batch.q[k] = q;
+            let n_coef = magnitude_squared_lanes(&st.num_l, &mut st.sq_n);
+            magnitude_squared_lanes(&st.den_l, &mut st.sq_d);
+            let mut norm = [0.0f64; RUN_LANES];
+            for c in &st.sq_d {
+                for l in 0..RUN_LANES {
+                    norm[l] = norm[l].max(c[l].abs());
+                }
+            }
+            for v in norm.iter_mut() {
+                *v = if *v > 0.0 { 1.0 / *v } else { 1.0 };
+            }
+            let n_used = n_coef.min(width);
+            let row_n = &mut batch.coef_n[k * width..(k + 1) * width];
+            let row_d = &mut batch.coef_d[k * width..(k + 1) * width];
+            for (j, (rn, rd)) in row_n.iter_mut().zip(row_d.iter_mut()).enumerate() {
+                if j < n_used {
+                    for l in 0..RUN_LANES {
+                        rn[l] = st.sq_n[j][l] * norm[l];
+                        rd[l] = st.sq_d[j][l] * norm[l];
+                    }
+                } else {
+                    *rn = [0.0; RUN_LANES];
+                    *rd = [0.0; RUN_LANES];
+                }
+            }
+            batch.deg_n[k] = batch_degree(row_n, &live);
+            batch.deg_d[k] = batch_degree(row_d, &live);
         }
-        Ok(())
     }
 
-    /// |H|² of the cascade at every evaluation point: the branch-free kernel.
-    fn kernel(&mut self) {
-        cascade_kernel(
-            &self.x_eval,
-            &self.coef_n,
-            &self.coef_d,
-            &self.deg_n,
-            &self.deg_d,
-            self.width,
-            &mut self.h2,
-        );
-    }
-
-    /// |H|² of the current run's cascade at `x = (f/f_g)²` (scalar path for the cutoff search):
-    /// four stages at a time in the lanes of small arrays.
-    fn h2_x(&self, x: f64) -> f64 {
-        let w = self.width;
-        let mut num = 1.0;
-        let mut den = 1.0;
-        for (cn, cd) in self
-            .lane_n
-            .chunks_exact(4 * w)
-            .zip(self.lane_d.chunks_exact(4 * w))
+    /// Yield, cutoffs, passband gain and stopband attenuation of the batch's runs from their |H|².
+    #[inline(always)]
+    fn evaluate_batch<V: Lane8>(&mut self) {
+        let level = V::splat(self.cutoff_level);
+        let n_grid = self.n_grid;
+        let b = &self.batch;
+        let live = live_lanes(b);
+        // Yield: linear comparisons only, without branches.
+        let (zero, one) = (V::splat(0.0), V::splat(1.0));
+        let mut viol = zero;
+        let mut worst = zero;
+        for (((v, &lo), &hi), &w) in
+            b.h2.iter()
+                .zip(&self.lo_bound)
+                .zip(&self.hi_bound)
+                .zip(&self.stop_weight)
         {
-            let mut pn = [0.0f64; 4];
-            let mut pd = [0.0f64; 4];
-            for j in (0..w).rev() {
-                for l in 0..4 {
-                    pn[l] = pn[l] * x + cn[j * 4 + l];
-                    pd[l] = pd[l] * x + cd[j * 4 + l];
-                }
-            }
-            num *= (pn[0] * pn[1]) * (pn[2] * pn[3]);
-            den *= (pd[0] * pd[1]) * (pd[2] * pd[3]);
+            let v = V::load(v);
+            // A NaN fails both comparisons and so counts as a violation.
+            let inside = V::and(v.ge(V::splat(lo)), v.le(V::splat(hi)));
+            viol = viol.add(V::select(inside, zero, one));
+            worst = v.mul(V::splat(w)).max_keep(worst);
         }
-        num / den
-    }
-
-    /// The crossing of `level` between grid points `i` and `j` (|H|² on either side of it), to a
-    /// relative accuracy of about 1e-11 in frequency: the Illinois variant of regula falsi on
-    /// `|H|²/level − 1` over `x = (f/f_g)²` (smooth there, and no exponentials per step).
-    fn refine_crossing(&self, i: usize, j: usize, level: f64) -> f64 {
-        let xs = &self.x_eval;
-        let inv = 1.0 / level;
-        let g = |x: f64| self.h2_x(x) * inv - 1.0;
-        let (mut a, mut b) = (xs[i], xs[j]);
-        let (mut ga, mut gb) = (g(a), g(b));
-        let fg = self.w_g / (2.0 * PI);
-        if !(ga.is_finite() && gb.is_finite()) || ga * gb > 0.0 {
-            return f64::NAN;
-        }
-        if ga == 0.0 {
-            return fg * a.sqrt();
-        }
-        let mut side = 0i32;
-        let mut c = a;
-        for _ in 0..100 {
-            let c_new = (a * gb - b * ga) / (gb - ga);
-            let converged = (c_new - c).abs() <= 2e-11 * c_new.abs();
-            c = c_new;
-            let gc = g(c);
-            if !gc.is_finite() {
-                return f64::NAN;
-            }
-            if gc == 0.0 || converged {
-                break;
-            }
-            if gc * gb > 0.0 {
-                b = c;
-                gb = gc;
-                if side == -1 {
-                    ga *= 0.5;
-                }
-                side = -1;
-            } else {
-                a = c;
-                ga = gc;
-                if side == 1 {
-                    gb *= 0.5;
-                }
-                side = 1;
-            }
-        }
-        fg * c.sqrt()
-    }
-
-    fn evaluate_run(&self) -> RunResult {
-        let h2 = &self.h2;
-        // Yield: linear comparisons only, accumulated without branches in eight lanes (the
-        // evaluation arrays are padded to a multiple of the kernel's lane count).
-        let mut viol = [0.0f64; 8];
-        let mut worst = [0.0f64; 8];
-        for (((v, lo), hi), w) in h2
-            .chunks_exact(8)
-            .zip(self.lo_bound.chunks_exact(8))
-            .zip(self.hi_bound.chunks_exact(8))
-            .zip(self.stop_weight.chunks_exact(8))
-        {
-            for l in 0..8 {
-                // A NaN fails both comparisons and so counts as a violation.
-                let inside = (v[l] >= lo[l]) & (v[l] <= hi[l]);
-                viol[l] += if inside { 0.0 } else { 1.0 };
-                let s = v[l] * w[l];
-                worst[l] = if s > worst[l] { s } else { worst[l] };
-            }
-        }
-        let violations: f64 = viol.iter().sum();
-        let worst_stop = worst.iter().fold(0.0f64, |m, &v| if v > m { v } else { m });
-        let g2 = self.settings.reference_gain * self.settings.reference_gain;
-        let level = self.cutoff_level;
-        let grid = &h2[..self.n_grid];
+        let grid = &b.h2[..n_grid];
         let want_upper = matches!(
             self.settings.class,
             ResponseClass::LowPass | ResponseClass::BandPass
@@ -1082,107 +1172,260 @@ impl MonteCarlo {
             self.settings.class,
             ResponseClass::HighPass | ResponseClass::BandPass
         );
-        let mut cut_hi = f64::NAN;
+        // Grid indices are carried as f64 lanes (exact), −1 for none.
+        let mut cut_hi = [f64::NAN; RUN_LANES];
         if want_upper {
             // Upper edge: the highest grid point still at or above the level, then the next one.
-            if let Some(i) = grid.iter().rposition(|&v| v >= level) {
-                if i + 1 < grid.len() {
-                    cut_hi = self.refine_crossing(i, i + 1, level);
+            let mut last = V::splat(-1.0);
+            for (i, v) in grid.iter().enumerate() {
+                last = V::select(V::load(v).ge(level), V::splat(i as f64), last);
+            }
+            let last = index_of::<V>(last);
+            let mut a = [1.0; RUN_LANES];
+            let mut bx = [1.0; RUN_LANES];
+            let mut go = [false; RUN_LANES];
+            for l in 0..RUN_LANES {
+                if let (true, Some(i)) = (live[l], last[l]) {
+                    if i + 1 < n_grid {
+                        a[l] = self.x_eval[i];
+                        bx[l] = self.x_eval[i + 1];
+                        go[l] = true;
+                    }
                 }
             }
+            cut_hi = self.refine_crossing_lanes::<V>(a, bx, go);
         }
-        let mut cut_lo = f64::NAN;
+        let mut cut_lo = [f64::NAN; RUN_LANES];
         if want_lower {
-            let search_end = if want_upper {
-                // Band-pass: the lower edge lies below the peak.
-                grid.iter()
-                    .enumerate()
-                    .fold(
-                        (0, 0.0),
-                        |(bi, bv), (i, &v)| if v > bv { (i, v) } else { (bi, bv) },
-                    )
-                    .0
-                    + 1
-            } else {
-                grid.len()
-            };
-            if let Some(i) = grid[..search_end].iter().position(|&v| v >= level) {
-                if i > 0 {
-                    cut_lo = self.refine_crossing(i - 1, i, level);
+            let mut end = V::splat(n_grid as f64);
+            if want_upper {
+                // Band-pass: the lower edge lies below the (first) peak.
+                let mut bi = zero;
+                let mut bv = zero;
+                for (i, v) in grid.iter().enumerate() {
+                    let v = V::load(v);
+                    let higher = bv.lt(v);
+                    bi = V::select(higher, V::splat(i as f64), bi);
+                    bv = V::select(higher, v, bv);
+                }
+                end = bi.add(one);
+            }
+            // The first grid point at or above the level below the end.
+            let mut first = V::splat(-1.0);
+            for (i, v) in grid.iter().enumerate().rev() {
+                let at = V::splat(i as f64);
+                let hit = V::and(V::load(v).ge(level), at.lt(end));
+                first = V::select(hit, at, first);
+            }
+            let first = index_of::<V>(first);
+            let mut a = [1.0; RUN_LANES];
+            let mut bx = [1.0; RUN_LANES];
+            let mut go = [false; RUN_LANES];
+            for l in 0..RUN_LANES {
+                if let (true, Some(i)) = (live[l], first[l]) {
+                    if i > 0 {
+                        a[l] = self.x_eval[i - 1];
+                        bx[l] = self.x_eval[i];
+                        go[l] = true;
+                    }
                 }
             }
+            cut_lo = self.refine_crossing_lanes::<V>(a, bx, go);
         }
-        let gain = h2[self.ref_idx];
-        RunResult {
-            pass: violations == 0.0,
-            cut_lo_hz: cut_lo,
-            cut_hi_hz: cut_hi,
-            gain_db: 10.0 * gain.log10(),
-            atten_db: if self.has_stop {
-                10.0 * (g2 / worst_stop).log10()
-            } else {
-                f64::NAN
-            },
+        let g2 = self.settings.reference_gain * self.settings.reference_gain;
+        let gain =
+            b.h2.get(self.ref_idx)
+                .copied()
+                .unwrap_or([f64::NAN; RUN_LANES]);
+        let has_stop = self.has_stop;
+        let (mut viol_l, mut worst_l) = ([0.0; RUN_LANES], [0.0; RUN_LANES]);
+        viol.store(&mut viol_l);
+        worst.store(&mut worst_l);
+        let b = &mut self.batch;
+        for l in 0..RUN_LANES {
+            b.pass[l] = viol_l[l] == 0.0;
+            b.cut_lo_hz[l] = cut_lo[l];
+            b.cut_hi_hz[l] = cut_hi[l];
+            if live[l] {
+                b.gain_db[l] = 10.0 * gain[l].log10();
+                b.atten_db[l] = if has_stop {
+                    10.0 * (g2 / worst_l[l]).log10()
+                } else {
+                    f64::NAN
+                };
+            }
         }
     }
 
-    fn record(&mut self, r: RunResult, f0q: &[(f64, f64)]) {
-        let grid = &self.h2[..self.n_grid];
-        for ((mn, mx), &v) in self
+    /// The crossing of `level` between `a[l]` and `b[l]` (values of `x = (f/f_g)²` with |H|² on
+    /// either side of it) for every lane with `go[l]`, in Hz (NaN elsewhere), to a relative
+    /// accuracy of about 1e-11 in frequency: the Illinois variant of regula falsi on
+    /// `|H|²/level − 1` over x, with `level` the cutoff level (smooth there, and no exponentials per step). The lanes iterate
+    /// together, each one frozen once it has converged, so each lane's result is the one a
+    /// scalar iteration of that run gives.
+    #[inline(always)]
+    fn refine_crossing_lanes<V: Lane8>(
+        &self,
+        mut a: RunLanes,
+        mut b: RunLanes,
+        go: [bool; RUN_LANES],
+    ) -> RunLanes {
+        let inv = V::splat(1.0 / self.cutoff_level);
+        let fg = self.w_g / (2.0 * PI);
+        let mut out = [f64::NAN; RUN_LANES];
+        if !go.iter().any(|&v| v) {
+            return out;
+        }
+        let mut ga = self.level_gap::<V>(&a, inv);
+        let mut gb = self.level_gap::<V>(&b, inv);
+        let mut live = go;
+        for l in 0..RUN_LANES {
+            if !live[l] {
+                continue;
+            }
+            if !(ga[l].is_finite() && gb[l].is_finite()) || ga[l] * gb[l] > 0.0 {
+                live[l] = false;
+            } else if ga[l] == 0.0 {
+                out[l] = fg * a[l].sqrt();
+                live[l] = false;
+            }
+        }
+        let mut side = [0i32; RUN_LANES];
+        let mut c = a;
+        for _ in 0..100 {
+            if !live.iter().any(|&v| v) {
+                break;
+            }
+            let mut converged = [false; RUN_LANES];
+            for l in 0..RUN_LANES {
+                let c_new = (a[l] * gb[l] - b[l] * ga[l]) / (gb[l] - ga[l]);
+                converged[l] = (c_new - c[l]).abs() <= 2e-11 * c_new.abs();
+                c[l] = if live[l] { c_new } else { c[l] };
+            }
+            let gc = self.level_gap::<V>(&c, inv);
+            for l in 0..RUN_LANES {
+                if !live[l] {
+                    continue;
+                }
+                if !gc[l].is_finite() {
+                    live[l] = false;
+                } else if gc[l] == 0.0 || converged[l] {
+                    out[l] = fg * c[l].sqrt();
+                    live[l] = false;
+                } else if gc[l] * gb[l] > 0.0 {
+                    b[l] = c[l];
+                    gb[l] = gc[l];
+                    if side[l] == -1 {
+                        ga[l] *= 0.5;
+                    }
+                    side[l] = -1;
+                } else {
+                    a[l] = c[l];
+                    ga[l] = gc[l];
+                    if side[l] == 1 {
+                        gb[l] *= 0.5;
+                    }
+                    side[l] = 1;
+                }
+            }
+        }
+        for l in 0..RUN_LANES {
+            if live[l] {
+                out[l] = fg * c[l].sqrt();
+            }
+        }
+        out
+    }
+
+    /// `|H|²·inv − 1` of the batch's cascades, each lane at its own `x[l]` (the function whose
+    /// zero the cutoff search finds, with `inv` the inverse of the cutoff level).
+    #[inline(always)]
+    fn level_gap<V: Lane8>(&self, x: &RunLanes, inv: V) -> RunLanes {
+        let b = &self.batch;
+        let h = h2_lanes::<V>(&b.coef_n, &b.coef_d, &b.deg_n, &b.deg_d, self.width, x);
+        let mut out = [0.0; RUN_LANES];
+        h.mul(inv).sub(V::splat(1.0)).store(&mut out);
+        out
+    }
+
+    /// Adds the batch's runs of lanes `first..last` to the results, in run order.
+    #[inline(always)]
+    fn record_batch<V: Lane8>(&mut self, first: usize, last: usize) {
+        let n_grid = self.n_grid;
+        let live = live_lanes(&self.batch);
+        let grid = &mut self.batch.h2[..n_grid];
+        if live.iter().any(|&v| !v) {
+            // Lanes without a finished run must not reach the envelope: NaN never wins a
+            // comparison below.
+            let keep = V::from_bools(live);
+            let nan = V::splat(f64::NAN);
+            for v in grid.iter_mut() {
+                V::select(keep, V::load(v), nan).store(v);
+            }
+        }
+        for ((mn, mx), v) in self
             .env_min
             .iter_mut()
             .zip(self.env_max.iter_mut())
-            .zip(grid)
+            .zip(grid.iter())
         {
-            *mn = if v < *mn { v } else { *mn };
-            *mx = if v > *mx { v } else { *mx };
+            let v = V::load(v);
+            v.min_keep(V::load(mn)).store(mn);
+            v.max_keep(V::load(mx)).store(mx);
         }
-        let (base, j) = self.sample_slot();
-        let grid = &self.h2[..self.n_grid];
-        let samples = &mut self.samples_h2[base..base + SAMPLE_BLOCK * self.n_grid];
-        for (f, &v) in grid.iter().enumerate() {
-            samples[f * SAMPLE_BLOCK + j] = v as f32;
-        }
-        self.n_pass += usize::from(r.pass);
-        self.cut_lo.push(r.cut_lo_hz);
-        self.cut_hi.push(r.cut_hi_hz);
-        self.gain_db.push(r.gain_db);
-        self.atten_db.push(r.atten_db);
-        for (k, &(w0, q)) in f0q.iter().enumerate() {
-            self.stage_f0[k].push(w0 / (2.0 * PI));
-            self.stage_q[k].push(q);
-        }
-        self.done += 1;
-    }
-
-    fn record_failed_run(&mut self) {
-        let n = self.n_grid;
-        // The block starts filled with NaN, which marks a run without readings.
-        let _ = self.sample_slot();
-        let _ = n;
-        self.cut_lo.push(f64::NAN);
-        self.cut_hi.push(f64::NAN);
-        self.gain_db.push(f64::NAN);
-        self.atten_db.push(f64::NAN);
-        for k in 0..self.stages.len() {
-            self.stage_f0[k].push(f64::NAN);
-            self.stage_q[k].push(f64::NAN);
-        }
-        self.fallbacks += 1;
-        self.done += 1;
-    }
-
-    /// Start of the current run's block in `samples_h2` and the run's lane in it (the block is
-    /// added, NaN-filled, when the run is its first).
-    fn sample_slot(&mut self) -> (usize, usize) {
-        let block = self.done / SAMPLE_BLOCK;
-        let j = self.done % SAMPLE_BLOCK;
-        let base = block * SAMPLE_BLOCK * self.n_grid;
-        if self.samples_h2.len() < base + SAMPLE_BLOCK * self.n_grid {
+        // The lane group of this batch inside its sample block (blocks start NaN-filled, which
+        // marks a run without readings).
+        let group_run = self.done - first;
+        let block = group_run / SAMPLE_BLOCK;
+        let base = block * SAMPLE_BLOCK * n_grid + group_run % SAMPLE_BLOCK;
+        if self.samples_h2.len() < (block + 1) * SAMPLE_BLOCK * n_grid {
             self.samples_h2
-                .resize(base + SAMPLE_BLOCK * self.n_grid, f32::NAN);
+                .resize((block + 1) * SAMPLE_BLOCK * n_grid, f32::NAN);
         }
-        (base, j)
+        let samples = &mut self.samples_h2[base..];
+        if first == 0 && last == RUN_LANES && live.iter().all(|&v| v) {
+            for (dst, v) in samples.chunks_mut(SAMPLE_BLOCK).zip(grid.iter()) {
+                if let Some(d) = dst.get_mut(..RUN_LANES).and_then(|d| d.try_into().ok()) {
+                    V::load(v).store_f32(d);
+                }
+            }
+        } else {
+            for (dst, v) in samples.chunks_mut(SAMPLE_BLOCK).zip(grid.iter()) {
+                for l in first..last {
+                    if live[l] {
+                        if let Some(d) = dst.get_mut(l) {
+                            *d = v[l] as f32;
+                        }
+                    }
+                }
+            }
+        }
+        let b = &self.batch;
+        for l in first..last {
+            if b.failed[l] {
+                // A run whose matrices turn singular counts as a failed board with no readings.
+                self.cut_lo.push(f64::NAN);
+                self.cut_hi.push(f64::NAN);
+                self.gain_db.push(f64::NAN);
+                self.atten_db.push(f64::NAN);
+                for k in 0..self.stages.len() {
+                    self.stage_f0[k].push(f64::NAN);
+                    self.stage_q[k].push(f64::NAN);
+                }
+                self.fallbacks += 1;
+            } else {
+                self.n_pass += usize::from(b.pass[l]);
+                self.cut_lo.push(b.cut_lo_hz[l]);
+                self.cut_hi.push(b.cut_hi_hz[l]);
+                self.gain_db.push(b.gain_db[l]);
+                self.atten_db.push(b.atten_db[l]);
+                for (k, (w0, q)) in b.w0.iter().zip(&b.q).enumerate() {
+                    self.stage_f0[k].push(w0[l] / (2.0 * PI));
+                    self.stage_q[k].push(q[l]);
+                }
+            }
+            self.done += 1;
+        }
     }
 
     /// The results of the runs done so far.
@@ -1220,9 +1463,21 @@ impl MonteCarlo {
         let (env_min, env_max) = if n == 0 {
             (nominal_db.clone(), nominal_db.clone())
         } else {
+            // The lanes' extremes reduced with the comparisons of the runs themselves.
             (
-                self.env_min.iter().map(|&v| to_db(v)).collect(),
-                self.env_max.iter().map(|&v| to_db(v)).collect(),
+                self.env_min
+                    .iter()
+                    .map(|v| {
+                        to_db(
+                            v.iter()
+                                .fold(f64::INFINITY, |m, &x| if x < m { x } else { m }),
+                        )
+                    })
+                    .collect(),
+                self.env_max
+                    .iter()
+                    .map(|v| to_db(v.iter().fold(0.0, |m, &x| if x > m { x } else { m })))
+                    .collect(),
             )
         };
         let mut warnings = Vec::new();
@@ -1293,108 +1548,629 @@ impl MonteCarlo {
     }
 }
 
-/// The branch-free cascade kernel: `out[f] = Π_k Pn_k(x_f) / Π_k Pd_k(x_f)`, with each stage's
-/// polynomials in a row of `width` coefficients. `x.len()` must be a multiple of 8.
-///
-/// On x86-64 processors with AVX-512F or AVX2 the same code is run compiled for that extension
-/// (selected at run time).
-/// Rust does not fuse multiplies and adds, and every lane does the same operations in the same
-/// order, so the results are bit-identical on every path and on wasm.
-pub fn cascade_kernel(
-    x: &[f64],
-    coef_n: &[f64],
-    coef_d: &[f64],
+/// Lanes holding a run of the batch that has not failed.
+#[inline(always)]
+fn live_lanes(b: &Batch) -> [bool; RUN_LANES] {
+    let mut live = [false; RUN_LANES];
+    for (l, v) in live.iter_mut().enumerate() {
+        *v = b.active[l] && !b.failed[l];
+    }
+    live
+}
+
+/// The highest index of a nonzero coefficient of `row` over the `live` lanes (0 when none).
+#[inline(always)]
+fn batch_degree(row: &[RunLanes], live: &[bool; RUN_LANES]) -> usize {
+    (0..RUN_LANES)
+        .filter(|&l| live[l])
+        .map(|l| row.iter().rposition(|c| c[l] != 0.0).unwrap_or(0))
+        .max()
+        .unwrap_or(0)
+}
+
+/// The quadratic factor `z² + u·z + v` of the cubic `d` (ascending, `d[j][l]` coefficient `j` of
+/// lane `l`) that remains when its real root near `r0` is divided out, for every lane with
+/// `use_lane[l]`: Halley's iteration for the root (cubic convergence, two or three steps from the
+/// nominal root), then backward deflation (`v = −d0/(d3·r)`, `u = (v − d1/d3)/r`), which is the
+/// stable direction for a root larger than the others. Returns `(u, v, ok)`; `ok[l]` is false
+/// when the iteration failed or the factor is not a stable pair. The lanes iterate together, each
+/// one frozen once converged, so a lane's result does not depend on the others.
+#[inline(always)]
+fn split_cubic_lanes(
+    d: &[RunLanes],
+    r0: f64,
+    use_lane: [bool; RUN_LANES],
+) -> (RunLanes, RunLanes, [bool; RUN_LANES]) {
+    let (mut a0, mut a1, mut a2) = ([0.0; RUN_LANES], [0.0; RUN_LANES], [0.0; RUN_LANES]);
+    if let [d0, d1, d2, d3, ..] = d {
+        for l in 0..RUN_LANES {
+            let lead = d3[l];
+            a0[l] = d0[l] / lead;
+            a1[l] = d1[l] / lead;
+            a2[l] = d2[l] / lead;
+        }
+    } else {
+        return ([0.0; RUN_LANES], [0.0; RUN_LANES], [false; RUN_LANES]);
+    }
+    let mut r = [r0; RUN_LANES];
+    let mut live = use_lane;
+    let mut done = [false; RUN_LANES];
+    for _ in 0..40 {
+        if !live.iter().any(|&v| v) {
+            break;
+        }
+        for l in 0..RUN_LANES {
+            let rl = r[l];
+            let p = ((rl + a2[l]) * rl + a1[l]) * rl + a0[l];
+            let dp = (3.0 * rl + 2.0 * a2[l]) * rl + a1[l];
+            let ddp = 6.0 * rl + 2.0 * a2[l];
+            let step = 2.0 * p * dp / (2.0 * dp * dp - p * ddp);
+            let moving = live[l] & step.is_finite();
+            let r_new = rl - step;
+            r[l] = if moving { r_new } else { rl };
+            let converged = moving & (step.abs() <= 1e-15 * r_new.abs());
+            done[l] |= converged;
+            live[l] = moving & !converged;
+        }
+    }
+    let (mut u, mut v, mut ok) = ([0.0; RUN_LANES], [0.0; RUN_LANES], [false; RUN_LANES]);
+    for l in 0..RUN_LANES {
+        v[l] = -a0[l] / r[l];
+        u[l] = (v[l] - a1[l]) / r[l];
+        ok[l] = done[l] & (v[l] > 0.0) & (u[l] > 0.0) & u[l].is_finite();
+    }
+    (u, v, ok)
+}
+
+/// Grid indices carried in f64 lanes (exact), −1 for none, as indices.
+#[inline(always)]
+fn index_of<V: Lane8>(lanes: V) -> [Option<usize>; RUN_LANES] {
+    let mut f = [0.0; RUN_LANES];
+    lanes.store(&mut f);
+    f.map(|v| (v >= 0.0).then_some(v as usize))
+}
+
+/// Horner's rule from coefficient `deg` of `row` (ascending) down, each lane at its own `x`.
+#[inline(always)]
+fn horner_lanes<V: Lane8>(row: &[RunLanes], deg: usize, x: V) -> V {
+    let top = deg.min(row.len().saturating_sub(1));
+    let mut p = match row.get(top) {
+        Some(c) => V::load(c),
+        None => V::splat(1.0),
+    };
+    for c in row[..top].iter().rev() {
+        p = p.mul(x).add(V::load(c));
+    }
+    p
+}
+
+/// |H|² of the batch's cascades, each lane at its own `x[l] = (f/f_g)²` (the cutoff search's
+/// evaluations). The stages are multiplied in groups of four, `(P1·P2)·(P3·P4)`, the order the
+/// study has always used for these evaluations.
+#[inline(always)]
+fn h2_lanes<V: Lane8>(
+    coef_n: &[RunLanes],
+    coef_d: &[RunLanes],
     deg_n: &[usize],
     deg_d: &[usize],
     width: usize,
-    out: &mut [f64],
-) {
-    #[cfg(target_arch = "x86_64")]
-    {
-        if std::arch::is_x86_feature_detected!("avx512f") {
-            // SAFETY: the processor supports AVX-512F, checked on the line above.
-            unsafe { cascade_kernel_avx512(x, coef_n, coef_d, deg_n, deg_d, width, out) };
-            return;
+    x: &RunLanes,
+) -> V {
+    let x = V::load(x);
+    let one = V::splat(1.0);
+    let mut num = one;
+    let mut den = one;
+    let n_stages = deg_n.len().min(deg_d.len());
+    for chunk in (0..n_stages).step_by(4) {
+        let mut pn = [one; 4];
+        let mut pd = [one; 4];
+        for s in 0..4 {
+            let k = chunk + s;
+            if k < n_stages {
+                pn[s] = horner_lanes(&coef_n[k * width..(k + 1) * width], deg_n[k], x);
+                pd[s] = horner_lanes(&coef_d[k * width..(k + 1) * width], deg_d[k], x);
+            }
         }
-        if std::arch::is_x86_feature_detected!("avx2") {
-            // SAFETY: the processor supports AVX2, checked on the line above.
-            unsafe { cascade_kernel_avx2(x, coef_n, coef_d, deg_n, deg_d, width, out) };
-            return;
-        }
+        num = num.mul(pn[0].mul(pn[1]).mul(pn[2].mul(pn[3])));
+        den = den.mul(pd[0].mul(pd[1]).mul(pd[2].mul(pd[3])));
     }
-    cascade_kernel_portable(x, coef_n, coef_d, deg_n, deg_d, width, out);
+    num.div(den)
+}
+
+/// The branch-free cascade kernel, [`RUN_LANES`] runs side by side:
+/// `out[f][l] = Π_k Pn_k,l(x_f) / Π_k Pd_k,l(x_f)`, where stage `k`'s polynomials of run `l` are
+/// `coef_n[k·width + j][l]` (ascending in x, `width` coefficients per stage; Horner's rule starts
+/// at degree `deg_n[k]`, `deg_d[k]`, and any higher coefficient must be zero).
+///
+/// On x86-64 processors with AVX-512F or AVX2 it runs on those registers (selected at run time),
+/// elsewhere (wasm) as plain code. Rust does not fuse multiplies and adds, and every lane does
+/// the same IEEE operations in the same order, so the results are bit-identical on every path.
+pub fn cascade_kernel_lanes(
+    x: &[f64],
+    coef_n: &[RunLanes],
+    coef_d: &[RunLanes],
+    deg_n: &[usize],
+    deg_d: &[usize],
+    width: usize,
+    out: &mut [RunLanes],
+) {
+    match Isa::detect() {
+        #[cfg(target_arch = "x86_64")]
+        // SAFETY: the processor supports AVX-512F (`Isa::detect`).
+        Isa::Avx512 => unsafe {
+            cascade_kernel_lanes_avx512(x, coef_n, coef_d, deg_n, deg_d, width, out)
+        },
+        #[cfg(target_arch = "x86_64")]
+        // SAFETY: the processor supports AVX2 (`Isa::detect`).
+        Isa::Avx2 => unsafe {
+            cascade_kernel_lanes_avx2(x, coef_n, coef_d, deg_n, deg_d, width, out)
+        },
+        _ => cascade_kernel_lanes_body::<lanes::Plain>(x, coef_n, coef_d, deg_n, deg_d, width, out),
+    }
 }
 
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
-unsafe fn cascade_kernel_avx2(
+unsafe fn cascade_kernel_lanes_avx2(
     x: &[f64],
-    coef_n: &[f64],
-    coef_d: &[f64],
+    coef_n: &[RunLanes],
+    coef_d: &[RunLanes],
     deg_n: &[usize],
     deg_d: &[usize],
     width: usize,
-    out: &mut [f64],
+    out: &mut [RunLanes],
 ) {
-    cascade_kernel_portable(x, coef_n, coef_d, deg_n, deg_d, width, out);
+    cascade_kernel_lanes_body::<lanes::Avx2>(x, coef_n, coef_d, deg_n, deg_d, width, out);
 }
 
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx512f")]
-unsafe fn cascade_kernel_avx512(
+unsafe fn cascade_kernel_lanes_avx512(
     x: &[f64],
-    coef_n: &[f64],
-    coef_d: &[f64],
+    coef_n: &[RunLanes],
+    coef_d: &[RunLanes],
     deg_n: &[usize],
     deg_d: &[usize],
     width: usize,
-    out: &mut [f64],
+    out: &mut [RunLanes],
 ) {
-    cascade_kernel_portable(x, coef_n, coef_d, deg_n, deg_d, width, out);
+    cascade_kernel_lanes_body::<lanes::Avx512>(x, coef_n, coef_d, deg_n, deg_d, width, out);
 }
 
 #[inline(always)]
-fn cascade_kernel_portable(
+fn cascade_kernel_lanes_body<V: Lane8>(
     x: &[f64],
-    coef_n: &[f64],
-    coef_d: &[f64],
+    coef_n: &[RunLanes],
+    coef_d: &[RunLanes],
     deg_n: &[usize],
     deg_d: &[usize],
     width: usize,
-    out: &mut [f64],
+    out: &mut [RunLanes],
 ) {
-    for (xb, ob) in x.chunks_exact(LANES).zip(out.chunks_exact_mut(LANES)) {
-        // A fixed-size view of the chunk: no copy, no bounds checks in the lane loops.
-        let xv: &[f64; LANES] = match xb.try_into() {
-            Ok(v) => v,
-            Err(_) => continue,
-        };
-        let mut num = [1.0; LANES];
-        let mut den = [1.0; LANES];
-        for (k, (&dn, &dd)) in deg_n.iter().zip(deg_d).enumerate() {
-            let row_n = &coef_n[k * width..k * width + width];
-            let row_d = &coef_d[k * width..k * width + width];
-            let mut pn = [row_n[dn.min(width - 1)]; LANES];
-            for j in (0..dn.min(width - 1)).rev() {
-                let c = row_n[j];
-                for l in 0..LANES {
-                    pn[l] = pn[l] * xv[l] + c;
-                }
+    let n_stages = deg_n.len().min(deg_d.len());
+    if width == 0 || coef_n.len() < n_stages * width || coef_d.len() < n_stages * width {
+        return;
+    }
+    for (&xf, o) in x.iter().zip(out.iter_mut()) {
+        let xv = V::splat(xf);
+        let mut num = V::splat(1.0);
+        let mut den = V::splat(1.0);
+        for k in 0..n_stages {
+            let row_n = &coef_n[k * width..(k + 1) * width];
+            let row_d = &coef_d[k * width..(k + 1) * width];
+            let dn = deg_n[k].min(width - 1);
+            let dd = deg_d[k].min(width - 1);
+            let mut pn = V::load(&row_n[dn]);
+            for c in row_n[..dn].iter().rev() {
+                pn = pn.mul(xv).add(V::load(c));
             }
-            let mut pd = [row_d[dd.min(width - 1)]; LANES];
-            for j in (0..dd.min(width - 1)).rev() {
-                let c = row_d[j];
-                for l in 0..LANES {
-                    pd[l] = pd[l] * xv[l] + c;
-                }
+            let mut pd = V::load(&row_d[dd]);
+            for c in row_d[..dd].iter().rev() {
+                pd = pd.mul(xv).add(V::load(c));
             }
-            for l in 0..LANES {
-                num[l] *= pn[l];
-                den[l] *= pd[l];
+            num = num.mul(pn);
+            den = den.mul(pd);
+        }
+        num.div(den).store(o);
+    }
+}
+
+/// Eight f64 lanes side by side, one run of a batch per lane: the operations the batch work
+/// needs, implemented for AVX-512F, for AVX2 and in plain code. Every operation is a single IEEE
+/// operation per lane (no fused multiply-add, no reassociation), so all three give bit-identical
+/// results, and the plain code is what wasm runs.
+pub mod lanes {
+    /// Eight f64 lanes.
+    pub trait Lane8: Copy {
+        /// A per-lane truth value.
+        type Mask: Copy;
+        /// Every lane `v`.
+        fn splat(v: f64) -> Self;
+        /// Lanes from memory.
+        fn load(a: &[f64; 8]) -> Self;
+        /// Lanes to memory.
+        fn store(self, a: &mut [f64; 8]);
+        /// Lanes rounded to f32 (to nearest, ties to even) into `a[..8]`.
+        fn store_f32(self, a: &mut [f32; 8]);
+        /// `self + o` per lane.
+        fn add(self, o: Self) -> Self;
+        /// `self − o` per lane.
+        fn sub(self, o: Self) -> Self;
+        /// `self · o` per lane.
+        fn mul(self, o: Self) -> Self;
+        /// `self / o` per lane.
+        fn div(self, o: Self) -> Self;
+        /// `|self|` per lane.
+        fn abs(self) -> Self;
+        /// `if self < o { self } else { o }` per lane (a NaN in `self` keeps `o`).
+        fn min_keep(self, o: Self) -> Self;
+        /// `if self > o { self } else { o }` per lane (a NaN in `self` keeps `o`).
+        fn max_keep(self, o: Self) -> Self;
+        /// `self < o` (false for NaN).
+        fn lt(self, o: Self) -> Self::Mask;
+        /// `self <= o` (false for NaN).
+        fn le(self, o: Self) -> Self::Mask;
+        /// `self >= o` (false for NaN).
+        fn ge(self, o: Self) -> Self::Mask;
+        /// `a && b`.
+        fn and(a: Self::Mask, b: Self::Mask) -> Self::Mask;
+        /// `if m { a } else { b }` per lane.
+        fn select(m: Self::Mask, a: Self, b: Self) -> Self;
+        /// The mask as booleans.
+        fn bools(m: Self::Mask) -> [bool; 8];
+        /// Booleans as a mask.
+        fn from_bools(b: [bool; 8]) -> Self::Mask;
+    }
+
+    /// Plain code (wasm, processors without AVX2).
+    #[derive(Clone, Copy, Debug)]
+    pub struct Plain([f64; 8]);
+
+    impl Plain {
+        #[inline(always)]
+        fn map2(self, o: Plain, f: impl Fn(f64, f64) -> f64) -> Plain {
+            let mut r = [0.0; 8];
+            for (l, v) in r.iter_mut().enumerate() {
+                *v = f(self.0[l], o.0[l]);
+            }
+            Plain(r)
+        }
+
+        #[inline(always)]
+        fn cmp(self, o: Plain, f: impl Fn(f64, f64) -> bool) -> [bool; 8] {
+            let mut r = [false; 8];
+            for (l, v) in r.iter_mut().enumerate() {
+                *v = f(self.0[l], o.0[l]);
+            }
+            r
+        }
+    }
+
+    impl Lane8 for Plain {
+        type Mask = [bool; 8];
+        #[inline(always)]
+        fn splat(v: f64) -> Self {
+            Plain([v; 8])
+        }
+        #[inline(always)]
+        fn load(a: &[f64; 8]) -> Self {
+            Plain(*a)
+        }
+        #[inline(always)]
+        fn store(self, a: &mut [f64; 8]) {
+            *a = self.0;
+        }
+        #[inline(always)]
+        fn store_f32(self, a: &mut [f32; 8]) {
+            for (d, &s) in a.iter_mut().zip(&self.0) {
+                *d = s as f32;
             }
         }
-        for l in 0..LANES {
-            ob[l] = num[l] / den[l];
+        #[inline(always)]
+        fn add(self, o: Self) -> Self {
+            self.map2(o, |a, b| a + b)
+        }
+        #[inline(always)]
+        fn sub(self, o: Self) -> Self {
+            self.map2(o, |a, b| a - b)
+        }
+        #[inline(always)]
+        fn mul(self, o: Self) -> Self {
+            self.map2(o, |a, b| a * b)
+        }
+        #[inline(always)]
+        fn div(self, o: Self) -> Self {
+            self.map2(o, |a, b| a / b)
+        }
+        #[inline(always)]
+        fn abs(self) -> Self {
+            self.map2(self, |a, _| a.abs())
+        }
+        #[inline(always)]
+        fn min_keep(self, o: Self) -> Self {
+            self.map2(o, |a, b| if a < b { a } else { b })
+        }
+        #[inline(always)]
+        fn max_keep(self, o: Self) -> Self {
+            self.map2(o, |a, b| if a > b { a } else { b })
+        }
+        #[inline(always)]
+        fn lt(self, o: Self) -> [bool; 8] {
+            self.cmp(o, |a, b| a < b)
+        }
+        #[inline(always)]
+        fn le(self, o: Self) -> [bool; 8] {
+            self.cmp(o, |a, b| a <= b)
+        }
+        #[inline(always)]
+        fn ge(self, o: Self) -> [bool; 8] {
+            self.cmp(o, |a, b| a >= b)
+        }
+        #[inline(always)]
+        fn and(a: [bool; 8], b: [bool; 8]) -> [bool; 8] {
+            let mut r = a;
+            for (x, &y) in r.iter_mut().zip(&b) {
+                *x &= y;
+            }
+            r
+        }
+        #[inline(always)]
+        fn select(m: [bool; 8], a: Self, b: Self) -> Self {
+            let mut r = b.0;
+            for (l, v) in r.iter_mut().enumerate() {
+                if m[l] {
+                    *v = a.0[l];
+                }
+            }
+            Plain(r)
+        }
+        #[inline(always)]
+        fn bools(m: [bool; 8]) -> [bool; 8] {
+            m
+        }
+        #[inline(always)]
+        fn from_bools(b: [bool; 8]) -> [bool; 8] {
+            b
+        }
+    }
+
+    #[cfg(target_arch = "x86_64")]
+    pub use x86::{Avx2, Avx512};
+
+    /// The x86-64 forms. SAFETY (for every `unsafe` block in this module): values of these types
+    /// exist only inside the batch work compiled for the matching extension
+    /// (`#[target_feature(enable = ...)]`), which is entered only after run-time detection of
+    /// that extension.
+    #[cfg(target_arch = "x86_64")]
+    mod x86 {
+        use super::Lane8;
+        use std::arch::x86_64::*;
+
+        /// One AVX-512 register.
+        #[derive(Clone, Copy, Debug)]
+        pub struct Avx512(__m512d);
+
+        impl Lane8 for Avx512 {
+            type Mask = __mmask8;
+            #[inline(always)]
+            fn splat(v: f64) -> Self {
+                unsafe { Avx512(_mm512_set1_pd(v)) }
+            }
+            #[inline(always)]
+            fn load(a: &[f64; 8]) -> Self {
+                unsafe { Avx512(_mm512_loadu_pd(a.as_ptr())) }
+            }
+            #[inline(always)]
+            fn store(self, a: &mut [f64; 8]) {
+                unsafe { _mm512_storeu_pd(a.as_mut_ptr(), self.0) }
+            }
+            #[inline(always)]
+            fn store_f32(self, a: &mut [f32; 8]) {
+                unsafe { _mm256_storeu_ps(a.as_mut_ptr(), _mm512_cvtpd_ps(self.0)) }
+            }
+            #[inline(always)]
+            fn add(self, o: Self) -> Self {
+                unsafe { Avx512(_mm512_add_pd(self.0, o.0)) }
+            }
+            #[inline(always)]
+            fn sub(self, o: Self) -> Self {
+                unsafe { Avx512(_mm512_sub_pd(self.0, o.0)) }
+            }
+            #[inline(always)]
+            fn mul(self, o: Self) -> Self {
+                unsafe { Avx512(_mm512_mul_pd(self.0, o.0)) }
+            }
+            #[inline(always)]
+            fn div(self, o: Self) -> Self {
+                unsafe { Avx512(_mm512_div_pd(self.0, o.0)) }
+            }
+            #[inline(always)]
+            fn abs(self) -> Self {
+                unsafe { Avx512(_mm512_abs_pd(self.0)) }
+            }
+            #[inline(always)]
+            fn min_keep(self, o: Self) -> Self {
+                // MINPD returns the first operand where it is the smaller, else the second.
+                unsafe { Avx512(_mm512_min_pd(self.0, o.0)) }
+            }
+            #[inline(always)]
+            fn max_keep(self, o: Self) -> Self {
+                unsafe { Avx512(_mm512_max_pd(self.0, o.0)) }
+            }
+            #[inline(always)]
+            fn lt(self, o: Self) -> __mmask8 {
+                unsafe { _mm512_cmp_pd_mask::<_CMP_LT_OQ>(self.0, o.0) }
+            }
+            #[inline(always)]
+            fn le(self, o: Self) -> __mmask8 {
+                unsafe { _mm512_cmp_pd_mask::<_CMP_LE_OQ>(self.0, o.0) }
+            }
+            #[inline(always)]
+            fn ge(self, o: Self) -> __mmask8 {
+                unsafe { _mm512_cmp_pd_mask::<_CMP_GE_OQ>(self.0, o.0) }
+            }
+            #[inline(always)]
+            fn and(a: __mmask8, b: __mmask8) -> __mmask8 {
+                a & b
+            }
+            #[inline(always)]
+            fn select(m: __mmask8, a: Self, b: Self) -> Self {
+                unsafe { Avx512(_mm512_mask_blend_pd(m, b.0, a.0)) }
+            }
+            #[inline(always)]
+            fn bools(m: __mmask8) -> [bool; 8] {
+                let mut r = [false; 8];
+                for (l, v) in r.iter_mut().enumerate() {
+                    *v = m & (1 << l) != 0;
+                }
+                r
+            }
+            #[inline(always)]
+            fn from_bools(b: [bool; 8]) -> __mmask8 {
+                b.iter()
+                    .enumerate()
+                    .fold(0, |m, (l, &v)| m | (u8::from(v) << l))
+            }
+        }
+
+        /// Two AVX2 registers.
+        #[derive(Clone, Copy, Debug)]
+        pub struct Avx2([__m256d; 2]);
+
+        /// One AVX2 operation on both halves.
+        macro_rules! halves {
+            ($f:ident, $a:expr, $b:expr) => {
+                unsafe { [$f($a[0], $b[0]), $f($a[1], $b[1])] }
+            };
+        }
+
+        impl Lane8 for Avx2 {
+            type Mask = [__m256d; 2];
+            #[inline(always)]
+            fn splat(v: f64) -> Self {
+                unsafe { Avx2([_mm256_set1_pd(v); 2]) }
+            }
+            #[inline(always)]
+            fn load(a: &[f64; 8]) -> Self {
+                unsafe {
+                    Avx2([
+                        _mm256_loadu_pd(a.as_ptr()),
+                        _mm256_loadu_pd(a.as_ptr().add(4)),
+                    ])
+                }
+            }
+            #[inline(always)]
+            fn store(self, a: &mut [f64; 8]) {
+                unsafe {
+                    _mm256_storeu_pd(a.as_mut_ptr(), self.0[0]);
+                    _mm256_storeu_pd(a.as_mut_ptr().add(4), self.0[1]);
+                }
+            }
+            #[inline(always)]
+            fn store_f32(self, a: &mut [f32; 8]) {
+                unsafe {
+                    _mm_storeu_ps(a.as_mut_ptr(), _mm256_cvtpd_ps(self.0[0]));
+                    _mm_storeu_ps(a.as_mut_ptr().add(4), _mm256_cvtpd_ps(self.0[1]));
+                }
+            }
+            #[inline(always)]
+            fn add(self, o: Self) -> Self {
+                Avx2(halves!(_mm256_add_pd, self.0, o.0))
+            }
+            #[inline(always)]
+            fn sub(self, o: Self) -> Self {
+                Avx2(halves!(_mm256_sub_pd, self.0, o.0))
+            }
+            #[inline(always)]
+            fn mul(self, o: Self) -> Self {
+                Avx2(halves!(_mm256_mul_pd, self.0, o.0))
+            }
+            #[inline(always)]
+            fn div(self, o: Self) -> Self {
+                Avx2(halves!(_mm256_div_pd, self.0, o.0))
+            }
+            #[inline(always)]
+            fn abs(self) -> Self {
+                let sign = unsafe { [_mm256_set1_pd(-0.0); 2] };
+                Avx2(halves!(_mm256_andnot_pd, sign, self.0))
+            }
+            #[inline(always)]
+            fn min_keep(self, o: Self) -> Self {
+                Avx2(halves!(_mm256_min_pd, self.0, o.0))
+            }
+            #[inline(always)]
+            fn max_keep(self, o: Self) -> Self {
+                Avx2(halves!(_mm256_max_pd, self.0, o.0))
+            }
+            #[inline(always)]
+            fn lt(self, o: Self) -> [__m256d; 2] {
+                unsafe {
+                    [
+                        _mm256_cmp_pd::<_CMP_LT_OQ>(self.0[0], o.0[0]),
+                        _mm256_cmp_pd::<_CMP_LT_OQ>(self.0[1], o.0[1]),
+                    ]
+                }
+            }
+            #[inline(always)]
+            fn le(self, o: Self) -> [__m256d; 2] {
+                unsafe {
+                    [
+                        _mm256_cmp_pd::<_CMP_LE_OQ>(self.0[0], o.0[0]),
+                        _mm256_cmp_pd::<_CMP_LE_OQ>(self.0[1], o.0[1]),
+                    ]
+                }
+            }
+            #[inline(always)]
+            fn ge(self, o: Self) -> [__m256d; 2] {
+                unsafe {
+                    [
+                        _mm256_cmp_pd::<_CMP_GE_OQ>(self.0[0], o.0[0]),
+                        _mm256_cmp_pd::<_CMP_GE_OQ>(self.0[1], o.0[1]),
+                    ]
+                }
+            }
+            #[inline(always)]
+            fn and(a: [__m256d; 2], b: [__m256d; 2]) -> [__m256d; 2] {
+                halves!(_mm256_and_pd, a, b)
+            }
+            #[inline(always)]
+            fn select(m: [__m256d; 2], a: Self, b: Self) -> Self {
+                unsafe {
+                    Avx2([
+                        _mm256_blendv_pd(b.0[0], a.0[0], m[0]),
+                        _mm256_blendv_pd(b.0[1], a.0[1], m[1]),
+                    ])
+                }
+            }
+            #[inline(always)]
+            fn bools(m: [__m256d; 2]) -> [bool; 8] {
+                let bits = unsafe { _mm256_movemask_pd(m[0]) | (_mm256_movemask_pd(m[1]) << 4) };
+                let mut r = [false; 8];
+                for (l, v) in r.iter_mut().enumerate() {
+                    *v = bits & (1 << l) != 0;
+                }
+                r
+            }
+            #[inline(always)]
+            fn from_bools(b: [bool; 8]) -> [__m256d; 2] {
+                let lane = |v: bool| if v { -1i64 } else { 0 };
+                unsafe {
+                    [
+                        _mm256_castsi256_pd(_mm256_set_epi64x(
+                            lane(b[3]),
+                            lane(b[2]),
+                            lane(b[1]),
+                            lane(b[0]),
+                        )),
+                        _mm256_castsi256_pd(_mm256_set_epi64x(
+                            lane(b[7]),
+                            lane(b[6]),
+                            lane(b[5]),
+                            lane(b[4]),
+                        )),
+                    ]
+                }
+            }
         }
     }
 }

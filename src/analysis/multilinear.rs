@@ -14,6 +14,7 @@
 //! the real-point solve of [`super::fastfit`].
 
 use super::circuit::Compiled;
+use super::montecarlo::lanes::Lane8;
 use super::poly::FitWork;
 use crate::netlist::{PartKind, StageNetlist};
 
@@ -164,4 +165,88 @@ impl Multilinear {
             den_u[j] = ((ad[0] + ad[1]) + (ad[2] + ad[3])) + ((ad[4] + ad[5]) + (ad[6] + ad[7]));
         }
     }
+}
+
+impl Multilinear {
+    /// Number of terms of the expansion, 2^P: the length of the monomial scratch that
+    /// [`Multilinear::evaluate_lanes`] needs.
+    pub fn n_terms(&self) -> usize {
+        1usize << self.part_idx.len()
+    }
+
+    /// [`Multilinear::evaluate`] for eight runs side by side: `values[i][l]` is part `i` of run
+    /// `l` (indexed like the netlist's parts), `num_u[j][l]` and `den_u[j][l]` receive
+    /// coefficient `j` of run `l` (length ≥ K), `mono` is scratch of length ≥
+    /// [`Multilinear::n_terms`]. `V` is the lane arithmetic
+    /// ([`super::montecarlo::lanes::Lane8`]).
+    ///
+    /// Each lane does the operations of [`Multilinear::evaluate`] in the same order (the same
+    /// eight partial sums, added in the same tree), so every lane's result is bit-identical to a
+    /// scalar evaluation of that run.
+    #[inline(always)]
+    pub fn evaluate_lanes<V: Lane8>(
+        &self,
+        values: &[[f64; 8]],
+        mono: &mut [[f64; 8]],
+        num_u: &mut [[f64; 8]],
+        den_u: &mut [[f64; 8]],
+    ) {
+        let n_terms = self.n_terms();
+        let mono = &mut mono[..n_terms];
+        mono[0] = [1.0; 8];
+        let one = V::splat(1.0);
+        for (bit, ((&idx, &cap), &nom)) in self
+            .part_idx
+            .iter()
+            .zip(&self.is_capacitor)
+            .zip(&self.nominal)
+            .enumerate()
+        {
+            let v = V::load(values.get(idx).unwrap_or(&[f64::NAN; 8]));
+            let delta = if cap {
+                v.div(V::splat(nom)).sub(one)
+            } else {
+                V::splat(nom).div(v).sub(one)
+            };
+            let half = 1usize << bit;
+            let (lo, hi) = mono[..2 * half].split_at_mut(half);
+            for (h, m) in hi.iter_mut().zip(lo.iter()) {
+                V::load(m).mul(delta).store(h);
+            }
+        }
+        let full = n_terms - n_terms % 8;
+        for j in 0..self.k {
+            let rn = &self.a_num[j * n_terms..(j + 1) * n_terms];
+            let rd = &self.a_den[j * n_terms..(j + 1) * n_terms];
+            let mut an = [V::splat(0.0); 8];
+            let mut ad = [V::splat(0.0); 8];
+            for ((cn, cd), m) in rn[..full]
+                .chunks_exact(8)
+                .zip(rd[..full].chunks_exact(8))
+                .zip(mono[..full].chunks_exact(8))
+            {
+                for q in 0..8 {
+                    let mq = V::load(&m[q]);
+                    an[q] = an[q].add(V::splat(cn[q]).mul(mq));
+                    ad[q] = ad[q].add(V::splat(cd[q]).mul(mq));
+                }
+            }
+            for ((&cn, &cd), m) in rn[full..].iter().zip(&rd[full..]).zip(&mono[full..n_terms]) {
+                let mq = V::load(m);
+                an[0] = an[0].add(V::splat(cn).mul(mq));
+                ad[0] = ad[0].add(V::splat(cd).mul(mq));
+            }
+            if let (Some(out_n), Some(out_d)) = (num_u.get_mut(j), den_u.get_mut(j)) {
+                tree(&an).store(out_n);
+                tree(&ad).store(out_d);
+            }
+        }
+    }
+}
+
+/// The fixed addition tree of the eight partial sums, `((s0 + s1) + (s2 + s3)) + ((s4 + s5) +
+/// (s6 + s7))`, as in [`Multilinear::evaluate`].
+#[inline(always)]
+fn tree<V: Lane8>(a: &[V; 8]) -> V {
+    (a[0].add(a[1]).add(a[2].add(a[3]))).add(a[4].add(a[5]).add(a[6].add(a[7])))
 }
