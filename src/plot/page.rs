@@ -303,9 +303,13 @@ fn ideal_sweep(synthesis: &Synthesis, freqs: &[f64]) -> Sweep {
 /// The board's response by nodal analysis of the whole cascade (each stage loads the one before
 /// it), with each stage's output level: the stages are merged into one netlist, compiled once
 /// and solved at every frequency ([`crate::analysis::circuit`], the tolerance study's solver).
-/// Falls back to [`mna::board_response`] if the fast path cannot compile the board.
-fn built_sweep(board: &Board, freqs: &[f64]) -> Result<(Sweep, Vec<Vec<f64>>), InputError> {
+/// The same solves give the input impedance: the source's current is the sum, over the
+/// resistors and capacitors on the input node, of `y·(V_in − V_other)`.
+/// Falls back to [`mna::board_response`] and [`mna::input_impedance`] if the fast path cannot
+/// compile the board.
+fn built_sweep(board: &Board, freqs: &[f64]) -> Result<BuiltSweep, InputError> {
     use crate::analysis::circuit::{merge_stages, transfer_at, Compiled, Solver};
+    let mut z_in_ohm = Vec::with_capacity(freqs.len());
     let mut gain_db = Vec::with_capacity(freqs.len());
     let mut phase_deg = Vec::with_capacity(freqs.len());
     let mut levels = vec![Vec::with_capacity(freqs.len()); board.stages.len()];
@@ -318,13 +322,30 @@ fn built_sweep(board: &Board, freqs: &[f64]) -> Result<(Sweep, Vec<Vec<f64>>), I
             .iter()
             .map(|&node| compiled.node_col.get(node).copied().flatten())
             .collect();
-        Some((compiled, assembled, columns?))
+        Some((merged.netlist, compiled, assembled, columns?))
     });
     let analysis_error =
         |e: String| InputError::new("topo", format!("the board cannot be analysed: {e}"));
     match fast {
-        Some((compiled, assembled, columns)) => {
+        Some((net, compiled, assembled, columns)) => {
             let mut solver = Solver::new(compiled.n);
+            // The parts on the input node: admittance kind, value and the column of the other
+            // pin (`None` for ground; a part with both pins on the input carries no current).
+            let on_input: Vec<(PartKind, f64, Option<usize>)> = net
+                .parts
+                .iter()
+                .filter(|p| p.kind != PartKind::OpAmp && p.nodes.len() == 2)
+                .filter_map(|p| {
+                    let (a, b) = (p.nodes[0], p.nodes[1]);
+                    let other = match (a == Some(net.input), b == Some(net.input)) {
+                        (true, false) => b,
+                        (false, true) => a,
+                        _ => return None,
+                    };
+                    let col = other.and_then(|i| compiled.node_col.get(i).copied().flatten());
+                    Some((p.kind, p.value, col))
+                })
+                .collect();
             for &f in freqs {
                 let s = Complex64::new(0.0, 2.0 * PI * f);
                 let h = transfer_at(&compiled, &assembled, &mut solver, s)
@@ -332,6 +353,22 @@ fn built_sweep(board: &Board, freqs: &[f64]) -> Result<(Sweep, Vec<Vec<f64>>), I
                 gain_db.push(20.0 * h.norm().log10());
                 phase_deg.push(h.arg().to_degrees());
                 let solution = solver.solution();
+                let current: Complex64 = on_input
+                    .iter()
+                    .map(|&(kind, value, col)| {
+                        let y = match kind {
+                            PartKind::Capacitor => s * value,
+                            _ => Complex64::new(1.0 / value, 0.0),
+                        };
+                        let v_other = col.map_or(Complex64::new(0.0, 0.0), |c| solution[c]);
+                        y * (Complex64::new(1.0, 0.0) - v_other)
+                    })
+                    .sum();
+                z_in_ohm.push(if current.norm() > 0.0 {
+                    1.0 / current.norm()
+                } else {
+                    f64::NAN
+                });
                 for (level, &col) in levels.iter_mut().zip(&columns) {
                     let v = solution
                         .get(col)
@@ -351,41 +388,37 @@ fn built_sweep(board: &Board, freqs: &[f64]) -> Result<(Sweep, Vec<Vec<f64>>), I
                 for (level, v) in levels.iter_mut().zip(&outputs) {
                     level.push(20.0 * v.norm().log10());
                 }
+                let merged = board.netlist();
+                z_in_ohm.push(
+                    mna::input_impedance(&merged.netlist, &board.op_amp, s)
+                        .map(|z| z.norm())
+                        .unwrap_or(f64::NAN),
+                );
             }
         }
     }
     unwrap_deg(&mut phase_deg);
     let delay_s = delay_of(freqs, &phase_deg);
-    Ok((
-        Sweep {
+    Ok(BuiltSweep {
+        sweep: Sweep {
             freq_hz: freqs.to_vec(),
             gain_db,
             phase_deg,
             delay_s,
         },
         levels,
-    ))
+        z_in_ohm,
+    })
 }
 
-/// |Zin| of the board on every `step`-th frequency (the impedance curve is smooth on a log axis,
-/// and each point is a whole-board solve).
-fn input_impedance(board: &Board, freqs: &[f64], step: usize) -> Option<Curve> {
-    let merged = board.netlist();
-    let freqs: Vec<f64> = freqs.iter().copied().step_by(step.max(1)).collect();
-    let mut y = Vec::with_capacity(freqs.len());
-    for &f in &freqs {
-        let s = Complex64::new(0.0, 2.0 * PI * f);
-        y.push(
-            mna::input_impedance(&merged.netlist, &board.op_amp, s)
-                .map(|z| z.norm())
-                .unwrap_or(f64::NAN),
-        );
-    }
-    Some(Curve {
-        label: "|Z in|".into(),
-        x: freqs,
-        y,
-    })
+/// What [`built_sweep`] gives at each frequency.
+struct BuiltSweep {
+    /// The board's response.
+    sweep: Sweep,
+    /// Each stage's output relative to the input, dB (`levels[stage][frequency]`).
+    levels: Vec<Vec<f64>>,
+    /// |Z| seen by the source at the input, Ω (NaN where the input draws no current).
+    z_in_ohm: Vec<f64>,
 }
 
 /// Composes the design of `state` with [`pipeline::compose`] (the command line's composer) and
@@ -449,7 +482,11 @@ pub fn compose_timed(state: &LinkState, watch: &mut Stopwatch) -> Result<PageMod
     let board = &design.board;
     let ideal = ideal_sweep(synthesis, &freqs);
     watch.lap("ideal sweep");
-    let (built, level_curves) = built_sweep(board, &freqs)?;
+    let BuiltSweep {
+        sweep: built,
+        levels: level_curves,
+        z_in_ohm,
+    } = built_sweep(board, &freqs)?;
     watch.lap("built sweep");
     let analyses = Analyses::of(&design, &freqs, &level_curves, watch);
     let to_hz = |p: &Complex64| p / (2.0 * PI);
@@ -470,11 +507,11 @@ pub fn compose_timed(state: &LinkState, watch: &mut Stopwatch) -> Result<PageMod
         },
         step_ideal: analyses.step_ideal.clone(),
         step_built: analyses.step_built.clone(),
-        impedance: {
-            let z = input_impedance(board, &freqs, 4);
-            watch.lap("input impedance");
-            z
-        },
+        impedance: Some(Curve {
+            label: "|Z in|".into(),
+            x: freqs.clone(),
+            y: z_in_ohm,
+        }),
         noise_total: analyses.noise_total.clone(),
         noise_parts: analyses.noise_parts.clone(),
         levels: if analyses.levels.is_empty() {
@@ -1469,7 +1506,11 @@ mod tests {
                 .copied()
                 .step_by(20)
                 .collect();
-            let (fast, levels) = built_sweep(board, &freqs).unwrap_or_else(|e| panic!("{e}"));
+            let BuiltSweep {
+                sweep: fast,
+                levels,
+                z_in_ohm,
+            } = built_sweep(board, &freqs).unwrap_or_else(|e| panic!("{e}"));
             for (i, &f) in freqs.iter().enumerate() {
                 let s = Complex64::new(0.0, 2.0 * PI * f);
                 let (h, outputs) =
@@ -1482,6 +1523,17 @@ mod tests {
                 for (k, v) in outputs.iter().enumerate() {
                     assert!((levels[k][i] - 20.0 * v.norm().log10()).abs() < 1e-9);
                 }
+                // The input impedance from the same solve equals the general nodal analysis'
+                // source current.
+                let merged = board.netlist();
+                let z = mna::input_impedance(&merged.netlist, &board.op_amp, s)
+                    .unwrap_or_else(|e| panic!("{}", e.message))
+                    .norm();
+                assert!(
+                    (z_in_ohm[i] / z - 1.0).abs() < 1e-9,
+                    "{link} |Zin| at {f} Hz: {} vs {z}",
+                    z_in_ohm[i]
+                );
             }
         }
     }
