@@ -122,6 +122,7 @@ fn bench(c: &mut Criterion) {
     let deg_n = vec![2usize; n_stages];
     let deg_d = vec![3usize; n_stages];
     let mut out = vec![[0.0; RUN_LANES]; n_eval];
+    let mut den = vec![[0.0; RUN_LANES]; n_eval];
     let mut kernel = c.benchmark_group("cascade_kernel_only");
     kernel.throughput(Throughput::Elements((n_eval * n_stages * lanes) as u64));
     kernel.bench_function("4 stages, 203 points, 8 runs in lanes", |b| {
@@ -133,6 +134,7 @@ fn bench(c: &mut Criterion) {
                 &deg_n,
                 &deg_d,
                 width,
+                &mut den,
                 &mut out,
             );
             criterion::black_box(out[0][0])

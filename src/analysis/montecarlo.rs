@@ -342,6 +342,8 @@ struct Batch {
     q: Vec<RunLanes>,
     /// |H|² at every evaluation point.
     h2: Vec<RunLanes>,
+    /// The kernel's running denominator products.
+    den: Vec<RunLanes>,
     /// The readings of each lane's run.
     pass: [bool; RUN_LANES],
     cut_lo_hz: RunLanes,
@@ -841,6 +843,7 @@ impl MonteCarlo {
             w0: vec![[f64::NAN; RUN_LANES]; n_stages],
             q: vec![[f64::NAN; RUN_LANES]; n_stages],
             h2: vec![[0.0; RUN_LANES]; n_eval],
+            den: vec![[0.0; RUN_LANES]; n_eval],
             pass: [false; RUN_LANES],
             cut_lo_hz: [f64::NAN; RUN_LANES],
             cut_hi_hz: [f64::NAN; RUN_LANES],
@@ -972,6 +975,7 @@ impl MonteCarlo {
             &self.batch.deg_n,
             &self.batch.deg_d,
             self.width,
+            &mut self.batch.den,
             &mut self.batch.h2,
         );
         self.evaluate_batch::<V>();
@@ -1680,11 +1684,17 @@ fn h2_lanes<V: Lane8>(
 /// The branch-free cascade kernel, [`RUN_LANES`] runs side by side:
 /// `out[f][l] = Π_k Pn_k,l(x_f) / Π_k Pd_k,l(x_f)`, where stage `k`'s polynomials of run `l` are
 /// `coef_n[k·width + j][l]` (ascending in x, `width` coefficients per stage; Horner's rule starts
-/// at degree `deg_n[k]`, `deg_d[k]`, and any higher coefficient must be zero).
+/// at degree `deg_n[k]`, `deg_d[k]`, and any higher coefficient must be zero). `den` is scratch
+/// of the length of `out`.
 ///
-/// On x86-64 processors with AVX-512F or AVX2 it runs on those registers (selected at run time),
-/// elsewhere (wasm) as plain code. Rust does not fuse multiplies and adds, and every lane does
-/// the same IEEE operations in the same order, so the results are bit-identical on every path.
+/// The work goes stage by stage over all frequencies (the products so far wait in `out` and
+/// `den`), so each pass has a fixed degree and no branches, and its frequencies are independent.
+/// The products are formed in stage order and divided at the end, as a frequency-by-frequency
+/// evaluation would. On x86-64 processors with AVX-512F or AVX2 it runs on those registers
+/// (selected at run time), elsewhere (wasm) as plain code. Rust does not fuse multiplies and
+/// adds, and every lane does the same IEEE operations in the same order, so the results are
+/// bit-identical on every path.
+#[allow(clippy::too_many_arguments)]
 pub fn cascade_kernel_lanes(
     x: &[f64],
     coef_n: &[RunLanes],
@@ -1692,25 +1702,29 @@ pub fn cascade_kernel_lanes(
     deg_n: &[usize],
     deg_d: &[usize],
     width: usize,
+    den: &mut [RunLanes],
     out: &mut [RunLanes],
 ) {
     match Isa::detect() {
         #[cfg(target_arch = "x86_64")]
         // SAFETY: the processor supports AVX-512F (`Isa::detect`).
         Isa::Avx512 => unsafe {
-            cascade_kernel_lanes_avx512(x, coef_n, coef_d, deg_n, deg_d, width, out)
+            cascade_kernel_lanes_avx512(x, coef_n, coef_d, deg_n, deg_d, width, den, out)
         },
         #[cfg(target_arch = "x86_64")]
         // SAFETY: the processor supports AVX2 (`Isa::detect`).
         Isa::Avx2 => unsafe {
-            cascade_kernel_lanes_avx2(x, coef_n, coef_d, deg_n, deg_d, width, out)
+            cascade_kernel_lanes_avx2(x, coef_n, coef_d, deg_n, deg_d, width, den, out)
         },
-        _ => cascade_kernel_lanes_body::<lanes::Plain>(x, coef_n, coef_d, deg_n, deg_d, width, out),
+        _ => cascade_kernel_lanes_body::<lanes::Plain>(
+            x, coef_n, coef_d, deg_n, deg_d, width, den, out,
+        ),
     }
 }
 
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
+#[allow(clippy::too_many_arguments)]
 unsafe fn cascade_kernel_lanes_avx2(
     x: &[f64],
     coef_n: &[RunLanes],
@@ -1718,13 +1732,15 @@ unsafe fn cascade_kernel_lanes_avx2(
     deg_n: &[usize],
     deg_d: &[usize],
     width: usize,
+    den: &mut [RunLanes],
     out: &mut [RunLanes],
 ) {
-    cascade_kernel_lanes_body::<lanes::Avx2>(x, coef_n, coef_d, deg_n, deg_d, width, out);
+    cascade_kernel_lanes_body::<lanes::Avx2>(x, coef_n, coef_d, deg_n, deg_d, width, den, out);
 }
 
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx512f")]
+#[allow(clippy::too_many_arguments)]
 unsafe fn cascade_kernel_lanes_avx512(
     x: &[f64],
     coef_n: &[RunLanes],
@@ -1732,12 +1748,27 @@ unsafe fn cascade_kernel_lanes_avx512(
     deg_n: &[usize],
     deg_d: &[usize],
     width: usize,
+    den: &mut [RunLanes],
     out: &mut [RunLanes],
 ) {
-    cascade_kernel_lanes_body::<lanes::Avx512>(x, coef_n, coef_d, deg_n, deg_d, width, out);
+    cascade_kernel_lanes_body::<lanes::Avx512>(x, coef_n, coef_d, deg_n, deg_d, width, den, out);
+}
+
+/// Where a stage's pass stands in the cascade.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum StagePass {
+    /// The only stage: `out = Pn/Pd`.
+    Only,
+    /// The first of several: `out = Pn`, `den = Pd`.
+    First,
+    /// A middle one: `out ·= Pn`, `den ·= Pd`.
+    Middle,
+    /// The last of several: `out = (out·Pn)/(den·Pd)`.
+    Last,
 }
 
 #[inline(always)]
+#[allow(clippy::too_many_arguments)]
 fn cascade_kernel_lanes_body<V: Lane8>(
     x: &[f64],
     coef_n: &[RunLanes],
@@ -1745,33 +1776,115 @@ fn cascade_kernel_lanes_body<V: Lane8>(
     deg_n: &[usize],
     deg_d: &[usize],
     width: usize,
+    den: &mut [RunLanes],
     out: &mut [RunLanes],
 ) {
     let n_stages = deg_n.len().min(deg_d.len());
     if width == 0 || coef_n.len() < n_stages * width || coef_d.len() < n_stages * width {
         return;
     }
-    for (&xf, o) in x.iter().zip(out.iter_mut()) {
-        let xv = V::splat(xf);
-        let mut num = V::splat(1.0);
-        let mut den = V::splat(1.0);
-        for k in 0..n_stages {
-            let row_n = &coef_n[k * width..(k + 1) * width];
-            let row_d = &coef_d[k * width..(k + 1) * width];
-            let dn = deg_n[k].min(width - 1);
-            let dd = deg_d[k].min(width - 1);
-            let mut pn = V::load(&row_n[dn]);
-            for c in row_n[..dn].iter().rev() {
-                pn = pn.mul(xv).add(V::load(c));
-            }
-            let mut pd = V::load(&row_d[dd]);
-            for c in row_d[..dd].iter().rev() {
-                pd = pd.mul(xv).add(V::load(c));
-            }
-            num = num.mul(pn);
-            den = den.mul(pd);
+    let n = x.len().min(den.len()).min(out.len());
+    let (x, den, out) = (&x[..n], &mut den[..n], &mut out[..n]);
+    for k in 0..n_stages {
+        let pass = match (k, n_stages) {
+            (_, 1) => StagePass::Only,
+            (0, _) => StagePass::First,
+            (k, n) if k + 1 == n => StagePass::Last,
+            _ => StagePass::Middle,
+        };
+        let row_n = &coef_n[k * width..(k + 1) * width];
+        let row_d = &coef_d[k * width..(k + 1) * width];
+        let nn = deg_n[k].min(width - 1) + 1;
+        let nd = deg_d[k].min(width - 1) + 1;
+        // The common sizes with fixed coefficient counts (unrolled Horner loops).
+        macro_rules! fixed {
+            ($($a:literal, $b:literal);*) => {
+                match (nn, nd) {
+                    $(($a, $b) => stage_pass::<V, $a, $b>(x, row_n, row_d, pass, den, out),)*
+                    _ => stage_pass_any::<V>(x, &row_n[..nn], &row_d[..nd], pass, den, out),
+                }
+            };
         }
-        num.div(den).store(o);
+        fixed!(1, 1; 1, 2; 1, 3; 1, 4; 2, 1; 2, 2; 2, 3; 2, 4;
+               3, 1; 3, 2; 3, 3; 3, 4; 4, 1; 4, 2; 4, 3; 4, 4);
+    }
+}
+
+/// One stage's pass of [`cascade_kernel_lanes`] with `NN` numerator and `ND` denominator
+/// coefficients.
+#[inline(always)]
+fn stage_pass<V: Lane8, const NN: usize, const ND: usize>(
+    x: &[f64],
+    row_n: &[RunLanes],
+    row_d: &[RunLanes],
+    pass: StagePass,
+    den: &mut [RunLanes],
+    out: &mut [RunLanes],
+) {
+    let mut cn = [V::splat(0.0); NN];
+    for (c, r) in cn.iter_mut().zip(row_n) {
+        *c = V::load(r);
+    }
+    let mut cd = [V::splat(0.0); ND];
+    for (c, r) in cd.iter_mut().zip(row_d) {
+        *c = V::load(r);
+    }
+    for ((&xf, o), d) in x.iter().zip(out.iter_mut()).zip(den.iter_mut()) {
+        let xv = V::splat(xf);
+        let mut pn = cn[NN - 1];
+        for j in (0..NN - 1).rev() {
+            pn = pn.mul(xv).add(cn[j]);
+        }
+        let mut pd = cd[ND - 1];
+        for j in (0..ND - 1).rev() {
+            pd = pd.mul(xv).add(cd[j]);
+        }
+        combine(pass, pn, pd, d, o);
+    }
+}
+
+/// [`stage_pass`] for any coefficient counts.
+#[inline(always)]
+fn stage_pass_any<V: Lane8>(
+    x: &[f64],
+    row_n: &[RunLanes],
+    row_d: &[RunLanes],
+    pass: StagePass,
+    den: &mut [RunLanes],
+    out: &mut [RunLanes],
+) {
+    let (Some((top_n, rest_n)), Some((top_d, rest_d))) = (row_n.split_last(), row_d.split_last())
+    else {
+        return;
+    };
+    for ((&xf, o), d) in x.iter().zip(out.iter_mut()).zip(den.iter_mut()) {
+        let xv = V::splat(xf);
+        let mut pn = V::load(top_n);
+        for c in rest_n.iter().rev() {
+            pn = pn.mul(xv).add(V::load(c));
+        }
+        let mut pd = V::load(top_d);
+        for c in rest_d.iter().rev() {
+            pd = pd.mul(xv).add(V::load(c));
+        }
+        combine(pass, pn, pd, d, o);
+    }
+}
+
+/// Folds one stage's `Pn`, `Pd` at one frequency into the running products.
+#[inline(always)]
+fn combine<V: Lane8>(pass: StagePass, pn: V, pd: V, den: &mut RunLanes, out: &mut RunLanes) {
+    match pass {
+        StagePass::Only => pn.div(pd).store(out),
+        StagePass::First => {
+            pn.store(out);
+            pd.store(den);
+        }
+        StagePass::Middle => {
+            V::load(out).mul(pn).store(out);
+            V::load(den).mul(pd).store(den);
+        }
+        StagePass::Last => V::load(out).mul(pn).div(V::load(den).mul(pd)).store(out),
     }
 }
 
