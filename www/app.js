@@ -206,10 +206,21 @@
 
   // ---- canvases ----
   function dpr() { return Math.min(Math.max(window.devicePixelRatio || 1, 1), 3); }
-  function fitCanvas(canvas) {
+  /* The CSS size of every canvas, read while the layout is still the one on screen: read after
+   * the stage cards and tables are rewritten, it would make the browser lay the page out there
+   * and then, instead of once, after the update, in the frame that shows it. */
+  function canvasSizes() {
+    var sizes = new Map();
+    $$('canvas').forEach(function (c) { sizes.set(c, [c.clientWidth, c.clientHeight]); });
+    return sizes;
+  }
+  function sizeOf(canvas, sizes) {
+    return (sizes && sizes.get(canvas)) || [canvas.clientWidth, canvas.clientHeight];
+  }
+  function fitCanvas(canvas, size) {
     var ratio = dpr();
-    var w = Math.max(1, Math.round(canvas.clientWidth * ratio));
-    var h = Math.max(1, Math.round(canvas.clientHeight * ratio));
+    var w = Math.max(1, Math.round(size[0] * ratio));
+    var h = Math.max(1, Math.round(size[1] * ratio));
     if (canvas.width !== w) canvas.width = w;
     if (canvas.height !== h) canvas.height = h;
   }
@@ -218,15 +229,17 @@
   }
   var printing = false;   // the report prints dark ink on white whatever the screen theme
   function theme() { return printing ? false : isDark(); }
-  function drawCanvas(canvas) {
-    if (!canvas.clientWidth) return;
-    fitCanvas(canvas);
+  function drawCanvas(canvas, sizes) {
+    var size = sizeOf(canvas, sizes);
+    if (!size[0]) return;
+    fitCanvas(canvas, size);
     engine.draw_plot(plotOf(canvas), canvas, theme(), dpr(), canvas.hasAttribute('data-compact'));
   }
-  function drawAll() {
-    $$('canvas[data-plot]').forEach(drawCanvas);
+  /* Draws every plot and schematic; `sizes` (from canvasSizes) spares reading the layout. */
+  function drawAll(sizes) {
+    $$('canvas[data-plot]').forEach(function (canvas) { drawCanvas(canvas, sizes); });
     $$('.card canvas').forEach(function (canvas) {
-      fitCanvas(canvas);
+      fitCanvas(canvas, sizeOf(canvas, sizes));
       engine.draw_schematic(Number(canvas.getAttribute('data-stage')), canvas, theme(), dpr());
     });
   }
@@ -412,6 +425,7 @@
   }
 
   function render(view, initial) {
+    var sizes = view.committed ? canvasSizes() : null;
     var loose = showMessages(view.errors);
     var notes = view.ignored.slice();
     if (initial) view.errors.forEach(function (e) { notes.push(e.key + ': ' + e.message); });
@@ -424,7 +438,7 @@
       renderStages(view.stages);
       renderCompare(view);
       var d0 = performance.now();
-      drawAll();
+      drawAll(sizes);
       document.body.setAttribute('data-draw-ms', (performance.now() - d0).toFixed(2));
       state.committed = true;
       setStale(false);
@@ -435,6 +449,27 @@
     return view.committed;
   }
 
+  /* The address bar follows the design, a moment after the typing stops: replacing the history
+   * entry is a round trip to the browser that costs more than the whole redraw, and Chromium
+   * refuses it when it comes hundreds of times in a few seconds. Leaving the page, copying the
+   * link or printing writes it at once. */
+  var address = { timer: 0, query: null };
+  function keepAddress(query) {
+    address.query = query;
+    window.clearTimeout(address.timer);
+    address.timer = window.setTimeout(writeAddress, 250);
+  }
+  function writeAddress() {
+    window.clearTimeout(address.timer);
+    address.timer = 0;
+    if (address.query === null) return;
+    var query = address.query;
+    address.query = null;
+    if (window.location.search !== '?' + query) {
+      window.history.replaceState(null, '', window.location.pathname + '?' + query + window.location.hash);
+    }
+  }
+
   // ---- the live loop: every edit recomputes on the next frame ----
   function update(initial) {
     var query = readForm();
@@ -442,8 +477,7 @@
     // design on screen (and a study running on it) stays.
     if (!initial && query === state.lastQuery) return null;
     state.lastQuery = query;
-    var url = window.location.pathname + '?' + query + window.location.hash;
-    if (window.location.search !== '?' + query) window.history.replaceState(null, '', url);
+    keepAddress(query);
     var t0 = performance.now();
     var view = engine.evaluate(query, !!initial);
     var t1 = performance.now();
@@ -515,7 +549,8 @@
     function compose() {
       syncVisibility();
       var query = readForm();
-      window.history.replaceState(null, '', window.location.pathname + '?' + query + window.location.hash);
+      address.query = query;
+      writeAddress();
       state.lastQuery = query;
       return engine.evaluate(query, true);
     }
@@ -656,7 +691,7 @@
           window.requestAnimationFrame(function () {
             if (job.cancelled) return;
             drawCanvas($('#plot-main'));
-            $$('canvas[data-plot^="hist-"], .thumb canvas[data-plot="magnitude"]').forEach(drawCanvas);
+            $$('canvas[data-plot^="hist-"], .thumb canvas[data-plot="magnitude"]').forEach(function (canvas) { drawCanvas(canvas); });
             state.studies += 1;
             document.body.setAttribute('data-study-ms', String(Math.round(performance.now() - job.t0)));
             document.body.setAttribute('data-study-done', String(state.studies));
@@ -720,6 +755,7 @@
     });
     $$('figure.plot').forEach(wireReadout);
     $('#copy-link').addEventListener('click', function () {
+      writeAddress();
       var href = window.location.href;
       var done = function () { status('link copied'); };
       if (navigator.clipboard && navigator.clipboard.writeText) {
@@ -747,7 +783,9 @@
       event.target.value = '';
     });
     $('#print').addEventListener('click', function () { window.print(); });
-    window.addEventListener('beforeprint', preparePrint);
+    window.addEventListener('beforeprint', function () { writeAddress(); preparePrint(); });
+    window.addEventListener('pagehide', writeAddress);
+    document.addEventListener('visibilitychange', writeAddress);
     window.addEventListener('afterprint', function () { printing = false; if (state.committed) drawAll(); });
     $('#notice-close').addEventListener('click', function () { $('#notice').hidden = true; });
     $('#study-run').addEventListener('click', runStudy);
@@ -757,8 +795,14 @@
     });
     if (dark && dark.addEventListener) dark.addEventListener('change', function () { if (state.committed) drawAll(); });
     if (window.ResizeObserver) {
+      // Only a change of width resizes the canvases (their heights are fixed by the style
+      // sheet); the column growing taller as the text of an edit changes asks for no redraw.
       var pending = 0;
-      new ResizeObserver(function () {
+      var width = -1;
+      new ResizeObserver(function (entries) {
+        var w = entries[entries.length - 1].contentRect.width;
+        if (w === width) return;
+        width = w;
         if (pending || !state.committed) return;
         pending = window.requestAnimationFrame(function () { pending = 0; drawAll(); });
       }).observe($('.work'));
