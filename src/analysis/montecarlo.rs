@@ -1445,22 +1445,34 @@ impl MonteCarlo {
                 db: Vec::with_capacity(n_grid),
             })
             .collect();
-        let mut column: Vec<f32> = Vec::with_capacity(n);
+        // Frequencies are gathered a group at a time: a block's rows of the group are contiguous,
+        // so the table is read front to back instead of one line per block and frequency.
+        const GROUP: usize = 8;
+        let mut columns: Vec<Vec<f32>> = vec![Vec::with_capacity(n); GROUP.min(n_grid)];
+        let mut scratch = PercentileScratch::default();
         let n_blocks = n.div_ceil(SAMPLE_BLOCK);
-        for f in 0..n_grid {
-            column.clear();
-            for b in 0..n_blocks {
-                let start = b * SAMPLE_BLOCK * n_grid + f * SAMPLE_BLOCK;
-                let count = SAMPLE_BLOCK.min(n - b * SAMPLE_BLOCK);
-                column.extend(
-                    self.samples_h2[start..start + count]
-                        .iter()
-                        .filter(|v| !v.is_nan()),
-                );
+        for f0 in (0..n_grid).step_by(GROUP) {
+            let group = GROUP.min(n_grid - f0);
+            for c in columns.iter_mut() {
+                c.clear();
             }
-            let values = percentiles_f32_by_histogram(&column, pct);
-            for (c, v) in curves.iter_mut().zip(values) {
-                c.db.push(to_db(v));
+            for b in 0..n_blocks {
+                let count = SAMPLE_BLOCK.min(n - b * SAMPLE_BLOCK);
+                let row0 = b * SAMPLE_BLOCK * n_grid + f0 * SAMPLE_BLOCK;
+                let rows = &self.samples_h2[row0..row0 + group * SAMPLE_BLOCK];
+                for (c, row) in columns.iter_mut().zip(rows.chunks_exact(SAMPLE_BLOCK)) {
+                    c.extend_from_slice(&row[..count]);
+                }
+            }
+            for c in columns.iter_mut().take(group) {
+                // NaN marks a run without readings (and a reading that is not a number).
+                if c.iter().any(|v| v.is_nan()) {
+                    c.retain(|v| !v.is_nan());
+                }
+                let values = percentiles_f32_with(c, pct, &mut scratch);
+                for (curve, v) in curves.iter_mut().zip(values) {
+                    curve.db.push(to_db(v));
+                }
             }
         }
         let nominal_db: Vec<f64> = self.nominal_h2.iter().map(|&v| to_db(v)).collect();
@@ -2288,14 +2300,31 @@ pub mod lanes {
     }
 }
 
-/// A key of an f32 whose unsigned order is the float's total order.
+/// A key of an f32 whose unsigned order is the float's total order (negative values have every
+/// bit flipped, the others only the sign bit; written without a branch so the passes over the
+/// samples vectorise).
+#[inline(always)]
 fn order_key(v: f32) -> u32 {
     let b = v.to_bits();
-    if b & 0x8000_0000 != 0 {
-        !b
-    } else {
-        b | 0x8000_0000
-    }
+    let flip = ((b as i32) >> 31) as u32 | 0x8000_0000;
+    b ^ flip
+}
+
+/// Buckets of the histogram in [`percentiles_f32_by_histogram`].
+const PCT_BUCKETS: usize = 4096;
+
+/// Reusable working memory of [`percentiles_f32_by_histogram`].
+#[derive(Debug, Default)]
+struct PercentileScratch {
+    /// Four interleaved count tables (`counts[b·4 + t]`): runs of equal buckets update different
+    /// tables, so the increments do not wait on each other.
+    counts: Vec<u32>,
+    /// Samples before each bucket.
+    starts: Vec<usize>,
+    /// Per bucket, 1 + its slot among the wanted buckets, 0 when not wanted.
+    slot_of: Vec<u16>,
+    /// The samples of each wanted bucket.
+    members: Vec<Vec<f32>>,
 }
 
 /// Linear-interpolation percentiles (as [`percentile_sorted`]) of f32 samples, exactly, in three
@@ -2303,7 +2332,15 @@ fn order_key(v: f32) -> u32 {
 /// buckets that hold the wanted order statistics are collected and sorted. The samples of one
 /// frequency cluster closely, and this avoids a selection per percentile over all of them.
 pub fn percentiles_f32_by_histogram(data: &[f32], percentiles: &[f64]) -> Vec<f64> {
-    const BUCKETS: usize = 4096;
+    percentiles_f32_with(data, percentiles, &mut PercentileScratch::default())
+}
+
+/// [`percentiles_f32_by_histogram`] with reusable working memory.
+fn percentiles_f32_with(
+    data: &[f32],
+    percentiles: &[f64],
+    scratch: &mut PercentileScratch,
+) -> Vec<f64> {
     let n = data.len();
     if n == 0 {
         return vec![f64::NAN; percentiles.len()];
@@ -2313,12 +2350,21 @@ pub fn percentiles_f32_by_histogram(data: &[f32], percentiles: &[f64]) -> Vec<f6
         (lo.min(k), hi.max(k))
     });
     let mut shift = 0u32;
-    while ((kmax - kmin) >> shift) as usize >= BUCKETS {
+    while ((kmax - kmin) >> shift) as usize >= PCT_BUCKETS {
         shift += 1;
     }
-    let mut counts = vec![0usize; BUCKETS];
-    for &v in data {
-        counts[((order_key(v) - kmin) >> shift) as usize] += 1;
+    let bucket = |v: f32| ((order_key(v) - kmin) >> shift) as usize;
+    let counts = &mut scratch.counts;
+    counts.clear();
+    counts.resize(4 * PCT_BUCKETS, 0);
+    let mut quads = data.chunks_exact(4);
+    for q in quads.by_ref() {
+        for (t, &v) in q.iter().enumerate() {
+            counts[bucket(v) * 4 + t] += 1;
+        }
+    }
+    for &v in quads.remainder() {
+        counts[bucket(v) * 4] += 1;
     }
     // Ranks wanted: floor(pos) and, when interpolating, the next one.
     let plan: Vec<(usize, usize, f64)> = percentiles
@@ -2330,10 +2376,15 @@ pub fn percentiles_f32_by_histogram(data: &[f32], percentiles: &[f64]) -> Vec<f6
         })
         .collect();
     // Bucket of each rank, and the rank's place inside its bucket.
-    let mut starts = vec![0usize; BUCKETS + 1];
-    for b in 0..BUCKETS {
-        starts[b + 1] = starts[b] + counts[b];
+    let starts = &mut scratch.starts;
+    starts.clear();
+    starts.push(0);
+    let mut total = 0usize;
+    for c in counts.chunks_exact(4) {
+        total += c.iter().map(|&v| v as usize).sum::<usize>();
+        starts.push(total);
     }
+    let starts = &scratch.starts;
     let bucket_of = |rank: usize| -> usize { starts.partition_point(|&s| s <= rank) - 1 };
     let mut wanted: Vec<usize> = plan
         .iter()
@@ -2341,14 +2392,24 @@ pub fn percentiles_f32_by_histogram(data: &[f32], percentiles: &[f64]) -> Vec<f6
         .collect();
     wanted.sort_unstable();
     wanted.dedup();
-    let mut members: Vec<Vec<f32>> = vec![Vec::new(); wanted.len()];
+    let slot_of = &mut scratch.slot_of;
+    slot_of.clear();
+    slot_of.resize(PCT_BUCKETS, 0);
+    for (slot, &b) in wanted.iter().enumerate() {
+        slot_of[b] = (slot + 1) as u16;
+    }
+    let members = &mut scratch.members;
+    members.resize_with(wanted.len().max(members.len()), Vec::new);
+    for m in members.iter_mut() {
+        m.clear();
+    }
     for &v in data {
-        let b = ((order_key(v) - kmin) >> shift) as usize;
-        if let Ok(slot) = wanted.binary_search(&b) {
-            members[slot].push(v);
+        let slot = slot_of[bucket(v)];
+        if slot != 0 {
+            members[usize::from(slot) - 1].push(v);
         }
     }
-    for m in members.iter_mut() {
+    for m in members.iter_mut().take(wanted.len()) {
         m.sort_unstable_by(|a, b| a.total_cmp(b));
     }
     let value_at = |rank: usize| -> f64 {
