@@ -48,6 +48,19 @@ pub struct Levels {
     pub warnings: Vec<String>,
 }
 
+/// `vin` and `swing` must be positive finite amplitudes.
+fn check_amplitudes(vin_pk: f64, swing_pk: f64) -> Result<(), AnalysisError> {
+    for (key, v) in [("vin", vin_pk), ("swing", swing_pk)] {
+        if !(v.is_finite() && v > 0.0) {
+            return Err(AnalysisError::Input(InputError::new(
+                key,
+                format!("{v} V; accepted a positive amplitude"),
+            )));
+        }
+    }
+    Ok(())
+}
+
 /// Every stage output relative to the input, over `freqs_hz`, for the board of `stages`.
 ///
 /// # Errors
@@ -60,14 +73,7 @@ pub fn stages_levels(
     vin_pk: f64,
     swing_pk: f64,
 ) -> Result<Levels, AnalysisError> {
-    for (key, v) in [("vin", vin_pk), ("swing", swing_pk)] {
-        if !(v.is_finite() && v > 0.0) {
-            return Err(AnalysisError::Input(InputError::new(
-                key,
-                format!("{v} V; accepted a positive amplitude"),
-            )));
-        }
-    }
+    check_amplitudes(vin_pk, swing_pk)?;
     if freqs_hz.is_empty() || freqs_hz.iter().any(|f| !(f.is_finite() && *f > 0.0)) {
         return Err(AnalysisError::Input(InputError::new(
             "points",
@@ -113,14 +119,7 @@ pub fn from_curves(
     vin_pk: f64,
     swing_pk: f64,
 ) -> Result<Levels, AnalysisError> {
-    for (key, v) in [("vin", vin_pk), ("swing", swing_pk)] {
-        if !(v.is_finite() && v > 0.0) {
-            return Err(AnalysisError::Input(InputError::new(
-                key,
-                format!("{v} V; accepted a positive amplitude"),
-            )));
-        }
-    }
+    check_amplitudes(vin_pk, swing_pk)?;
     if freqs_hz.is_empty() || curves.iter().any(|c| c.len() != freqs_hz.len()) {
         return Err(AnalysisError::Input(InputError::new(
             "points",
