@@ -214,33 +214,36 @@ impl Multilinear {
                 V::load(m).mul(delta).store(h);
             }
         }
-        let full = n_terms - n_terms % 8;
-        for j in 0..self.k {
-            let rn = &self.a_num[j * n_terms..(j + 1) * n_terms];
-            let rd = &self.a_den[j * n_terms..(j + 1) * n_terms];
-            let mut an = [V::splat(0.0); 8];
-            let mut ad = [V::splat(0.0); 8];
-            for ((cn, cd), m) in rn[..full]
-                .chunks_exact(8)
-                .zip(rd[..full].chunks_exact(8))
-                .zip(mono[..full].chunks_exact(8))
-            {
-                for q in 0..8 {
-                    let mq = V::load(&m[q]);
-                    an[q] = an[q].add(V::splat(cn[q]).mul(mq));
-                    ad[q] = ad[q].add(V::splat(cd[q]).mul(mq));
-                }
-            }
-            for ((&cn, &cd), m) in rn[full..].iter().zip(&rd[full..]).zip(&mono[full..n_terms]) {
-                let mq = V::load(m);
-                an[0] = an[0].add(V::splat(cn).mul(mq));
-                ad[0] = ad[0].add(V::splat(cd).mul(mq));
-            }
-            if let (Some(out_n), Some(out_d)) = (num_u.get_mut(j), den_u.get_mut(j)) {
-                tree(&an).store(out_n);
-                tree(&ad).store(out_d);
+        // N and D one after the other: eight partial sums of one polynomial fit the registers of
+        // every path.
+        for (table, out) in [(&self.a_num, num_u), (&self.a_den, den_u)] {
+            dot_lanes::<V>(table, mono, self.k, out);
+        }
+    }
+}
+
+/// `out[j] = Σ_S table[j·2^P + S]·mono[S]` for `j < k`, lane by lane, with the eight partial
+/// sums (term `S` into sum `S mod 8`, the terms after the last full eight into sum 0) of
+/// [`Multilinear::evaluate`].
+#[inline(always)]
+fn dot_lanes<V: Lane8>(table: &[f64], mono: &[[f64; 8]], k: usize, out: &mut [[f64; 8]]) {
+    let n_terms = mono.len();
+    let full = n_terms - n_terms % 8;
+    for (j, o) in out.iter_mut().enumerate().take(k) {
+        let row = &table[j * n_terms..(j + 1) * n_terms];
+        let mut acc = [V::splat(0.0); 8];
+        for (c, m) in row[..full]
+            .chunks_exact(8)
+            .zip(mono[..full].chunks_exact(8))
+        {
+            for q in 0..8 {
+                acc[q] = acc[q].add(V::splat(c[q]).mul(V::load(&m[q])));
             }
         }
+        for (&c, m) in row[full..].iter().zip(&mono[full..]) {
+            acc[0] = acc[0].add(V::splat(c).mul(V::load(m)));
+        }
+        tree(&acc).store(o);
     }
 }
 
