@@ -5,8 +5,9 @@
 //! "elements/s"). `tools/bench_numpy.py` runs the same textbook computation vectorised in numpy
 //! for comparison. A second group times a whole study of 20,000 runs including set-up and the
 //! statistics of `finish()`, the work behind one `rolloff spread`; a third times the
-//! per-frequency kernel alone, to show how the time of a run divides between its 200 points and
-//! its per-run work (draws, stage polynomials, f0 and Q, cutoff search, statistics).
+//! per-frequency kernel alone for one batch of eight runs side by side (the study works its runs
+//! in batches of eight SIMD lanes), to show how the time of a run divides between its 200 points
+//! and its per-run work (draws, stage polynomials, f0 and Q, cutoff search, statistics).
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use rolloff::analysis::montecarlo::{
