@@ -837,9 +837,14 @@
     engine = core;
     recordDefaults();
     wire();
+    if (typeof rolloffOpening !== 'undefined') rolloffOpening.started = performance.now();
     openQuery(window.location.search);
     // Time from the start of navigation to the first drawn plot (for the benchmark).
     document.body.setAttribute('data-first-draw-ms', performance.now().toFixed(1));
+    if (typeof rolloffOpening !== 'undefined') {
+      rolloffOpening.drawn = performance.now();
+      document.body.setAttribute('data-opening', JSON.stringify(rolloffOpening));
+    }
     document.body.setAttribute('data-ready', '1');
   }
   if (typeof rolloffReady === 'undefined') {

@@ -37,12 +37,21 @@ async function main() {
   const results = {};
 
   const opens = [];
+  const phases = [];
   for (let i = 0; i < N_OPEN; i++) {
     const { page, context } = await h.openPage(browser, LINK + '&runs=1');
     opens.push(Number(await page.getAttribute('body', 'data-first-draw-ms')));
+    phases.push(JSON.parse((await page.getAttribute('body', 'data-opening')) || '{}'));
     await context.close();
   }
   results.open_to_first_plot_ms = { median: median(opens), runs: opens };
+  // When each step of opening ended (ms since navigation start, median of the opens): the page
+  // script running, the wasm bytes decoded, the core compiled, the page's code started, and the
+  // first design drawn.
+  results.opening_steps_ms = {};
+  for (const key of ['script', 'decoded', 'compiled', 'started', 'drawn']) {
+    results.opening_steps_ms[key] = median(phases.map((p) => p[key]).filter(Number.isFinite));
+  }
 
   const { page, context } = await h.openPage(browser, LINK);
   await page.uncheck('#study-auto');
