@@ -76,7 +76,7 @@ pub const MAX_TOLERANCE_PCT: f64 = 50.0;
 /// one line per block.
 const SAMPLE_BLOCK: usize = 16;
 /// Runs evaluated side by side in the lanes of the batch work (eight f64 are one AVX-512
-/// register, two AVX2 registers, four wasm SIMD registers).
+/// register or two AVX2 registers; wasm runs the lanes as plain code).
 pub const RUN_LANES: usize = 8;
 /// One f64 per run of a batch.
 pub type RunLanes = [f64; RUN_LANES];

@@ -10,8 +10,10 @@
 //! polynomials follow by inclusion–exclusion from D at the 2^P corners `y_i ∈ {y_i,nom,
 //! 2·y_i,nom}`: `a_S = Σ_{T⊆S} (−1)^{|S|−|T|} D(corner T)` (each corner fitted once by the circle
 //! fit of [`super::poly`]). A run costs 2^P products for the monomials and 2^P multiply-adds per
-//! coefficient. Used for stages of up to [`MAX_PARTS`] resistors and capacitors; larger stages use
-//! the real-point solve of [`super::fastfit`].
+//! coefficient; the tolerance study evaluates eight runs at a time, one per SIMD lane
+//! ([`Multilinear::evaluate_lanes`], bit-identical to [`Multilinear::evaluate`] lane by lane).
+//! Used for stages of up to [`MAX_PARTS`] resistors and capacitors; larger stages use the
+//! real-point solve of [`super::fastfit`].
 
 use super::circuit::Compiled;
 use super::montecarlo::lanes::Lane8;
