@@ -13,7 +13,7 @@
 //! H(s) = −(R2/R1)·s·R1·C1 / (1 + s·R1·C1), w0 = 1/(R1·C1).
 
 use super::sallen_key::{divider_gain, gain_divider, solve_divider};
-use super::{slot, Achieved, Layout, RatioRule, Realization, Slot, Target};
+use super::{slot, Achieved, Layout, Realization, Slot, Target};
 use crate::eseries::PartClass::{Capacitor, Resistor};
 use crate::eseries::Series;
 use std::f64::consts::PI;
@@ -51,10 +51,6 @@ fn buffered_layout(gain_network: bool, first: [Slot; 2]) -> Layout {
     }
 }
 
-fn no_ratio(_t: &Target, _m: f64) -> Result<(f64, Option<f64>), String> {
-    Err("a first-order stage has no resistor ratio to set".into())
-}
-
 impl Realization for BufferedLowPass {
     fn layout(&self, gain_network: bool) -> Layout {
         buffered_layout(
@@ -81,18 +77,6 @@ impl Realization for BufferedLowPass {
             q: None,
             gain: divider_gain(v, 2)?,
         })
-    }
-    fn ratio_rule(&self, _t: &Target) -> Option<RatioRule> {
-        None
-    }
-    fn cratio_for_rratio(&self, t: &Target, m: f64) -> Result<(f64, Option<f64>), String> {
-        no_ratio(t, m)
-    }
-    fn rratio_meaning(&self) -> &'static str {
-        "none"
-    }
-    fn hint_of(&self, _v: &[f64]) -> Option<f64> {
-        None
     }
     fn set_capacitors(
         &self,
@@ -132,18 +116,6 @@ impl Realization for BufferedHighPass {
             q: None,
             gain: divider_gain(v, 2)?,
         })
-    }
-    fn ratio_rule(&self, _t: &Target) -> Option<RatioRule> {
-        None
-    }
-    fn cratio_for_rratio(&self, t: &Target, m: f64) -> Result<(f64, Option<f64>), String> {
-        no_ratio(t, m)
-    }
-    fn rratio_meaning(&self) -> &'static str {
-        "none"
-    }
-    fn hint_of(&self, _v: &[f64]) -> Option<f64> {
-        None
     }
     fn set_capacitors(
         &self,
@@ -192,18 +164,6 @@ impl Realization for InvertingLowPass {
             gain: -r2 / r1,
         })
     }
-    fn ratio_rule(&self, _t: &Target) -> Option<RatioRule> {
-        None
-    }
-    fn cratio_for_rratio(&self, t: &Target, m: f64) -> Result<(f64, Option<f64>), String> {
-        no_ratio(t, m)
-    }
-    fn rratio_meaning(&self) -> &'static str {
-        "none"
-    }
-    fn hint_of(&self, _v: &[f64]) -> Option<f64> {
-        None
-    }
     fn set_capacitors(
         &self,
         _t: &Target,
@@ -250,18 +210,6 @@ impl Realization for InvertingHighPass {
             q: None,
             gain: -r2 / r1,
         })
-    }
-    fn ratio_rule(&self, _t: &Target) -> Option<RatioRule> {
-        None
-    }
-    fn cratio_for_rratio(&self, t: &Target, m: f64) -> Result<(f64, Option<f64>), String> {
-        no_ratio(t, m)
-    }
-    fn rratio_meaning(&self) -> &'static str {
-        "none"
-    }
-    fn hint_of(&self, _v: &[f64]) -> Option<f64> {
-        None
     }
     fn set_capacitors(
         &self,

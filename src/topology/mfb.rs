@@ -225,10 +225,6 @@ impl Realization for HighPass {
         "R2/R1, feedback resistor over ground resistor"
     }
 
-    fn hint_of(&self, _v: &[f64]) -> Option<f64> {
-        None
-    }
-
     fn set_capacitors(
         &self,
         t: &Target,
@@ -351,10 +347,6 @@ impl Realization for BandPass {
 
     fn rratio_meaning(&self) -> &'static str {
         "R3/R1, feedback resistor over input resistor"
-    }
-
-    fn hint_of(&self, _v: &[f64]) -> Option<f64> {
-        None
     }
 
     fn set_capacitors(

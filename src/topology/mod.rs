@@ -336,19 +336,31 @@ pub(crate) trait Realization: Sync {
     /// f0, Q and gain of these values with an ideal op amp; `None` for a wrong-length slice or
     /// values that are not positive.
     fn achieved(&self, values: &[f64]) -> Option<Achieved>;
-    /// The capacitor-ratio rule; `None` for circuits without a ratio freedom.
-    fn ratio_rule(&self, target: &Target) -> Option<RatioRule>;
+    /// The capacitor-ratio rule; `None` for circuits without a ratio freedom (the default, which
+    /// the first-order stages keep).
+    fn ratio_rule(&self, _target: &Target) -> Option<RatioRule> {
+        None
+    }
     /// The capacitor ratio that gives resistor ratio `r_ratio`, and the root hint for
-    /// [`Realization::solve`]. `Err` holds the sentence on why it cannot (with the bound).
+    /// [`Realization::solve`]. `Err` holds the sentence on why it cannot (with the bound). The
+    /// default is for circuits without a ratio freedom: [`design_stage`] asks only circuits that
+    /// have a [`Realization::ratio_rule`], so the sentence is a safeguard.
     fn cratio_for_rratio(
         &self,
-        target: &Target,
-        r_ratio: f64,
-    ) -> Result<(f64, Option<f64>), String>;
-    /// What `rratio` divides, in words.
-    fn rratio_meaning(&self) -> &'static str;
-    /// The ratio measured for root choice, when the circuit has two solutions.
-    fn hint_of(&self, values: &[f64]) -> Option<f64>;
+        _target: &Target,
+        _r_ratio: f64,
+    ) -> Result<(f64, Option<f64>), String> {
+        Err("a first-order stage has no resistor ratio to set".into())
+    }
+    /// What `rratio` divides, in words; "none" by default (no ratio freedom).
+    fn rratio_meaning(&self) -> &'static str {
+        "none"
+    }
+    /// The ratio measured for root choice, when the circuit has two solutions; `None` by default
+    /// (one solution, or none to choose between).
+    fn hint_of(&self, _values: &[f64]) -> Option<f64> {
+        None
+    }
     /// Sets the free capacitors from the level-setting capacitor `c_ref` and the ratio capacitor
     /// value `c_ratio` (already `n · c_ref` or a series value near it).
     /// `c_series` rounds a capacitor whose value sets the gain (the MFB high-pass C3 = C1/K),

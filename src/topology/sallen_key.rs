@@ -290,10 +290,6 @@ impl Realization for HighPass {
         "R2/R1, ground resistor over feedback resistor"
     }
 
-    fn hint_of(&self, _v: &[f64]) -> Option<f64> {
-        None
-    }
-
     fn set_capacitors(
         &self,
         _t: &Target,
