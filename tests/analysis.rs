@@ -101,7 +101,7 @@ fn requirement(class: ResponseClass, family: Family, order: usize, fc_hz: f64) -
         bw_hz: (class == ResponseClass::BandPass).then_some(fc_hz / 2.0),
         mask: None,
         gain_db: 0.0,
-        margin: rolloff::spec::MarginPlacement::Split,
+        margin: MarginPlacement::Split,
     }
 }
 

@@ -74,6 +74,95 @@ fn drift(net: &StageNetlist, op: &OpAmp, ideal: &StageFactor) -> f64 {
     }
 }
 
+/// Lowest and highest GBW searched, Hz.
+const GBW_RANGE_HZ: (f64, f64) = (1.0, 1e12);
+/// Width of the final bracket in ln(GBW): the least GBW is found to 0.1 %.
+const GBW_TOLERANCE_LN: f64 = 1e-3;
+
+/// The least GBW at which `drift(gbw) ≤ limit`, to [`GBW_TOLERANCE_LN`] (the bracket's upper
+/// end, which passes), or `None` when even [`GBW_RANGE_HZ`]'s top fails. The drift falls as the
+/// GBW rises (it goes as 1/GBW once the GBW is well above the stage's f0), so the search starts
+/// from the guess `GBW·drift/limit` made from the board's own op amp, brackets it by factors of
+/// two, and closes the bracket by the Illinois variant of regula falsi on `ln drift − ln limit`
+/// over `ln GBW`, which is nearly linear there.
+fn least_gbw(
+    drift: impl Fn(f64) -> f64,
+    limit: f64,
+    board_gbw_hz: f64,
+    board_drift: f64,
+) -> Option<f64> {
+    let (lo_hz, hi_hz) = GBW_RANGE_HZ;
+    let excess = |u: f64| {
+        let d = drift(u.exp());
+        if d.is_nan() {
+            f64::INFINITY
+        } else {
+            d.ln() - limit.ln()
+        }
+    };
+    let (u_min, u_max) = (lo_hz.ln(), hi_hz.ln());
+    let guess = if board_gbw_hz.is_finite() && board_drift.is_finite() && board_drift > 0.0 {
+        (board_gbw_hz.ln() + board_drift.ln() - limit.ln()).clamp(u_min, u_max)
+    } else {
+        0.5 * (u_min + u_max)
+    };
+    // Bracket: `a` fails (excess > 0), `b` passes (excess ≤ 0).
+    let (mut b, mut eb) = (guess, excess(guess));
+    let (mut a, mut ea);
+    if eb <= 0.0 {
+        loop {
+            a = (b - std::f64::consts::LN_2).max(u_min);
+            ea = excess(a);
+            if ea > 0.0 {
+                break;
+            }
+            if a <= u_min {
+                return Some(lo_hz);
+            }
+            (b, eb) = (a, ea);
+        }
+    } else {
+        loop {
+            (a, ea) = (b, eb);
+            if a >= u_max {
+                return None;
+            }
+            b = (a + std::f64::consts::LN_2).min(u_max);
+            eb = excess(b);
+            if eb <= 0.0 {
+                break;
+            }
+        }
+    }
+    let mut side = 0i8;
+    while b - a > GBW_TOLERANCE_LN {
+        let width = b - a;
+        let secant = if ea.is_finite() && eb.is_finite() && ea != eb {
+            (a * eb - b * ea) / (eb - ea)
+        } else {
+            0.5 * (a + b)
+        };
+        // Stay a little inside the bracket so that each step shrinks it.
+        let inset = 0.25 * GBW_TOLERANCE_LN.min(width / 2.0);
+        let m = secant.clamp(a + inset, b - inset);
+        let em = excess(m);
+        if em <= 0.0 {
+            (b, eb) = (m, em);
+            if side == 1 {
+                ea *= 0.5;
+            }
+            side = 1;
+        } else {
+            (a, ea) = (m, em);
+            if side == -1 {
+                eb *= 0.5;
+            }
+            side = -1;
+        }
+    }
+    Some(b.exp())
+}
+
 /// The requirements for the board of `stages` with op amp `op`.
 ///
 /// # Errors
@@ -123,23 +212,13 @@ pub fn stages_needs(
     for (k, net) in stages.iter().enumerate() {
         let ideal = stage_factor(net, &OpAmp::ideal())?;
         let with = |gbw_hz: f64| OpAmp { gbw_hz, ..*op };
-        let passes = |gbw: f64| drift(net, &with(gbw), &ideal) <= limit;
-        let (mut lo, mut hi) = (1.0f64.ln(), 1e12f64.ln());
-        let min_gbw_hz = if !passes(hi.exp()) {
-            None
-        } else if passes(lo.exp()) {
-            Some(lo.exp())
-        } else {
-            while hi - lo > 1e-3 {
-                let mid = 0.5 * (lo + hi);
-                if passes(mid.exp()) {
-                    hi = mid;
-                } else {
-                    lo = mid;
-                }
-            }
-            Some(hi.exp())
-        };
+        let board_drift = drift(net, op, &ideal);
+        let min_gbw_hz = least_gbw(
+            |gbw| drift(net, &with(gbw), &ideal),
+            limit,
+            op.gbw_hz,
+            board_drift,
+        );
         let col = merged
             .stage_outputs
             .get(k)
@@ -152,7 +231,6 @@ pub fn stages_needs(
         };
         let out_pk_v = vout_pk * ratio;
         let slew_v_per_s = 2.0 * PI * slew_freq_hz * out_pk_v;
-        let board_drift = drift(net, op, &ideal);
         out.push(StageNeed {
             stage: k + 1,
             ideal,
