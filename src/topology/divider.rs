@@ -21,7 +21,7 @@
 //! value or the ratio k stays as designed (then rounded either side), so the search can trade a
 //! little gain error against a little f0/Q error instead of rounding both legs blindly.
 
-use super::{Achieved, Layout, RatioRule, Realization, Slot, Target};
+use super::{Achieved, CapacitorTrial, Layout, RatioRule, Realization, Slot, Target};
 use crate::eseries::{PartClass, Series};
 
 /// The role of the upper leg (stage input → inner node).
@@ -250,19 +250,11 @@ impl Realization for Divided {
         self.0.hint_of(&self.collapse(v)?)
     }
 
-    fn set_capacitors(
-        &self,
-        t: &Target,
-        v: &mut [f64],
-        c_ref: f64,
-        c_ratio: f64,
-        c_series: Series,
-    ) {
+    fn set_capacitors(&self, t: &Target, v: &mut [f64], trial: &CapacitorTrial) {
         let Some(mut unity_values) = self.collapse(v) else {
             return;
         };
-        self.0
-            .set_capacitors(&unity(t), &mut unity_values, c_ref, c_ratio, c_series);
+        self.0.set_capacitors(&unity(t), &mut unity_values, trial);
         let split = self.class() == PartClass::Capacitor;
         self.expand(&unity_values, v, t.gain, split);
     }

@@ -13,9 +13,8 @@
 //! H(s) = −(R2/R1)·s·R1·C1 / (1 + s·R1·C1), w0 = 1/(R1·C1).
 
 use super::sallen_key::{divider_gain, gain_divider, solve_divider};
-use super::{slot, Achieved, Layout, Realization, Slot, Target};
+use super::{slot, Achieved, CapacitorTrial, Layout, Realization, Slot, Target};
 use crate::eseries::PartClass::{Capacitor, Resistor};
-use crate::eseries::Series;
 use std::f64::consts::PI;
 
 /// RC low-pass with a follower or non-inverting gain.
@@ -78,15 +77,8 @@ impl Realization for BufferedLowPass {
             gain: divider_gain(v, 2)?,
         })
     }
-    fn set_capacitors(
-        &self,
-        _t: &Target,
-        v: &mut [f64],
-        c_ref: f64,
-        _c_ratio: f64,
-        _c_series: Series,
-    ) {
-        v[1] = c_ref;
+    fn set_capacitors(&self, _t: &Target, v: &mut [f64], trial: &CapacitorTrial) {
+        v[1] = trial.c_ref;
     }
 }
 
@@ -117,15 +109,8 @@ impl Realization for BufferedHighPass {
             gain: divider_gain(v, 2)?,
         })
     }
-    fn set_capacitors(
-        &self,
-        _t: &Target,
-        v: &mut [f64],
-        c_ref: f64,
-        _c_ratio: f64,
-        _c_series: Series,
-    ) {
-        v[0] = c_ref;
+    fn set_capacitors(&self, _t: &Target, v: &mut [f64], trial: &CapacitorTrial) {
+        v[0] = trial.c_ref;
     }
 }
 
@@ -164,15 +149,8 @@ impl Realization for InvertingLowPass {
             gain: -r2 / r1,
         })
     }
-    fn set_capacitors(
-        &self,
-        _t: &Target,
-        v: &mut [f64],
-        c_ref: f64,
-        _c_ratio: f64,
-        _c_series: Series,
-    ) {
-        v[2] = c_ref;
+    fn set_capacitors(&self, _t: &Target, v: &mut [f64], trial: &CapacitorTrial) {
+        v[2] = trial.c_ref;
     }
 }
 
@@ -211,14 +189,7 @@ impl Realization for InvertingHighPass {
             gain: -r2 / r1,
         })
     }
-    fn set_capacitors(
-        &self,
-        _t: &Target,
-        v: &mut [f64],
-        c_ref: f64,
-        _c_ratio: f64,
-        _c_series: Series,
-    ) {
-        v[0] = c_ref;
+    fn set_capacitors(&self, _t: &Target, v: &mut [f64], trial: &CapacitorTrial) {
+        v[0] = trial.c_ref;
     }
 }

@@ -24,9 +24,11 @@
 //! Each follows from the node equations at a and at the − input (held at 0 V); the tests check
 //! them against the nodal analysis.
 
-use super::{pick_root, positive_roots, slot, Achieved, Layout, RatioRule, Realization, Target};
+use super::{
+    pick_root, positive_roots, slot, Achieved, CapacitorTrial, Layout, RatioRule, Realization,
+    Target,
+};
 use crate::eseries::PartClass::{Capacitor, Resistor};
-use crate::eseries::Series;
 use std::f64::consts::PI;
 
 /// The multiple-feedback low-pass.
@@ -136,16 +138,9 @@ impl Realization for LowPass {
         (v.len() == 5).then(|| v[2] / v[1])
     }
 
-    fn set_capacitors(
-        &self,
-        _t: &Target,
-        v: &mut [f64],
-        c_ref: f64,
-        c_ratio: f64,
-        _c_series: Series,
-    ) {
-        v[3] = c_ratio;
-        v[4] = c_ref;
+    fn set_capacitors(&self, _t: &Target, v: &mut [f64], trial: &CapacitorTrial) {
+        v[3] = trial.c_ratio;
+        v[4] = trial.c_ref;
     }
 }
 
@@ -225,18 +220,11 @@ impl Realization for HighPass {
         "R2/R1, feedback resistor over ground resistor"
     }
 
-    fn set_capacitors(
-        &self,
-        t: &Target,
-        v: &mut [f64],
-        c_ref: f64,
-        c_ratio: f64,
-        c_series: Series,
-    ) {
-        v[0] = c_ref;
-        v[1] = c_ratio;
+    fn set_capacitors(&self, t: &Target, v: &mut [f64], trial: &CapacitorTrial) {
+        v[0] = trial.c_ref;
+        v[1] = trial.c_ratio;
         // The gain is C1/C3: C3 from the series, the level scan picks a C1 that divides well.
-        v[2] = c_series.nearest(c_ref / t.gain);
+        v[2] = trial.c_series.nearest(trial.c_ref / t.gain);
     }
 }
 
@@ -349,15 +337,8 @@ impl Realization for BandPass {
         "R3/R1, feedback resistor over input resistor"
     }
 
-    fn set_capacitors(
-        &self,
-        _t: &Target,
-        v: &mut [f64],
-        c_ref: f64,
-        c_ratio: f64,
-        _c_series: Series,
-    ) {
-        v[2] = c_ratio;
-        v[3] = c_ref;
+    fn set_capacitors(&self, _t: &Target, v: &mut [f64], trial: &CapacitorTrial) {
+        v[2] = trial.c_ratio;
+        v[3] = trial.c_ref;
     }
 }

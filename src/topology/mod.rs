@@ -325,6 +325,18 @@ pub(crate) struct RatioRule {
     pub auto_note: Option<String>,
 }
 
+/// The capacitors of one trial of the level scan, for [`Realization::set_capacitors`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct CapacitorTrial {
+    /// The level-setting capacitor, F.
+    pub c_ref: f64,
+    /// The ratio capacitor, F: already `n · c_ref` or a series value near it.
+    pub c_ratio: f64,
+    /// The capacitor series; it rounds a capacitor whose value sets the gain (the MFB high-pass
+    /// C3 = C1/K), so the gain rests on standard parts.
+    pub c_series: Series,
+}
+
 /// What each circuit module provides: its wiring, its closed forms and its ratio rules.
 pub(crate) trait Realization: Sync {
     /// The wiring; `gain_network` adds the two gain-setting resistors (non-inverting circuits).
@@ -361,18 +373,8 @@ pub(crate) trait Realization: Sync {
     fn hint_of(&self, _values: &[f64]) -> Option<f64> {
         None
     }
-    /// Sets the free capacitors from the level-setting capacitor `c_ref` and the ratio capacitor
-    /// value `c_ratio` (already `n · c_ref` or a series value near it).
-    /// `c_series` rounds a capacitor whose value sets the gain (the MFB high-pass C3 = C1/K),
-    /// so the gain rests on standard parts.
-    fn set_capacitors(
-        &self,
-        target: &Target,
-        values: &mut [f64],
-        c_ref: f64,
-        c_ratio: f64,
-        c_series: Series,
-    );
+    /// Sets the free capacitors from one trial of the level scan ([`CapacitorTrial`]).
+    fn set_capacitors(&self, target: &Target, values: &mut [f64], trial: &CapacitorTrial);
 }
 
 /// The design freedoms a stage needs (the board's choices without the op amp and overrides).
@@ -758,7 +760,12 @@ fn choose_level(
         } else {
             freedoms.c_series.ceil(ratio * c_ref)
         };
-        realization.set_capacitors(target, &mut values, c_ref, c_ratio, freedoms.c_series);
+        let trial = CapacitorTrial {
+            c_ref,
+            c_ratio,
+            c_series: freedoms.c_series,
+        };
+        realization.set_capacitors(target, &mut values, &trial);
         set_gain_ground_resistor(layout, &mut values, target, level, freedoms.r_series);
         if !realization.solve(target, &mut values, hint) {
             return None;

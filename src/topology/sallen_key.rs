@@ -25,10 +25,10 @@
 //! [`super::divider`].
 
 use super::{
-    pick_root, positive_roots, slot, Achieved, Layout, RatioRule, Realization, Slot, Target,
+    pick_root, positive_roots, slot, Achieved, CapacitorTrial, Layout, RatioRule, Realization,
+    Slot, Target,
 };
 use crate::eseries::PartClass::{Capacitor, Resistor};
-use crate::eseries::Series;
 use std::f64::consts::PI;
 
 /// The Sallen-Key low-pass.
@@ -193,16 +193,9 @@ impl Realization for LowPass {
         (v.len() >= 2).then(|| v[0] / v[1])
     }
 
-    fn set_capacitors(
-        &self,
-        _t: &Target,
-        v: &mut [f64],
-        c_ref: f64,
-        c_ratio: f64,
-        _c_series: Series,
-    ) {
-        v[2] = c_ratio;
-        v[3] = c_ref;
+    fn set_capacitors(&self, _t: &Target, v: &mut [f64], trial: &CapacitorTrial) {
+        v[2] = trial.c_ratio;
+        v[3] = trial.c_ref;
     }
 }
 
@@ -290,15 +283,8 @@ impl Realization for HighPass {
         "R2/R1, ground resistor over feedback resistor"
     }
 
-    fn set_capacitors(
-        &self,
-        _t: &Target,
-        v: &mut [f64],
-        c_ref: f64,
-        c_ratio: f64,
-        _c_series: Series,
-    ) {
-        v[0] = c_ratio;
-        v[1] = c_ref;
+    fn set_capacitors(&self, _t: &Target, v: &mut [f64], trial: &CapacitorTrial) {
+        v[0] = trial.c_ratio;
+        v[1] = trial.c_ref;
     }
 }
