@@ -1904,7 +1904,10 @@ fn combine<V: Lane8>(pass: StagePass, pn: V, pd: V, den: &mut RunLanes, out: &mu
 /// needs, implemented for AVX-512F, for AVX2 and in plain code. Every operation is a single IEEE
 /// operation per lane (no fused multiply-add, no reassociation), so all three give bit-identical
 /// results, and the plain code is what wasm runs.
-pub mod lanes {
+///
+/// Crate-private: the AVX types may only be used inside code compiled for their extension and
+/// entered after detecting it (see the x86 module), which safe code outside could not promise.
+pub(crate) mod lanes {
     /// Eight f64 lanes.
     pub trait Lane8: Copy {
         /// A per-lane truth value.
@@ -1925,8 +1928,6 @@ pub mod lanes {
         fn mul(self, o: Self) -> Self;
         /// `self / o` per lane.
         fn div(self, o: Self) -> Self;
-        /// `|self|` per lane.
-        fn abs(self) -> Self;
         /// `if self < o { self } else { o }` per lane (a NaN in `self` keeps `o`).
         fn min_keep(self, o: Self) -> Self;
         /// `if self > o { self } else { o }` per lane (a NaN in `self` keeps `o`).
@@ -1941,8 +1942,6 @@ pub mod lanes {
         fn and(a: Self::Mask, b: Self::Mask) -> Self::Mask;
         /// `if m { a } else { b }` per lane.
         fn select(m: Self::Mask, a: Self, b: Self) -> Self;
-        /// The mask as booleans.
-        fn bools(m: Self::Mask) -> [bool; 8];
         /// Booleans as a mask.
         fn from_bools(b: [bool; 8]) -> Self::Mask;
     }
@@ -2008,10 +2007,6 @@ pub mod lanes {
             self.map2(o, |a, b| a / b)
         }
         #[inline(always)]
-        fn abs(self) -> Self {
-            self.map2(self, |a, _| a.abs())
-        }
-        #[inline(always)]
         fn min_keep(self, o: Self) -> Self {
             self.map2(o, |a, b| if a < b { a } else { b })
         }
@@ -2048,10 +2043,6 @@ pub mod lanes {
                 }
             }
             Plain(r)
-        }
-        #[inline(always)]
-        fn bools(m: [bool; 8]) -> [bool; 8] {
-            m
         }
         #[inline(always)]
         fn from_bools(b: [bool; 8]) -> [bool; 8] {
@@ -2110,10 +2101,6 @@ pub mod lanes {
                 unsafe { Avx512(_mm512_div_pd(self.0, o.0)) }
             }
             #[inline(always)]
-            fn abs(self) -> Self {
-                unsafe { Avx512(_mm512_abs_pd(self.0)) }
-            }
-            #[inline(always)]
             fn min_keep(self, o: Self) -> Self {
                 // MINPD returns the first operand where it is the smaller, else the second.
                 unsafe { Avx512(_mm512_min_pd(self.0, o.0)) }
@@ -2141,14 +2128,6 @@ pub mod lanes {
             #[inline(always)]
             fn select(m: __mmask8, a: Self, b: Self) -> Self {
                 unsafe { Avx512(_mm512_mask_blend_pd(m, b.0, a.0)) }
-            }
-            #[inline(always)]
-            fn bools(m: __mmask8) -> [bool; 8] {
-                let mut r = [false; 8];
-                for (l, v) in r.iter_mut().enumerate() {
-                    *v = m & (1 << l) != 0;
-                }
-                r
             }
             #[inline(always)]
             fn from_bools(b: [bool; 8]) -> __mmask8 {
@@ -2215,11 +2194,6 @@ pub mod lanes {
                 Avx2(halves!(_mm256_div_pd, self.0, o.0))
             }
             #[inline(always)]
-            fn abs(self) -> Self {
-                let sign = unsafe { [_mm256_set1_pd(-0.0); 2] };
-                Avx2(halves!(_mm256_andnot_pd, sign, self.0))
-            }
-            #[inline(always)]
             fn min_keep(self, o: Self) -> Self {
                 Avx2(halves!(_mm256_min_pd, self.0, o.0))
             }
@@ -2266,15 +2240,6 @@ pub mod lanes {
                         _mm256_blendv_pd(b.0[1], a.0[1], m[1]),
                     ])
                 }
-            }
-            #[inline(always)]
-            fn bools(m: [__m256d; 2]) -> [bool; 8] {
-                let bits = unsafe { _mm256_movemask_pd(m[0]) | (_mm256_movemask_pd(m[1]) << 4) };
-                let mut r = [false; 8];
-                for (l, v) in r.iter_mut().enumerate() {
-                    *v = bits & (1 << l) != 0;
-                }
-                r
             }
             #[inline(always)]
             fn from_bools(b: [bool; 8]) -> [__m256d; 2] {
@@ -2609,7 +2574,6 @@ mod tests {
         push(x.sub(y));
         push(x.mul(y));
         push(x.div(y));
-        push(x.abs());
         push(x.min_keep(y));
         push(x.max_keep(y));
         let one = V::splat(1.0);
@@ -2620,8 +2584,6 @@ mod tests {
         push(V::select(V::and(x.ge(y), x.le(y)), x, y));
         let mask = V::from_bools([true, false, false, true, true, false, true, false]);
         push(V::select(mask, x, y));
-        let bools = V::bools(x.lt(y));
-        out.extend(bools.iter().map(|&b| u64::from(b)));
         let mut f = [0.0f32; RUN_LANES];
         x.store_f32(&mut f);
         out.extend(f.iter().map(|v| u64::from(v.to_bits())));
@@ -2634,12 +2596,11 @@ mod tests {
     fn scalar_ops(a: &RunLanes, b: &RunLanes) -> Vec<u64> {
         let mut out = Vec::new();
         let bits = |f: f64| if f.is_nan() { 1 } else { f.to_bits() };
-        let ops: [fn(f64, f64) -> f64; 12] = [
+        let ops: [fn(f64, f64) -> f64; 11] = [
             |x, y| x + y,
             |x, y| x - y,
             |x, y| x * y,
             |x, y| x / y,
-            |x, _| x.abs(),
             |x, y| if x < y { x } else { y },
             |x, y| if x > y { x } else { y },
             |x, y| if x < y { 1.0 } else { 0.0 },
@@ -2651,7 +2612,7 @@ mod tests {
         let mask = [true, false, false, true, true, false, true, false];
         for (i, op) in ops.iter().enumerate() {
             for l in 0..RUN_LANES {
-                let v = if i == 11 {
+                let v = if i == 10 {
                     if mask[l] {
                         a[l]
                     } else {
@@ -2663,7 +2624,6 @@ mod tests {
                 out.push(bits(v));
             }
         }
-        out.extend((0..RUN_LANES).map(|l| u64::from(a[l] < b[l])));
         out.extend((0..RUN_LANES).map(|l| u64::from((a[l] as f32).to_bits())));
         out
     }

@@ -186,7 +186,7 @@ impl Multilinear {
     /// eight partial sums, added in the same tree), so every lane's result is bit-identical to a
     /// scalar evaluation of that run.
     #[inline(always)]
-    pub fn evaluate_lanes<V: Lane8>(
+    pub(crate) fn evaluate_lanes<V: Lane8>(
         &self,
         values: &[[f64; 8]],
         mono: &mut [[f64; 8]],
