@@ -13,8 +13,7 @@
 //! H(s) = −(R2/R1)·s·R1·C1 / (1 + s·R1·C1), w0 = 1/(R1·C1).
 
 use super::sallen_key::{divider_gain, gain_divider, solve_divider};
-use super::{slot, Achieved, CapacitorTrial, Layout, Realization, Slot, Target};
-use crate::eseries::PartClass::{Capacitor, Resistor};
+use super::{capacitor, resistor, Achieved, CapacitorTrial, Layout, Realization, Slot, Target};
 use std::f64::consts::PI;
 
 /// RC low-pass with a follower or non-inverting gain.
@@ -55,8 +54,8 @@ impl Realization for BufferedLowPass {
         buffered_layout(
             gain_network,
             [
-                slot(Resistor, "series resistor", Some(0), Some(1), false, true),
-                slot(Capacitor, "ground capacitor", Some(1), GND, true, false),
+                resistor("series resistor", Some(0), Some(1)),
+                capacitor("ground capacitor", Some(1), GND),
             ],
         )
     }
@@ -87,8 +86,8 @@ impl Realization for BufferedHighPass {
         buffered_layout(
             gain_network,
             [
-                slot(Capacitor, "series capacitor", Some(0), Some(1), true, false),
-                slot(Resistor, "ground resistor", Some(1), GND, false, true),
+                capacitor("series capacitor", Some(0), Some(1)),
+                resistor("ground resistor", Some(1), GND),
             ],
         )
     }
@@ -122,9 +121,9 @@ impl Realization for InvertingLowPass {
             input: 0,
             output: 2,
             slots: vec![
-                slot(Resistor, "input resistor", input, m, false, true),
-                slot(Resistor, "feedback resistor", m, out, false, true),
-                slot(Capacitor, "feedback capacitor", m, out, true, false),
+                resistor("input resistor", input, m),
+                resistor("feedback resistor", m, out),
+                capacitor("feedback capacitor", m, out),
             ],
             op_amp: [GND, m, out],
             op_amp_position: 3,
@@ -162,9 +161,9 @@ impl Realization for InvertingHighPass {
             input: 0,
             output: 3,
             slots: vec![
-                slot(Capacitor, "input capacitor", input, x, true, false),
-                slot(Resistor, "input resistor", x, m, false, true),
-                slot(Resistor, "feedback resistor", m, out, false, true),
+                capacitor("input capacitor", input, x),
+                resistor("input resistor", x, m),
+                resistor("feedback resistor", m, out),
             ],
             op_amp: [GND, m, out],
             op_amp_position: 3,

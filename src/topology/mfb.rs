@@ -25,10 +25,9 @@
 //! them against the nodal analysis.
 
 use super::{
-    pick_root, positive_roots, slot, Achieved, CapacitorTrial, Layout, RatioRule, Realization,
-    Target,
+    capacitor, pick_root, positive_roots, resistor, Achieved, CapacitorTrial, Layout, RatioRule,
+    Realization, Target,
 };
-use crate::eseries::PartClass::{Capacitor, Resistor};
 use std::f64::consts::PI;
 
 /// The multiple-feedback low-pass.
@@ -59,18 +58,11 @@ fn layout(slots: Vec<super::Slot>) -> Layout {
 impl Realization for LowPass {
     fn layout(&self, _gain_network: bool) -> Layout {
         layout(vec![
-            slot(Resistor, "input resistor", IN, A, false, true),
-            slot(
-                Resistor,
-                "resistor to the inverting input",
-                A,
-                M,
-                false,
-                true,
-            ),
-            slot(Resistor, "feedback resistor", OUT, A, false, true),
-            slot(Capacitor, "ground capacitor", A, GND, true, false),
-            slot(Capacitor, "feedback capacitor", M, OUT, true, false),
+            resistor("input resistor", IN, A),
+            resistor("resistor to the inverting input", A, M),
+            resistor("feedback resistor", OUT, A),
+            capacitor("ground capacitor", A, GND),
+            capacitor("feedback capacitor", M, OUT),
         ])
     }
 
@@ -147,18 +139,11 @@ impl Realization for LowPass {
 impl Realization for HighPass {
     fn layout(&self, _gain_network: bool) -> Layout {
         layout(vec![
-            slot(Capacitor, "input capacitor", IN, A, true, false),
-            slot(
-                Capacitor,
-                "capacitor to the inverting input",
-                A,
-                M,
-                true,
-                false,
-            ),
-            slot(Capacitor, "feedback capacitor", A, OUT, true, false),
-            slot(Resistor, "ground resistor", A, GND, false, true),
-            slot(Resistor, "feedback resistor", M, OUT, false, true),
+            capacitor("input capacitor", IN, A),
+            capacitor("capacitor to the inverting input", A, M),
+            capacitor("feedback capacitor", A, OUT),
+            resistor("ground resistor", A, GND),
+            resistor("feedback resistor", M, OUT),
         ])
     }
 
@@ -231,18 +216,11 @@ impl Realization for HighPass {
 impl Realization for BandPass {
     fn layout(&self, _gain_network: bool) -> Layout {
         layout(vec![
-            slot(Resistor, "input resistor", IN, A, false, true),
-            slot(Resistor, "ground resistor", A, GND, false, true),
-            slot(
-                Capacitor,
-                "capacitor to the inverting input",
-                A,
-                M,
-                true,
-                false,
-            ),
-            slot(Capacitor, "feedback capacitor", A, OUT, true, false),
-            slot(Resistor, "feedback resistor", M, OUT, false, true),
+            resistor("input resistor", IN, A),
+            resistor("ground resistor", A, GND),
+            capacitor("capacitor to the inverting input", A, M),
+            capacitor("feedback capacitor", A, OUT),
+            resistor("feedback resistor", M, OUT),
         ])
     }
 

@@ -258,6 +258,18 @@ pub(crate) const fn slot(
     }
 }
 
+/// A resistor position of the usual kind: solved from the free values, and scaling with the
+/// impedance level (every resistor but those of a gain network or an input divider).
+pub(crate) const fn resistor(role: &'static str, a: Node, b: Node) -> Slot {
+    slot(PartClass::Resistor, role, a, b, false, true)
+}
+
+/// A capacitor position of the usual kind: a free choice of the level scan, which does not scale
+/// with the impedance level (the resistors solved from it do).
+pub(crate) const fn capacitor(role: &'static str, a: Node, b: Node) -> Slot {
+    slot(PartClass::Capacitor, role, a, b, true, false)
+}
+
 /// The wiring of a circuit: node names, stage input and output, its passives and its op amp.
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct Layout {

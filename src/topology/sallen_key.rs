@@ -25,10 +25,10 @@
 //! [`super::divider`].
 
 use super::{
-    pick_root, positive_roots, slot, Achieved, CapacitorTrial, Layout, RatioRule, Realization,
-    Slot, Target,
+    capacitor, pick_root, positive_roots, resistor, slot, Achieved, CapacitorTrial, Layout,
+    RatioRule, Realization, Slot, Target,
 };
-use crate::eseries::PartClass::{Capacitor, Resistor};
+use crate::eseries::PartClass::Resistor;
 use std::f64::consts::PI;
 
 /// The Sallen-Key low-pass.
@@ -97,10 +97,10 @@ impl Realization for LowPass {
         layout(
             gain_network,
             [
-                slot(Resistor, "input resistor", IN, A, false, true),
-                slot(Resistor, "second resistor", A, B, false, true),
-                slot(Capacitor, "feedback capacitor", A, OUT, true, false),
-                slot(Capacitor, "ground capacitor", B, GND, true, false),
+                resistor("input resistor", IN, A),
+                resistor("second resistor", A, B),
+                capacitor("feedback capacitor", A, OUT),
+                capacitor("ground capacitor", B, GND),
             ],
         )
     }
@@ -204,10 +204,10 @@ impl Realization for HighPass {
         layout(
             gain_network,
             [
-                slot(Capacitor, "input capacitor", IN, A, true, false),
-                slot(Capacitor, "second capacitor", A, B, true, false),
-                slot(Resistor, "feedback resistor", A, OUT, false, true),
-                slot(Resistor, "ground resistor", B, GND, false, true),
+                capacitor("input capacitor", IN, A),
+                capacitor("second capacitor", A, B),
+                resistor("feedback resistor", A, OUT),
+                resistor("ground resistor", B, GND),
             ],
         )
     }
