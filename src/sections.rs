@@ -86,10 +86,22 @@ pub fn from_target(target: &crate::transform::Target) -> Vec<Section> {
 }
 
 /// Sorts sections first-order first, then by ascending Q, ties by ascending f0.
+///
+/// Q values equal but for rounding count as a tie: the band-pass transform makes pairs of
+/// sections with the same Q in exact arithmetic, and which of the pair rounds a bit higher
+/// depends on the platform's libm (native and wasm differ), so the Q is compared with the last
+/// 20 of its 52 mantissa bits rounded away (2e-10 relative) and the pair is then ordered by f0.
 pub fn sort_ascending_q(sections: &mut [Section]) {
+    fn coarse(q: f64) -> f64 {
+        if !q.is_finite() {
+            return q;
+        }
+        const LOW: u64 = (1 << 20) - 1;
+        f64::from_bits((q.to_bits() + (1 << 19)) & !LOW)
+    }
     sections.sort_by(|a, b| {
-        let qa = a.q.unwrap_or(f64::NEG_INFINITY);
-        let qb = b.q.unwrap_or(f64::NEG_INFINITY);
+        let qa = coarse(a.q.unwrap_or(f64::NEG_INFINITY));
+        let qb = coarse(b.q.unwrap_or(f64::NEG_INFINITY));
         qa.total_cmp(&qb).then(a.f0_hz.total_cmp(&b.f0_hz))
     });
 }
@@ -179,6 +191,23 @@ pub fn arrange(ascending: &[Section], order: &StageOrder) -> Result<Vec<Section>
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn q_values_equal_but_for_rounding_are_ordered_by_f0() {
+        // The pair a band-pass transform makes: one Q, two f0 (1 ulp apart either way).
+        let q = 4.123_456_789;
+        let up = f64::from_bits(q.to_bits() + 1);
+        let down = f64::from_bits(q.to_bits() - 1);
+        for (qa, qb) in [(up, q), (q, up), (down, q), (q, down)] {
+            let mut s = vec![lp(Some(qa), 2000.0), lp(Some(qb), 1000.0)];
+            sort_ascending_q(&mut s);
+            assert_eq!(s[0].f0_hz, 1000.0, "Q {qa} vs {qb}");
+        }
+        // A real difference in Q still decides.
+        let mut s = vec![lp(Some(q * 1.000_001), 1000.0), lp(Some(q), 2000.0)];
+        sort_ascending_q(&mut s);
+        assert_eq!(s[0].f0_hz, 2000.0);
+    }
 
     fn lp(q: Option<f64>, f0_hz: f64) -> Section {
         Section {
