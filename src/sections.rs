@@ -195,7 +195,7 @@ mod tests {
     #[test]
     fn q_values_equal_but_for_rounding_are_ordered_by_f0() {
         // The pair a band-pass transform makes: one Q, two f0 (1 ulp apart either way).
-        let q = 4.123_456_789;
+        let q = 4.123_456_789_f64;
         let up = f64::from_bits(q.to_bits() + 1);
         let down = f64::from_bits(q.to_bits() - 1);
         for (qa, qb) in [(up, q), (q, up), (down, q), (q, down)] {
