@@ -369,25 +369,13 @@ fn split_edge(proto: &Prototype, mask: &Mask, selectivity: f64, w_pass: f64) -> 
 /// Finds `w` in `[lo, hi]` (both positive) where the increasing `f` changes sign, by bisection
 /// on `ln w` to double precision. Returns an end of the bracket when `f` keeps one sign on it.
 fn solve_in_ln(f: impl Fn(f64) -> f64, lo: f64, hi: f64) -> f64 {
-    let (mut a, mut b) = (lo.ln(), hi.ln());
     if f(lo) >= 0.0 {
         return lo;
     }
     if f(hi) <= 0.0 {
         return hi;
     }
-    for _ in 0..400 {
-        let mid = 0.5 * (a + b);
-        if mid <= a || mid >= b {
-            break;
-        }
-        if f(mid.exp()) < 0.0 {
-            a = mid;
-        } else {
-            b = mid;
-        }
-    }
-    (0.5 * (a + b)).exp()
+    crate::prototype::bisect_ln(f, lo, hi)
 }
 
 /// Warnings for the mask edges a designed cascade misses (attenuation above `apass` at a

@@ -681,8 +681,15 @@ pub(crate) fn bisect_log_increasing(f: impl Fn(f64) -> f64) -> f64 {
     while f(hi) < 0.0 && hi < 1e12 {
         hi *= 4.0;
     }
+    bisect_ln(&f, lo, hi)
+}
+
+/// Bisection of an increasing `f` on `ln w` over `[lo, hi]` (`f(lo) < 0 ≤ f(hi)` expected) until
+/// the midpoint no longer moves (double precision); returns the last midpoint.
+pub(crate) fn bisect_ln(f: impl Fn(f64) -> f64, lo: f64, hi: f64) -> f64 {
     let (mut a, mut b) = (lo.ln(), hi.ln());
-    for _ in 0..200 {
+    // The midpoint stops moving after about 60 halvings; the cap only guards against NaN ends.
+    for _ in 0..400 {
         let mid = 0.5 * (a + b);
         if mid <= a || mid >= b {
             break;

@@ -51,7 +51,7 @@ fn board(class: ResponseClass, family: Family, order: usize, topo: Topology, op:
         bw_hz: (class == ResponseClass::BandPass).then_some(500.0),
         mask: None,
         gain_db: 6.0,
-        margin: rolloff::spec::MarginPlacement::Split,
+        margin: MarginPlacement::Split,
     };
     let syn = synthesize(&req, &StageOrder::AscendingQ).expect("synthesizes");
     let choices = BuildChoices {

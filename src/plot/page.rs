@@ -379,6 +379,7 @@ fn built_sweep(board: &Board, freqs: &[f64]) -> Result<BuiltSweep, InputError> {
             }
         }
         None => {
+            let merged = board.netlist();
             for &f in freqs {
                 let s = Complex64::new(0.0, 2.0 * PI * f);
                 let (h, outputs) =
@@ -388,7 +389,6 @@ fn built_sweep(board: &Board, freqs: &[f64]) -> Result<BuiltSweep, InputError> {
                 for (level, v) in levels.iter_mut().zip(&outputs) {
                     level.push(20.0 * v.norm().log10());
                 }
-                let merged = board.netlist();
                 z_in_ohm.push(
                     mna::input_impedance(&merged.netlist, &board.op_amp, s)
                         .map(|z| z.norm())
@@ -634,18 +634,13 @@ impl Analyses {
         // Stage levels and headroom against the op amp's swing.
         let (mut level_curves, mut headroom) = (Vec::new(), Vec::new());
         // The built sweep solved the whole board at these frequencies already: its stage
-        // outputs are the levels.
-        let levels = if built_levels.len() == board.stages.len() {
-            levels::from_curves(
-                freqs,
-                built_levels.to_vec(),
-                state.signal.vin_pk,
-                state.signal.swing_pk,
-            )
-        } else {
-            levels::board_levels(board, freqs, state.signal.vin_pk, state.signal.swing_pk)
-        };
-        match levels {
+        // outputs (one curve per stage on either of its paths) are the levels.
+        match levels::from_curves(
+            freqs,
+            built_levels.to_vec(),
+            state.signal.vin_pk,
+            state.signal.swing_pk,
+        ) {
             Ok(report) => {
                 for stage in &report.stages {
                     level_curves.push(Curve {
