@@ -206,16 +206,37 @@
 
   // ---- canvases ----
   function dpr() { return Math.min(Math.max(window.devicePixelRatio || 1, 1), 3); }
-  /* The CSS size of every canvas, read while the layout is still the one on screen: read after
-   * the stage cards and tables are rewritten, it would make the browser lay the page out there
-   * and then, instead of once, after the update, in the frame that shows it. */
-  function canvasSizes() {
-    var sizes = new Map();
-    $$('canvas').forEach(function (c) { sizes.set(c, [c.clientWidth, c.clientHeight]); });
-    return sizes;
-  }
-  function sizeOf(canvas, sizes) {
-    return (sizes && sizes.get(canvas)) || [canvas.clientWidth, canvas.clientHeight];
+  /* The CSS size of every canvas, as the browser last laid it out. A ResizeObserver on each
+   * canvas keeps it (its callback runs right after layout, when reading sizes costs nothing), so
+   * an update never reads the layout: a read after an edit would make the browser lay the page
+   * out inside the update and then again in the frame that shows it. A canvas that changes size
+   * is redrawn on the next frame; one not seen yet (a new stage card) is measured once. */
+  var sizes = new WeakMap();
+  var resized = new Set();
+  var resizeFrame = 0;
+  var watcher = window.ResizeObserver ? new ResizeObserver(function (entries) {
+    entries.forEach(function (entry) {
+      var c = entry.target;
+      var size = [c.clientWidth, c.clientHeight];
+      var old = sizes.get(c);
+      sizes.set(c, size);
+      if (old && (old[0] !== size[0] || old[1] !== size[1])) resized.add(c);
+    });
+    if (!resized.size || resizeFrame || !state.committed) return;
+    resizeFrame = window.requestAnimationFrame(function () {
+      resizeFrame = 0;
+      var list = Array.from(resized);
+      resized.clear();
+      list.forEach(function (c) { if (c.isConnected) drawOne(c); });
+    });
+  }) : null;
+  function watchCanvas(canvas) { if (watcher) watcher.observe(canvas); }
+  function sizeOf(canvas) {
+    var size = watcher && sizes.get(canvas);
+    if (size) return size;
+    size = [canvas.clientWidth, canvas.clientHeight];
+    if (watcher) sizes.set(canvas, size);
+    return size;
   }
   function fitCanvas(canvas, size) {
     var ratio = dpr();
@@ -229,19 +250,23 @@
   }
   var printing = false;   // the report prints dark ink on white whatever the screen theme
   function theme() { return printing ? false : isDark(); }
-  function drawCanvas(canvas, sizes) {
-    var size = sizeOf(canvas, sizes);
+  function drawCanvas(canvas) {
+    var size = sizeOf(canvas);
     if (!size[0]) return;
     fitCanvas(canvas, size);
     engine.draw_plot(plotOf(canvas), canvas, theme(), dpr(), canvas.hasAttribute('data-compact'));
   }
-  /* Draws every plot and schematic; `sizes` (from canvasSizes) spares reading the layout. */
-  function drawAll(sizes) {
-    $$('canvas[data-plot]').forEach(function (canvas) { drawCanvas(canvas, sizes); });
-    $$('.card canvas').forEach(function (canvas) {
-      fitCanvas(canvas, sizeOf(canvas, sizes));
-      engine.draw_schematic(Number(canvas.getAttribute('data-stage')), canvas, theme(), dpr());
-    });
+  function drawSchematic(canvas) {
+    fitCanvas(canvas, sizeOf(canvas));
+    engine.draw_schematic(Number(canvas.getAttribute('data-stage')), canvas, theme(), dpr());
+  }
+  function drawOne(canvas) {
+    if (canvas.hasAttribute('data-stage')) drawSchematic(canvas); else if (plotOf(canvas)) drawCanvas(canvas);
+  }
+  /* Draws every plot and schematic. */
+  function drawAll() {
+    $$('canvas[data-plot]').forEach(drawCanvas);
+    $$('.card canvas').forEach(drawSchematic);
   }
 
   // ---- rendering the view model ----
@@ -310,6 +335,7 @@
     canvas.setAttribute('data-stage', String(stage.index));
     canvas.setAttribute('role', 'img');
     card.appendChild(canvas);
+    watchCanvas(canvas);
 
     var table = el('table', 'targets');
     var head = el('tr');
@@ -425,7 +451,6 @@
   }
 
   function render(view, initial) {
-    var sizes = view.committed ? canvasSizes() : null;
     var loose = showMessages(view.errors);
     var notes = view.ignored.slice();
     if (initial) view.errors.forEach(function (e) { notes.push(e.key + ': ' + e.message); });
@@ -438,7 +463,7 @@
       renderStages(view.stages);
       renderCompare(view);
       var d0 = performance.now();
-      drawAll(sizes);
+      drawAll();
       document.body.setAttribute('data-draw-ms', (performance.now() - d0).toFixed(2));
       state.committed = true;
       setStale(false);
@@ -794,19 +819,7 @@
       if ($('#study-auto').checked) scheduleStudy(); else window.clearTimeout(state.studyTimer);
     });
     if (dark && dark.addEventListener) dark.addEventListener('change', function () { if (state.committed) drawAll(); });
-    if (window.ResizeObserver) {
-      // Only a change of width resizes the canvases (their heights are fixed by the style
-      // sheet); the column growing taller as the text of an edit changes asks for no redraw.
-      var pending = 0;
-      var width = -1;
-      new ResizeObserver(function (entries) {
-        var w = entries[entries.length - 1].contentRect.width;
-        if (w === width) return;
-        width = w;
-        if (pending || !state.committed) return;
-        pending = window.requestAnimationFrame(function () { pending = 0; drawAll(); });
-      }).observe($('.work'));
-    }
+    $$('canvas').forEach(watchCanvas);
   }
 
   /* The printed report shows every plot at a readable size, not only the one in the large slot. */
