@@ -8,10 +8,12 @@
 //! - joins consecutive lines of one style into a single path, stroked once when the style
 //!   changes or another kind of primitive comes;
 //! - remembers the stroke and fill colour, line width, font, alignment and baseline it last set,
-//!   and sets only what changed;
-//! - hands curves, polygons, circles and pixels to [`plotters_canvas::CanvasBackend`] (one call
-//!   per point there is the least a path can cost), and forgets what it remembered afterwards,
-//!   since that backend sets the context's state itself.
+//!   and sets only what changed; curves are stroked here too, under the same remembered style;
+//! - keeps the JavaScript strings of colours, fonts and labels it made (a page's labels and
+//!   styles mostly repeat from one edit to the next), so that a repeated string crosses the
+//!   boundary as a reference instead of being decoded again;
+//! - hands polygons, circles and pixels to [`plotters_canvas::CanvasBackend`], and forgets what
+//!   it remembered afterwards, since that backend sets the context's state itself.
 //!
 //! The pixels are those plotters-canvas draws for the same calls: the same half-pixel shift for
 //! horizontal and vertical lines, the same CSS colour, font and alignment strings.
@@ -20,8 +22,51 @@ use plotters_backend::text_anchor::{HPos, VPos};
 use plotters_backend::{BackendColor, BackendCoord, BackendStyle, BackendTextStyle};
 use plotters_backend::{DrawingBackend, DrawingErrorKind, FontTransform};
 use plotters_canvas::CanvasBackend;
+use std::cell::RefCell;
+use std::collections::HashMap;
+use wasm_bindgen::prelude::wasm_bindgen;
 use wasm_bindgen::{JsCast, JsValue};
 use web_sys::{CanvasRenderingContext2d, HtmlCanvasElement};
+
+// The context's string-taking members, given a JavaScript string already made.
+#[wasm_bindgen]
+extern "C" {
+    /// A `CanvasRenderingContext2D` seen through the members below.
+    type StringMembers;
+    #[wasm_bindgen(method, setter = font)]
+    fn set_font_value(this: &StringMembers, font: &JsValue);
+    #[wasm_bindgen(method, setter = fillStyle)]
+    fn set_fill_value(this: &StringMembers, color: &JsValue);
+    #[wasm_bindgen(method, setter = strokeStyle)]
+    fn set_stroke_value(this: &StringMembers, color: &JsValue);
+    #[wasm_bindgen(method, catch, js_name = fillText)]
+    fn fill_text_value(this: &StringMembers, text: &JsValue, x: f64, y: f64)
+        -> Result<(), JsValue>;
+}
+
+/// Most strings kept; past it the store starts again (labels of values typed long ago go).
+const STRINGS_KEPT: usize = 4096;
+
+thread_local! {
+    /// JavaScript strings made so far, by their text.
+    static STRINGS: RefCell<HashMap<String, JsValue>> = RefCell::new(HashMap::new());
+}
+
+/// The JavaScript string of `text`, made once and then reused.
+fn js_string(text: &str) -> JsValue {
+    STRINGS.with(|strings| {
+        let mut strings = strings.borrow_mut();
+        if let Some(value) = strings.get(text) {
+            return value.clone();
+        }
+        if strings.len() >= STRINGS_KEPT {
+            strings.clear();
+        }
+        let value = JsValue::from_str(text);
+        strings.insert(text.to_owned(), value.clone());
+        value
+    })
+}
 
 /// A drawing failure of the canvas (a context call that threw).
 #[derive(Debug)]
@@ -113,6 +158,10 @@ impl StyledCanvas {
         })
     }
 
+    fn strings(&self) -> &StringMembers {
+        self.context.unchecked_ref()
+    }
+
     /// Strokes the gathered lines, if any.
     fn flush(&mut self) {
         if self.open_lines.take().is_some() {
@@ -130,7 +179,8 @@ impl StyledCanvas {
     fn set_stroke(&mut self, color: BackendColor, width: u32) {
         let key = color_key(color);
         if self.known.stroke != Some(key) {
-            self.context.set_stroke_style_str(&css_color(color));
+            self.strings()
+                .set_stroke_value(&js_string(&css_color(color)));
             self.known.stroke = Some(key);
         }
         if self.known.line_width != Some(width) {
@@ -142,7 +192,7 @@ impl StyledCanvas {
     fn set_fill(&mut self, color: BackendColor) {
         let key = color_key(color);
         if self.known.fill != Some(key) {
-            self.context.set_fill_style_str(&css_color(color));
+            self.strings().set_fill_value(&js_string(&css_color(color)));
             self.known.fill = Some(key);
         }
     }
@@ -233,8 +283,24 @@ impl DrawingBackend for StyledCanvas {
         path: I,
         style: &S,
     ) -> Result<(), DrawingErrorKind<CanvasFailure>> {
-        self.hand_over();
-        self.inner.draw_path(path, style).map_err(inner_failure)
+        // As plotters-canvas strokes a path (no half-pixel shift), under the remembered style.
+        let color = style.color();
+        if color.alpha == 0.0 {
+            return Ok(());
+        }
+        let mut path = path.into_iter();
+        let Some(start) = path.next() else {
+            return Ok(());
+        };
+        self.flush();
+        self.set_stroke(color, style.stroke_width());
+        self.context.begin_path();
+        self.context.move_to(f64::from(start.0), f64::from(start.1));
+        for next in path {
+            self.context.line_to(f64::from(next.0), f64::from(next.1));
+        }
+        self.context.stroke();
+        Ok(())
     }
 
     fn draw_circle<S: BackendStyle>(
@@ -315,10 +381,13 @@ impl DrawingBackend for StyledCanvas {
             style.family().as_str()
         );
         if self.known.font.as_deref() != Some(font.as_str()) {
-            self.context.set_font(&font);
+            self.strings().set_font_value(&js_string(&font));
             self.known.font = Some(font);
         }
-        let drawn = self.context.fill_text(text, x, y).map_err(failure);
+        let drawn = self
+            .strings()
+            .fill_text_value(&js_string(text), x, y)
+            .map_err(failure);
         if let Some(before) = before {
             self.context.restore();
             self.known = before;

@@ -5,7 +5,7 @@
 use num_complex::Complex64;
 use rand_core::{RngCore, SeedableRng};
 use rand_xoshiro::Xoshiro256PlusPlus;
-use rolloff::analysis::circuit::Compiled;
+use rolloff::analysis::circuit::{input_drive, merge_stages, Compiled, Solver};
 use rolloff::analysis::fastfit::{magnitude_squared_into, FastFit};
 use rolloff::analysis::levels::board_levels;
 use rolloff::analysis::montecarlo::{
@@ -210,6 +210,55 @@ fn design_zoo() -> Vec<Board> {
         boards.push(board_of(&req, topo, false, ops[i % ops.len()]));
     }
     boards
+}
+
+// ---------------------------------------------------------------------------------------------
+// The banded board solver against the dense nodal analysis.
+
+/// Oracle: `mna::board_response`, the project's dense complex MNA solve with a voltage-source
+/// branch (written independently of `analysis::circuit`), 1e-10 relative. The adjoint solve
+/// `Mᵀ·y = e_out` must give the same gain as `yᵀ·b` (`e_outᵀ·M⁻¹·b`, linear algebra), and a
+/// solver reused across frequencies, after transposed loads, must give a fresh solver's numbers
+/// to the bit (what a load clears is what the last solve touched).
+#[test]
+fn banded_board_solves_match_the_dense_nodal_analysis() {
+    for (b, board) in design_zoo().iter().enumerate() {
+        let nets: Vec<&StageNetlist> = board.stages.iter().map(|s| &s.netlist).collect();
+        let merged = merge_stages(&nets).unwrap();
+        let compiled = Compiled::new(&merged.netlist, &board.op_amp).unwrap();
+        let assembled = compiled.assemble(&merged.netlist);
+        let mut reused = Solver::new(compiled.n);
+        let mut drive = vec![Complex64::new(0.0, 0.0); compiled.n];
+        for f in log_grid(20.0, 2e6, 23) {
+            let s = Complex64::new(0.0, 2.0 * PI * f);
+            let (expected, _) = rolloff::mna::board_response(board, s).unwrap();
+            let mut fresh = Solver::new(compiled.n);
+            fresh.load(&assembled, s, Complex64::new(1.0, 0.0));
+            assert_ne!(fresh.solve(), Complex64::new(0.0, 0.0));
+            let h = fresh.solution()[compiled.output_col];
+            assert!(
+                (h - expected).norm() <= 1e-10 * expected.norm().max(1e-12),
+                "board {b} at {f} Hz: {h} vs mna {expected}"
+            );
+            reused.load(&assembled, s, Complex64::new(1.0, 0.0));
+            reused.solve();
+            assert_eq!(reused.solution(), fresh.solution(), "board {b} at {f} Hz");
+            reused.load_transposed(&assembled, s);
+            reused.rhs_mut()[compiled.output_col] = Complex64::new(1.0, 0.0);
+            assert_ne!(reused.solve(), Complex64::new(0.0, 0.0));
+            input_drive(&assembled, s, Complex64::new(1.0, 0.0), &mut drive);
+            let adjoint: Complex64 = reused
+                .solution()
+                .iter()
+                .zip(&drive)
+                .map(|(y, d)| y * d)
+                .sum();
+            assert!(
+                (adjoint - h).norm() <= 1e-10 * h.norm().max(1e-12),
+                "board {b} at {f} Hz: adjoint {adjoint} vs {h}"
+            );
+        }
+    }
 }
 
 // ---------------------------------------------------------------------------------------------

@@ -4,7 +4,8 @@
 //!
 //! Formulation (modified nodal analysis, reduced):
 //! - the unknowns are the node voltages except the input node, plus one internal node per op amp
-//!   with a non-zero output resistance;
+//!   with a non-zero output resistance (numbered right after the op amp's output pin, so that a
+//!   board's matrix is banded);
 //! - the input node is driven by an ideal source: its column moves to the right-hand side and its
 //!   current equation is dropped;
 //! - an op amp is `v_int · (1/A(s)) = V+ − V−` with `1/A(s) = 1/A0 + s/(2π·GBW)` (the single-pole
@@ -167,15 +168,6 @@ impl Compiled {
         } else {
             0.0
         };
-        // Unknown indices: every node but the input, then one internal node per op amp when Rout > 0.
-        let mut node_col = vec![None; n_nodes];
-        let mut n = 0;
-        for (i, col) in node_col.iter_mut().enumerate() {
-            if i != net.input {
-                *col = Some(n);
-                n += 1;
-            }
-        }
         let opamps: Vec<&crate::netlist::Part> = net
             .parts
             .iter()
@@ -193,9 +185,32 @@ impl Compiled {
                 check_node(node, n_nodes, &p.reference)?;
             }
         }
-        let internal_start = n;
+        // Unknown indices: every node but the input, in netlist order, each op amp's internal node
+        // (when Rout > 0) right after its output pin. A board's equations then stay banded: an
+        // op amp's rows and columns sit beside those of its own stage.
+        let mut node_col = vec![None; n_nodes];
+        let mut internal_col = vec![usize::MAX; opamps.len()];
+        let mut n = 0;
+        for (i, col) in node_col.iter_mut().enumerate() {
+            if i != net.input {
+                *col = Some(n);
+                n += 1;
+                if rout > 0.0 {
+                    for (k, p) in opamps.iter().enumerate() {
+                        if p.nodes[2] == Some(i) {
+                            internal_col[k] = n;
+                            n += 1;
+                        }
+                    }
+                }
+            }
+        }
         if rout > 0.0 {
-            n += opamps.len();
+            // An op amp whose output is not a node of its own (refused below) still gets a column.
+            for slot in internal_col.iter_mut().filter(|c| **c == usize::MAX) {
+                *slot = n;
+                n += 1;
+            }
         }
         let mut row_is_kcl = vec![true; n];
         let mut base_g = vec![0.0; n * n];
@@ -216,7 +231,7 @@ impl Compiled {
             };
             let out_col = node_col[out_idx].unwrap_or(0);
             let row = if rout > 0.0 {
-                let v = internal_start + k;
+                let v = internal_col[k];
                 base_g[out_col * n + out_col] += 1.0 / rout;
                 base_g[out_col * n + v] -= 1.0 / rout;
                 v
@@ -376,13 +391,24 @@ impl Compiled {
     }
 }
 
-/// Dense complex work space for solving `M(s)·x = b` by Gaussian elimination with partial pivoting.
+/// Complex work space for solving `M(s)·x = b` by Gaussian elimination with partial pivoting.
+///
+/// The matrix is stored dense, but a board is a chain of stages, so its matrix is banded and most
+/// of each row is zero. Every row keeps the span of columns outside which it is exactly zero:
+/// loading writes and clears only the spans, and elimination and the pivot search touch only
+/// the rows and columns a span can reach (a row's span grows to the pivot row's end when it is
+/// eliminated). Skipped terms are exact zeros, so the result is the same to the bit as the dense
+/// loop's.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Solver {
     n: usize,
     m: Vec<Complex64>,
     rhs: Vec<Complex64>,
-    perm: Vec<usize>,
+    /// First column of each row (as stored now) that may be non-zero. Elimination leaves the
+    /// eliminated entries as they are (only the upper triangle is read afterwards), so a row's
+    /// start never moves.
+    row_start: Vec<usize>,
+    /// One past the last column of each row that may be non-zero.
     row_end: Vec<usize>,
 }
 
@@ -393,34 +419,60 @@ impl Solver {
             n,
             m: vec![Complex64::new(0.0, 0.0); n * n],
             rhs: vec![Complex64::new(0.0, 0.0); n],
-            perm: (0..n).collect(),
-            row_end: Vec::with_capacity(n),
+            row_start: vec![0; n],
+            row_end: vec![n; n],
+        }
+    }
+
+    /// Clears what the last load and solve left in the rows' spans.
+    fn clear(&mut self) {
+        let n = self.n;
+        for r in 0..n {
+            let (lo, hi) = (self.row_start[r], self.row_end[r]);
+            if lo < hi {
+                self.m[r * n + lo..r * n + hi].fill(Complex64::new(0.0, 0.0));
+            }
         }
     }
 
     /// Loads `M(s) = G + s·C`, and the right-hand side `−(g_in + s·c_in)·v_in` (the input source).
     pub fn load(&mut self, a: &Assembled, s: Complex64, v_in: Complex64) {
-        for ((m, &g), &c) in self.m.iter_mut().zip(&a.g).zip(&a.c) {
-            *m = Complex64::new(g, 0.0) + s * c;
+        self.clear();
+        let n = self.n;
+        for r in 0..n {
+            let (g, c) = (&a.g[r * n..(r + 1) * n], &a.c[r * n..(r + 1) * n]);
+            let used = |k: &usize| g[*k] != 0.0 || c[*k] != 0.0;
+            let lo = (0..n).find(used).unwrap_or(n);
+            let hi = (lo..n).rfind(used).map_or(lo, |k| k + 1);
+            for k in lo..hi {
+                self.m[r * n + k] = Complex64::new(g[k], 0.0) + s * c[k];
+            }
+            self.row_start[r] = lo;
+            self.row_end[r] = hi;
         }
-        for ((r, &g), &c) in self.rhs.iter_mut().zip(&a.g_in).zip(&a.c_in) {
-            *r = -(Complex64::new(g, 0.0) + s * c) * v_in;
+        input_drive(a, s, v_in, &mut self.rhs);
+    }
+
+    /// Loads the transpose `M(s)ᵀ` (for adjoint solves) and a zero right-hand side.
+    pub fn load_transposed(&mut self, a: &Assembled, s: Complex64) {
+        self.clear();
+        let n = self.n;
+        for r in 0..n {
+            let used = |k: &usize| a.g[k * n + r] != 0.0 || a.c[k * n + r] != 0.0;
+            let lo = (0..n).find(used).unwrap_or(n);
+            let hi = (lo..n).rfind(used).map_or(lo, |k| k + 1);
+            for k in lo..hi {
+                self.m[r * n + k] = Complex64::new(a.g[k * n + r], 0.0) + s * a.c[k * n + r];
+            }
+            self.row_start[r] = lo;
+            self.row_end[r] = hi;
         }
+        self.rhs.fill(Complex64::new(0.0, 0.0));
     }
 
     /// Mutable access to the right-hand side (to add injected currents after [`Solver::load`]).
     pub fn rhs_mut(&mut self) -> &mut [Complex64] {
         &mut self.rhs
-    }
-
-    /// Transposes the loaded matrix in place (for adjoint solves).
-    pub fn transpose(&mut self) {
-        let n = self.n;
-        for r in 0..n {
-            for c in (r + 1)..n {
-                self.m.swap(r * n + c, c * n + r);
-            }
-        }
     }
 
     /// Eliminates and back-substitutes. Returns the determinant of the loaded matrix; the solution
@@ -429,27 +481,15 @@ impl Solver {
     pub fn solve(&mut self) -> Complex64 {
         let n = self.n;
         let mut det = Complex64::new(1.0, 0.0);
-        for (i, p) in self.perm.iter_mut().enumerate() {
-            *p = i;
-        }
-        // The last non-zero column of every row. A board is a chain of stages, so its matrix is
-        // banded and most of each row is zero: elimination touches only the columns up to a
-        // row's end (a row's end grows to the pivot row's end when it is eliminated). Skipped
-        // terms are exact zeros, so the result is the same to the bit as the dense loop's.
-        self.row_end.clear();
-        for r in 0..n {
-            let row = &self.m[r * n..(r + 1) * n];
-            let end = row
-                .iter()
-                .rposition(|v| v.re != 0.0 || v.im != 0.0)
-                .map_or(0, |c| c + 1);
-            self.row_end.push(end);
-        }
         for k in 0..n {
-            // Partial pivoting by the largest |·|₁ in column k.
+            // Partial pivoting by the largest |·|₁ in column k (rows whose span misses column k
+            // hold an exact zero there).
             let mut best = k;
             let mut best_mag = -1.0;
             for r in k..n {
+                if self.row_start[r] > k || self.row_end[r] <= k {
+                    continue;
+                }
                 let v = self.m[r * n + k];
                 let mag = v.re.abs() + v.im.abs();
                 if mag > best_mag {
@@ -464,10 +504,13 @@ impl Solver {
                 return Complex64::new(0.0, 0.0);
             }
             if best != k {
-                for c in 0..n {
+                let lo = self.row_start[k].min(self.row_start[best]);
+                let hi = self.row_end[k].max(self.row_end[best]);
+                for c in lo..hi {
                     self.m.swap(k * n + c, best * n + c);
                 }
                 self.rhs.swap(k, best);
+                self.row_start.swap(k, best);
                 self.row_end.swap(k, best);
                 det = -det;
             }
@@ -476,6 +519,9 @@ impl Solver {
             let inv = 1.0 / pivot;
             let end_k = self.row_end[k].max(k + 1);
             for r in (k + 1)..n {
+                if self.row_start[r] > k || self.row_end[r] <= k {
+                    continue;
+                }
                 let factor = self.m[r * n + k] * inv;
                 if factor.re == 0.0 && factor.im == 0.0 {
                     continue;
@@ -504,6 +550,13 @@ impl Solver {
     /// The solution after [`Solver::solve`].
     pub fn solution(&self) -> &[Complex64] {
         &self.rhs
+    }
+}
+
+/// The right-hand side `−(g_in + s·c_in)·v_in` of the input source, into `out`.
+pub fn input_drive(a: &Assembled, s: Complex64, v_in: Complex64, out: &mut [Complex64]) {
+    for ((r, &g), &c) in out.iter_mut().zip(&a.g_in).zip(&a.c_in) {
+        *r = -(Complex64::new(g, 0.0) + s * c) * v_in;
     }
 }
 

@@ -18,7 +18,7 @@
 //! ln f ([`integrate_log_f`]) to a relative accuracy of 1e-7, each peak of the density on the
 //! curve's frequencies being a panel edge.
 
-use super::circuit::{merge_stages, AnalysisError, Compiled, Solver};
+use super::circuit::{input_drive, merge_stages, AnalysisError, Compiled, Solver};
 use crate::board::Board;
 use crate::error::InputError;
 use crate::netlist::{PartKind, StageNetlist};
@@ -214,12 +214,8 @@ pub fn stages_noise(
     // gives the signal gain: with `M·x = b` driven by the board input, `V_out = yᵀ·b`.
     let mut eval = |f: f64, out: &mut Vec<f64>| -> Result<f64, AnalysisError> {
         let s = Complex64::new(0.0, 2.0 * PI * f);
-        solver.load(&assembled, s, Complex64::new(1.0, 0.0));
-        drive.copy_from_slice(solver.rhs_mut());
-        solver.transpose();
-        for v in solver.rhs_mut().iter_mut() {
-            *v = Complex64::new(0.0, 0.0);
-        }
+        input_drive(&assembled, s, Complex64::new(1.0, 0.0), &mut drive);
+        solver.load_transposed(&assembled, s);
         solver.rhs_mut()[compiled.output_col] = Complex64::new(1.0, 0.0);
         let det = solver.solve();
         if det.norm() == 0.0 {
