@@ -207,8 +207,30 @@ impl Series {
         // boundary (log10 slightly off) still find their true nearest.
         let first = decade * n - 1;
         let last = decade * n + n + 1;
+        let (Some(_), Some(_)) = (self.value_at(first), self.value_at(last)) else {
+            // At the ends of the representable decades some entries do not exist: look at all.
+            return self.nearest_among(value, first..=last);
+        };
+        // Every entry between two that exist exists, and the values rise with the index: the
+        // nearest is one of the two around `value`, found by bisection instead of a logarithm
+        // per entry.
+        let (mut lo, mut hi) = (first, last + 1);
+        while lo < hi {
+            let mid = lo + (hi - lo) / 2;
+            if self.value_at(mid).is_some_and(|v| v < value) {
+                lo = mid + 1;
+            } else {
+                hi = mid;
+            }
+        }
+        self.nearest_among(value, (lo - 1).max(first)..=lo.min(last))
+    }
+
+    /// Of the indices `range` (ascending), the one whose value is nearest to `value` by
+    /// |ln(value/standard)|; the lower index wins a tie.
+    fn nearest_among(self, value: f64, range: std::ops::RangeInclusive<i64>) -> Option<i64> {
         let mut best: Option<(i64, f64)> = None;
-        for idx in first..=last {
+        for idx in range {
             let Some(candidate) = self.value_at(idx) else {
                 continue;
             };
@@ -341,6 +363,39 @@ mod tests {
                 assert!(series.contains(once));
             }
         }
+    }
+
+    #[test]
+    fn bisection_finds_the_entry_a_full_scan_finds() {
+        // The nearest entry by bisection must be the one the scan of the decade (and one entry
+        // either side) gives: at standard values, at geometric midpoints of neighbours (the
+        // ties, where the lower entry wins), just off them, and across the decades.
+        for series in Series::ALL {
+            let n = series.per_decade() as i64;
+            let mut values = Vec::new();
+            for idx in -20 * n..20 * n {
+                let (a, b) = (
+                    series.value_at(idx).unwrap(),
+                    series.value_at(idx + 1).unwrap(),
+                );
+                let mid = (a * b).sqrt();
+                values.extend([
+                    a,
+                    mid,
+                    mid * (1.0 + 1e-15),
+                    mid * (1.0 - 1e-15),
+                    a * 1.000001,
+                ]);
+            }
+            for x in values {
+                let decade = x.log10().floor() as i64;
+                let scan = series.nearest_among(x, decade * n - 1..=decade * n + n + 1);
+                assert_eq!(series.nearest_index(x), scan, "{series:?} at {x:e}");
+            }
+        }
+        // In the lowest representable decade the entry below it does not exist: the scan path.
+        let low = Series::E12.nearest(1.49e-38);
+        assert!((low / 1.5e-38 - 1.0).abs() < 1e-12, "{low:e}");
     }
 
     #[test]

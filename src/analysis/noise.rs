@@ -367,7 +367,7 @@ struct Panel {
 
 /// `∫ g_k(f) df` from `lo` to `hi` for every component `k < n` of a vector function
 /// (`eval(f, out)` writes `g(f)` into `out`), by globally adaptive 7–15 point Gauss–Kronrod
-/// quadrature in `u = ln f` (`df = f du`): panels two to a decade, cut also at `breaks`
+/// quadrature in `u = ln f` (`df = f du`): panels one to a decade, cut also at `breaks`
 /// (inside the band), and the panel of largest error halved until the error estimate of the sum
 /// is below [`INTEGRAL_REL_TOL`] of it, or [`INTEGRAL_MAX_PANELS`] are used.
 ///
@@ -381,7 +381,7 @@ pub(crate) fn integrate_log_f<E>(
     mut eval: impl FnMut(f64, &mut [f64]) -> Result<(), E>,
 ) -> Result<Vec<f64>, E> {
     let (ua, ub) = (lo.ln(), hi.ln());
-    let n0 = ((ub - ua) / std::f64::consts::LN_10 * 2.0).ceil().max(2.0) as usize;
+    let n0 = ((ub - ua) / std::f64::consts::LN_10).ceil().max(2.0) as usize;
     let mut edges: Vec<f64> = (0..=n0)
         .map(|i| ua + (ub - ua) * i as f64 / n0 as f64)
         .chain(breaks.iter().map(|f| f.ln()).filter(|u| *u > ua && *u < ub))
@@ -492,7 +492,7 @@ mod tests {
         // The power response of a second-order band-pass, 1/(1 + Q²(f/f0 − f0/f)²), has the
         // noise bandwidth (π/2)·f0/Q (common practice). Over f0/10⁸ … 10⁸·f0 the tails left out,
         // about f0/(Q²·10⁸) on each side, are below 2e-8 of it. The peak sits between two of
-        // the panel edges the half-decade grid gives, and no break is given: the adaptive
+        // the panel edges the decade grid gives, and no break is given: the adaptive
         // halving must find it.
         for &(f0, q) in &[(1234.5, 0.7), (1234.5, 30.0), (777.0, 300.0)] {
             let got = integrate_log_f::<()>(f0 / 1e8, f0 * 1e8, &[], 1, |f, out| {

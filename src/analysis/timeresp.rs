@@ -290,6 +290,17 @@ pub fn cascade_response(
         .map(|(i, j)| e[i * na + j])
         .collect();
     let gamma: Vec<f64> = (0..n).map(|i| e[i * na + n]).collect();
+    // The chain is block lower triangular (a stage hears only the stages before it), and so is
+    // Φ: each row's products run over the columns its exact zeros leave (the same sums, less
+    // the terms that are exact zeros).
+    let spans: Vec<(usize, usize)> = (0..n)
+        .map(|i| {
+            let row = &phi[i * n..(i + 1) * n];
+            let lo = row.iter().position(|v| *v != 0.0).unwrap_or(0);
+            let hi = row.iter().rposition(|v| *v != 0.0).map_or(lo, |j| j + 1);
+            (lo, hi)
+        })
+        .collect();
     let mut t_s = Vec::with_capacity(n_points);
     let mut step = Vec::with_capacity(n_points);
     let mut impulse = Vec::with_capacity(n_points);
@@ -302,12 +313,12 @@ pub fn cascade_response(
         let yi: f64 = sys.c.iter().zip(&xi).map(|(c, x)| c * x).sum::<f64>() * w_t;
         step.push(ys);
         impulse.push(yi);
-        for i in 0..n {
-            tmp[i] = (0..n).map(|j| phi[i * n + j] * xs[j]).sum::<f64>() + gamma[i];
+        for (i, &(lo, hi)) in spans.iter().enumerate() {
+            tmp[i] = (lo..hi).map(|j| phi[i * n + j] * xs[j]).sum::<f64>() + gamma[i];
         }
         std::mem::swap(&mut xs, &mut tmp);
-        for i in 0..n {
-            tmp[i] = (0..n).map(|j| phi[i * n + j] * xi[j]).sum::<f64>();
+        for (i, &(lo, hi)) in spans.iter().enumerate() {
+            tmp[i] = (lo..hi).map(|j| phi[i * n + j] * xi[j]).sum::<f64>();
         }
         std::mem::swap(&mut xi, &mut tmp);
     }
