@@ -283,6 +283,20 @@ pub fn study_step(n_runs: usize) -> JsValue {
     })
 }
 
+/// Works out the percentile curves of up to `n_points` more frequencies of the finished study
+/// (see [`MonteCarlo::summarize`]); returns how many are left (0 also when there is no study).
+/// The page calls it in short pieces before [`study_finish`], so that no task runs long.
+#[wasm_bindgen]
+pub fn study_summarize(n_points: usize) -> usize {
+    SHEET.with(|sheet| {
+        sheet
+            .borrow_mut()
+            .study
+            .as_mut()
+            .map_or(0, |study| study.summarize(n_points))
+    })
+}
+
 /// Summarizes the finished study (percentiles, envelope, histograms, yield) into the plots and
 /// the summary sentence; returns `{ done, total, finished: true, status, summary }`.
 #[wasm_bindgen]

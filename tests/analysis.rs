@@ -529,6 +529,42 @@ fn same_seed_gives_identical_output() {
     assert!(ja.contains("\"yield\":"), "the JSON names the yield");
 }
 
+/// Summarizing in pieces (as the page does, a few grid points per task) gives the summary of one
+/// `finish` to the bit, and runs added after a piece make the summary start over.
+#[test]
+fn a_summary_made_in_pieces_equals_one_made_at_once() {
+    let req = requirement(ResponseClass::BandPass, Family::Butterworth, 4, 1000.0);
+    let board = board_of(&req, Topology::MultipleFeedback, false, OpAmp::GENERIC);
+    let mk = || {
+        MonteCarlo::new(
+            &board,
+            None,
+            mc_settings(500, 9, 1.0, 5.0, ResponseClass::BandPass),
+        )
+        .unwrap()
+    };
+    // Compared as JSON: a value that is NaN (no reading) is unequal to itself, `null` is not.
+    let json = |s: &Summary| serde_json::to_string(s).unwrap();
+    let at_once = json(&run_all(mk(), 500));
+    let mut pieces = mk();
+    pieces.step(500);
+    let total = pieces.summarize(0);
+    assert!(total > 20, "{total} grid points");
+    let mut left = total;
+    while left > 0 {
+        let before = left;
+        left = pieces.summarize(7);
+        assert_eq!(left, before.saturating_sub(7));
+    }
+    assert_eq!(json(&pieces.finish()), at_once);
+    // Half the runs, a piece summarized, then the rest of the runs.
+    let mut late = mk();
+    late.step(250);
+    late.summarize(13);
+    late.step(250);
+    assert_eq!(json(&late.finish()), at_once);
+}
+
 /// Analytic: the cutoff of an RC low-pass is 1/(2πRC); for small independent Gaussian spreads
 /// its relative standard deviation is √(σR² + σC²) (first-order propagation; the second-order
 /// term adds ~σ² ≈ 5e-4 relative). Sampling error of a standard deviation over n = 20,000 runs is

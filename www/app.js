@@ -721,8 +721,21 @@
       $('#study-status').textContent = p.status;
       if (p.finished) { cancelStudy(true); return; }
       if (p.done >= p.total) {
-        // Summarize in a task of its own, then redraw on the next frame.
-        window.setTimeout(function () {
+        // Summarize in pieces of about 8 ms, then the rest in a task of its own, then redraw on
+        // the next frame.
+        var points = 8;
+        var pieces = new MessageChannel();
+        var next = function () { window.setTimeout(function () { pieces.port2.postMessage(0); }, 0); };
+        var summarize = function () {
+          if (job.cancelled) return;
+          var t = performance.now();
+          var left = engine.study_summarize(points);
+          var spent = performance.now() - t;
+          points = spent > 0.5 ? Math.max(1, Math.round(points * 8 / spent)) : points * 2;
+          if (left > 0) { next(); return; }
+          window.setTimeout(finish, 0);
+        };
+        var finish = function () {
           if (job.cancelled) return;
           var result = engine.study_finish();
           state.study = null;
@@ -738,7 +751,9 @@
             document.body.setAttribute('data-study-ms', String(Math.round(performance.now() - job.t0)));
             document.body.setAttribute('data-study-done', String(state.studies));
           });
-        }, 0);
+        };
+        pieces.port1.onmessage = summarize;
+        next();
         return;
       }
       window.setTimeout(function () { channel.port2.postMessage(0); }, 0);

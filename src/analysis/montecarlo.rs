@@ -390,6 +390,8 @@ pub struct MonteCarlo {
     /// frequency-major inside each block: a batch writes contiguous lanes per frequency, and
     /// reading one frequency over all runs reads contiguous stretches.
     samples_h2: Vec<f32>,
+    /// Percentile curves of the grid points summarized so far ([`MonteCarlo::summarize`]).
+    curves: Vec<PercentileCurve>,
     cut_lo: Vec<f64>,
     cut_hi: Vec<f64>,
     gain_db: Vec<f64>,
@@ -873,6 +875,7 @@ impl MonteCarlo {
             env_min: vec![[f64::INFINITY; RUN_LANES]; n_grid],
             env_max: vec![[0.0; RUN_LANES]; n_grid],
             samples_h2: Vec::new(),
+            curves: Vec::new(),
             cut_lo: Vec::with_capacity(runs_total),
             cut_hi: Vec::with_capacity(runs_total),
             gain_db: Vec::with_capacity(runs_total),
@@ -910,6 +913,10 @@ impl MonteCarlo {
     /// Runs up to `n_runs` more runs (fewer at the end) and reports the progress.
     pub fn step(&mut self, n_runs: usize) -> Progress {
         let todo = n_runs.min(self.settings.runs - self.done);
+        if todo > 0 {
+            // New runs change every percentile curve summarized so far.
+            self.curves.clear();
+        }
         let end = self.done + todo;
         while self.done < end {
             // Lane = run index modulo the lane count, so a batch never straddles a lane group
@@ -1432,27 +1439,35 @@ impl MonteCarlo {
         }
     }
 
-    /// The results of the runs done so far.
-    pub fn finish(self) -> Summary {
+    /// Works out the percentile curves of up to `max_points` more grid points of the finished
+    /// runs, and returns how many grid points are left. [`MonteCarlo::finish`] does what is
+    /// left; summarizing a few points at a time first keeps each piece of work short (the page
+    /// stays responsive) and gives the same numbers. A [`MonteCarlo::step`] afterwards makes the
+    /// summary start over, since its runs change every curve.
+    pub fn summarize(&mut self, max_points: usize) -> usize {
         let n = self.done;
         let n_grid = self.n_grid;
         let pct = &self.settings.percentiles;
         let to_db = |v: f64| 10.0 * v.log10();
-        let mut curves: Vec<PercentileCurve> = pct
-            .iter()
-            .map(|&p| PercentileCurve {
-                percentile: p,
-                db: Vec::with_capacity(n_grid),
-            })
-            .collect();
+        if self.curves.is_empty() {
+            self.curves = pct
+                .iter()
+                .map(|&p| PercentileCurve {
+                    percentile: p,
+                    db: Vec::with_capacity(n_grid),
+                })
+                .collect();
+        }
+        let start = self.curves.first().map_or(n_grid, |c| c.db.len());
+        let end = start.saturating_add(max_points).min(n_grid);
         // Frequencies are gathered a group at a time: a block's rows of the group are contiguous,
         // so the table is read front to back instead of one line per block and frequency.
         const GROUP: usize = 8;
-        let mut columns: Vec<Vec<f32>> = vec![Vec::with_capacity(n); GROUP.min(n_grid)];
+        let mut columns: Vec<Vec<f32>> = vec![Vec::with_capacity(n); GROUP.min(end - start)];
         let mut scratch = PercentileScratch::default();
         let n_blocks = n.div_ceil(SAMPLE_BLOCK);
-        for f0 in (0..n_grid).step_by(GROUP) {
-            let group = GROUP.min(n_grid - f0);
+        for f0 in (start..end).step_by(GROUP) {
+            let group = GROUP.min(end - f0);
             for c in columns.iter_mut() {
                 c.clear();
             }
@@ -1470,11 +1485,21 @@ impl MonteCarlo {
                     c.retain(|v| !v.is_nan());
                 }
                 let values = percentiles_f32_with(c, pct, &mut scratch);
-                for (curve, v) in curves.iter_mut().zip(values) {
+                for (curve, v) in self.curves.iter_mut().zip(values) {
                     curve.db.push(to_db(v));
                 }
             }
         }
+        n_grid - end
+    }
+
+    /// The results of the runs done so far.
+    pub fn finish(mut self) -> Summary {
+        self.summarize(usize::MAX);
+        let n = self.done;
+        let pct = &self.settings.percentiles;
+        let to_db = |v: f64| 10.0 * v.log10();
+        let curves = std::mem::take(&mut self.curves);
         let nominal_db: Vec<f64> = self.nominal_h2.iter().map(|&v| to_db(v)).collect();
         let (env_min, env_max) = if n == 0 {
             (nominal_db.clone(), nominal_db.clone())
