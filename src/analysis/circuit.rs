@@ -437,37 +437,36 @@ impl Solver {
 
     /// Loads `M(s) = G + s·C`, and the right-hand side `−(g_in + s·c_in)·v_in` (the input source).
     pub fn load(&mut self, a: &Assembled, s: Complex64, v_in: Complex64) {
-        self.clear();
         let n = self.n;
-        for r in 0..n {
-            let (g, c) = (&a.g[r * n..(r + 1) * n], &a.c[r * n..(r + 1) * n]);
-            let used = |k: &usize| g[*k] != 0.0 || c[*k] != 0.0;
-            let lo = (0..n).find(used).unwrap_or(n);
-            let hi = (lo..n).rfind(used).map_or(lo, |k| k + 1);
-            for k in lo..hi {
-                self.m[r * n + k] = Complex64::new(g[k], 0.0) + s * c[k];
-            }
-            self.row_start[r] = lo;
-            self.row_end[r] = hi;
-        }
+        self.load_rows(s, |r, k| (a.g[r * n + k], a.c[r * n + k]));
         input_drive(a, s, v_in, &mut self.rhs);
     }
 
     /// Loads the transpose `M(s)ᵀ` (for adjoint solves) and a zero right-hand side.
     pub fn load_transposed(&mut self, a: &Assembled, s: Complex64) {
+        let n = self.n;
+        self.load_rows(s, |r, k| (a.g[k * n + r], a.c[k * n + r]));
+        self.rhs.fill(Complex64::new(0.0, 0.0));
+    }
+
+    /// Loads `g + s·c` for the entries `(g, c) = entry(row, column)`, and every row's span.
+    fn load_rows(&mut self, s: Complex64, entry: impl Fn(usize, usize) -> (f64, f64)) {
         self.clear();
         let n = self.n;
         for r in 0..n {
-            let used = |k: &usize| a.g[k * n + r] != 0.0 || a.c[k * n + r] != 0.0;
+            let used = |k: &usize| {
+                let (g, c) = entry(r, *k);
+                g != 0.0 || c != 0.0
+            };
             let lo = (0..n).find(used).unwrap_or(n);
             let hi = (lo..n).rfind(used).map_or(lo, |k| k + 1);
             for k in lo..hi {
-                self.m[r * n + k] = Complex64::new(a.g[k * n + r], 0.0) + s * a.c[k * n + r];
+                let (g, c) = entry(r, k);
+                self.m[r * n + k] = Complex64::new(g, 0.0) + s * c;
             }
             self.row_start[r] = lo;
             self.row_end[r] = hi;
         }
-        self.rhs.fill(Complex64::new(0.0, 0.0));
     }
 
     /// Mutable access to the right-hand side (to add injected currents after [`Solver::load`]).
