@@ -36,14 +36,7 @@ use serde::Serialize;
 /// A part value in engineering notation with its unit, prefix and unit together: `14.7 kΩ`,
 /// `22 nF`, `470 Ω` (up to `digits` significant digits, trailing zeros dropped).
 pub fn format_value(value: f64, digits: usize, unit: &str) -> String {
-    let text = crate::units::format_si(value, digits);
-    match text.chars().last() {
-        Some(c) if "fpnuµmkMGT".contains(c) => {
-            let number = &text[..text.len() - c.len_utf8()];
-            format!("{number} {c}{unit}")
-        }
-        _ => format!("{text} {unit}"),
-    }
+    crate::units::format_si_unit(value, digits, unit)
 }
 
 /// Where the stages aim their resistors (`rlevel`).

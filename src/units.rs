@@ -178,9 +178,16 @@ pub fn format_si(value: f64, digits: usize) -> String {
     )
 }
 
-/// [`format_si`] followed by a space and a unit (`4.7 kΩ`, `1.59 kHz`).
+/// [`format_si`] with a space before the prefix and unit (`4.7 kΩ`, `1.59 kHz`, `22 pF`).
 pub fn format_si_unit(value: f64, digits: usize, unit: &str) -> String {
-    format!("{} {unit}", format_si(value, digits))
+    let text = format_si(value, digits);
+    match text.chars().last() {
+        Some(c) if "fpnuµmkMGT".contains(c) => {
+            let number = &text[..text.len() - c.len_utf8()];
+            format!("{number} {c}{unit}")
+        }
+        _ => format!("{text} {unit}"),
+    }
 }
 
 fn trim_zeros(text: &str) -> String {
@@ -199,6 +206,15 @@ fn trim_zeros(text: &str) -> String {
 
 #[cfg(test)]
 mod tests {
+    #[test]
+    fn a_unit_follows_the_prefix_after_one_space() {
+        // SI writing (common practice): number, space, prefix and unit together.
+        assert_eq!(format_si_unit(4700.0, 3, "Ω"), "4.7 kΩ");
+        assert_eq!(format_si_unit(1.0e8, 4, "Hz"), "100 MHz");
+        assert_eq!(format_si_unit(2.2e-11, 3, "F"), "22 pF");
+        assert_eq!(format_si_unit(470.0, 3, "Ω"), "470 Ω");
+    }
+
     use super::*;
 
     fn check(text: &str, expect: f64) {

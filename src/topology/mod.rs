@@ -687,10 +687,10 @@ pub fn design_stage(
         InputError::new(
             "rlevel",
             format!(
-                "stage {stage_no} ({}, f0 = {:.4} Hz): no impedance level {}keeps every part \
+                "stage {stage_no} ({}, f0 = {}): no impedance level {}keeps every part \
                  inside 1 Ω–10 MΩ and 1 pF–100 µF{}",
                 circuit.describe(),
-                target.f0_hz(),
+                crate::units::format_si_unit(target.f0_hz(), 4, "Hz"),
                 if auto_level {
                     String::new()
                 } else {
@@ -959,7 +959,8 @@ fn level_warnings(
             )
         } else if let Some(level) = freedoms.level_ohm {
             format!("the impedance level rlevel = {level} Ω puts it there")
-        } else if !slot.scaled {
+        } else if !slot.scaled && slot.class == PartClass::Resistor {
+            // A resistor of the gain network (capacitors never scale with the level).
             format!(
                 "the gain of {:.4} V/V needs this divider ratio",
                 target.gain
@@ -970,9 +971,15 @@ fn level_warnings(
                  holds; a different cratio or rratio narrows it"
             )
         } else if slot.class == PartClass::Capacitor || c_min <= PREFERRED_C_MIN_F * 1.5 {
-            format!("at f0 = {f0:.4} Hz, resistors ≥ 1 kΩ and capacitors ≥ 100 pF cannot both hold")
+            format!(
+                "at f0 = {}, resistors ≥ 1 kΩ and capacitors ≥ 100 pF cannot both hold",
+                crate::units::format_si_unit(f0, 4, "Hz")
+            )
         } else {
-            format!("at f0 = {f0:.4} Hz the capacitors would otherwise exceed 100 µF")
+            format!(
+                "at f0 = {} the capacitors would otherwise exceed 100 µF",
+                crate::units::format_si_unit(f0, 4, "Hz")
+            )
         };
         warnings.push(format!(
             "stage {stage_no}: {} ({}) {what}: {reason}",
