@@ -231,6 +231,10 @@
     });
   }) : null;
   function watchCanvas(canvas) { if (watcher) watcher.observe(canvas); }
+  /* A card leaving the page takes its canvas out of the watch (the observer would keep it). */
+  function forgetCanvases(node) {
+    if (watcher) $$('canvas', node).forEach(function (c) { watcher.unobserve(c); resized.delete(c); });
+  }
   function sizeOf(canvas) {
     var size = watcher && sizes.get(canvas);
     if (size) return size;
@@ -315,12 +319,12 @@
       var card = cards[i];
       if (!card || card.getAttribute('data-key') !== key) {
         var fresh = buildCard(stage);
-        if (card) host.replaceChild(fresh, card); else host.appendChild(fresh);
+        if (card) { forgetCanvases(card); host.replaceChild(fresh, card); } else host.appendChild(fresh);
         card = fresh;
       }
       fillCard(card, stage);
     });
-    cards.slice(stages.length).forEach(function (c) { c.remove(); });
+    cards.slice(stages.length).forEach(function (c) { forgetCanvases(c); c.remove(); });
   }
 
   function buildCard(stage) {
