@@ -31,13 +31,8 @@ use crate::netlist::{Node, Part, PartKind, StageNetlist};
 use crate::opamp::OpAmp;
 use crate::sections::Section;
 use crate::topology::{self, Circuit, Freedoms, Target, Topology};
+use crate::units::format_si_unit;
 use serde::Serialize;
-
-/// A part value in engineering notation with its unit, prefix and unit together: `14.7 kΩ`,
-/// `22 nF`, `470 Ω` (up to `digits` significant digits, trailing zeros dropped).
-pub fn format_value(value: f64, digits: usize, unit: &str) -> String {
-    crate::units::format_si_unit(value, digits, unit)
-}
 
 /// Where the stages aim their resistors (`rlevel`).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
@@ -413,15 +408,15 @@ impl Board {
                             "set",
                             format!(
                                 "{wanted} = {value} {unit} is outside the accepted range {}–{}",
-                                format_value(lo, 3, unit),
-                                format_value(hi, 3, unit)
+                                format_si_unit(lo, 3, unit),
+                                format_si_unit(hi, 3, unit)
                             ),
                         ));
                     }
                     stage.warnings.push(format!(
                         "{wanted} set to {} by hand (designed {})",
-                        format_value(*value, 4, unit),
-                        format_value(part.ideal, 4, unit)
+                        format_si_unit(*value, 4, unit),
+                        format_si_unit(part.ideal, 4, unit)
                     ));
                     part.value = *value;
                 }

@@ -178,7 +178,9 @@ pub fn format_si(value: f64, digits: usize) -> String {
     )
 }
 
-/// [`format_si`] with a space before the prefix and unit (`4.7 kΩ`, `1.59 kHz`, `22 pF`).
+/// A value in engineering notation with its unit, prefix and unit together after one space:
+/// `14.7 kΩ`, `22 nF`, `470 Ω`, `1.59 kHz` ([`format_si`]: up to `digits` significant digits,
+/// trailing zeros dropped).
 pub fn format_si_unit(value: f64, digits: usize, unit: &str) -> String {
     let text = format_si(value, digits);
     match text.chars().last() {
@@ -206,6 +208,8 @@ fn trim_zeros(text: &str) -> String {
 
 #[cfg(test)]
 mod tests {
+    use super::*;
+
     #[test]
     fn a_unit_follows_the_prefix_after_one_space() {
         // SI writing (common practice): number, space, prefix and unit together.
@@ -214,8 +218,6 @@ mod tests {
         assert_eq!(format_si_unit(2.2e-11, 3, "F"), "22 pF");
         assert_eq!(format_si_unit(470.0, 3, "Ω"), "470 Ω");
     }
-
-    use super::*;
 
     fn check(text: &str, expect: f64) {
         let got = parse_si(text).unwrap_or_else(|e| panic!("{text}: {e}"));

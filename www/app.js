@@ -699,6 +699,19 @@
   function autoStudy() {
     if ($('#study-auto').checked) runStudy();
   }
+  /* The study works in tasks of about STUDY_TASK_MS: the next amount of work from the last
+   * one's (`size` units took `spent` ms), kept within [least, most]. */
+  var STUDY_TASK_MS = 8;
+  function nextSize(size, spent, least, most) {
+    var next = spent > 0.5 ? Math.round(size * STUDY_TASK_MS / spent) : size * 2;
+    return Math.max(least, Math.min(most, next));
+  }
+  /* Posts to `port` from a timer: input and painting get their turn first, and the message hop
+   * keeps the browser from stretching chained timers. */
+  function soon(port) {
+    window.setTimeout(function () { port.postMessage(0); }, 0);
+  }
+
   function runStudy() {
     cancelStudy(true);
     if (state.stale || !state.committed) return;
@@ -718,25 +731,22 @@
       var t = performance.now();
       var p = engine.study_step(job.chunk);
       var spent = performance.now() - t;
-      // Aim each chunk at about 8 ms so that input and painting get the rest of every frame.
-      if (spent > 0.5) job.chunk = Math.max(8, Math.min(20000, Math.round(job.chunk * 8 / spent)));
-      else job.chunk = Math.min(20000, job.chunk * 2);
+      // Each chunk aims at a short task, so that input and painting get the rest of every frame.
+      job.chunk = nextSize(job.chunk, spent, 8, 20000);
       bar.value = p.done;
       $('#study-status').textContent = p.status;
       if (p.finished) { cancelStudy(true); return; }
       if (p.done >= p.total) {
-        // Summarize in pieces of about 8 ms, then the rest in a task of its own, then redraw on
-        // the next frame.
+        // Summarize in short pieces, then the rest in a task of its own, then redraw on the
+        // next frame.
         var points = 8;
         var pieces = new MessageChannel();
-        var next = function () { window.setTimeout(function () { pieces.port2.postMessage(0); }, 0); };
         var summarize = function () {
           if (job.cancelled) return;
           var t = performance.now();
           var left = engine.study_summarize(points);
-          var spent = performance.now() - t;
-          points = spent > 0.5 ? Math.max(1, Math.round(points * 8 / spent)) : points * 2;
-          if (left > 0) { next(); return; }
+          points = nextSize(points, performance.now() - t, 1, 1000);
+          if (left > 0) { soon(pieces.port2); return; }
           window.setTimeout(finish, 0);
         };
         var finish = function () {
@@ -757,10 +767,10 @@
           });
         };
         pieces.port1.onmessage = summarize;
-        next();
+        soon(pieces.port2);
         return;
       }
-      window.setTimeout(function () { channel.port2.postMessage(0); }, 0);
+      soon(channel.port2);
     }
     channel.port2.postMessage(0);
   }

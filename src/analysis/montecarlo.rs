@@ -253,6 +253,11 @@ pub struct StageSpread {
     pub q: Option<Spread>,
 }
 
+/// A power ratio (|H|²) in dB.
+fn power_db(v: f64) -> f64 {
+    10.0 * v.log10()
+}
+
 /// Results of a tolerance study.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Summary {
@@ -1448,7 +1453,6 @@ impl MonteCarlo {
         let n = self.done;
         let n_grid = self.n_grid;
         let pct = &self.settings.percentiles;
-        let to_db = |v: f64| 10.0 * v.log10();
         if self.curves.is_empty() {
             self.curves = pct
                 .iter()
@@ -1486,7 +1490,7 @@ impl MonteCarlo {
                 }
                 let values = percentiles_f32_with(c, pct, &mut scratch);
                 for (curve, v) in self.curves.iter_mut().zip(values) {
-                    curve.db.push(to_db(v));
+                    curve.db.push(power_db(v));
                 }
             }
         }
@@ -1498,9 +1502,8 @@ impl MonteCarlo {
         self.summarize(usize::MAX);
         let n = self.done;
         let pct = &self.settings.percentiles;
-        let to_db = |v: f64| 10.0 * v.log10();
         let curves = std::mem::take(&mut self.curves);
-        let nominal_db: Vec<f64> = self.nominal_h2.iter().map(|&v| to_db(v)).collect();
+        let nominal_db: Vec<f64> = self.nominal_h2.iter().map(|&v| power_db(v)).collect();
         let (env_min, env_max) = if n == 0 {
             (nominal_db.clone(), nominal_db.clone())
         } else {
@@ -1509,7 +1512,7 @@ impl MonteCarlo {
                 self.env_min
                     .iter()
                     .map(|v| {
-                        to_db(
+                        power_db(
                             v.iter()
                                 .fold(f64::INFINITY, |m, &x| if x < m { x } else { m }),
                         )
@@ -1517,7 +1520,7 @@ impl MonteCarlo {
                     .collect(),
                 self.env_max
                     .iter()
-                    .map(|v| to_db(v.iter().fold(0.0, |m, &x| if x > m { x } else { m })))
+                    .map(|v| power_db(v.iter().fold(0.0, |m, &x| if x > m { x } else { m })))
                     .collect(),
             )
         };

@@ -6,10 +6,10 @@
 //! reads it back exactly; `formatted` is engineering notation with the unit (`4.87 kΩ`). An op amp
 //! row leaves value, series and tolerance empty and describes the model in `formatted`.
 
-use crate::board::format_value;
 use crate::board::Board;
 use crate::eseries::Series;
 use crate::netlist::PartKind;
+use crate::units::format_si_unit;
 
 /// Part tolerances written into the list (`rtol`, `ctol`).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -71,7 +71,7 @@ pub fn csv(board: &Board, tolerances: &Tolerances) -> String {
                     vec![
                         part.reference.clone(),
                         format!("{:e}", part.value),
-                        format_value(part.value, 4, unit),
+                        format_si_unit(part.value, 4, unit),
                         series_of(series, part.value).to_string(),
                         format!("{tol}"),
                         (k + 1).to_string(),
@@ -102,7 +102,7 @@ fn describe_op_amp(board: &Board) -> String {
         return "ideal op amp".into();
     }
     let gbw = if op.gbw_hz.is_finite() {
-        format_value(op.gbw_hz, 3, "Hz")
+        format_si_unit(op.gbw_hz, 3, "Hz")
     } else {
         "∞".into()
     };
@@ -113,6 +113,6 @@ fn describe_op_amp(board: &Board) -> String {
     };
     format!(
         "op amp: GBW {gbw}, A0 {a0}, Rout {}",
-        format_value(op.rout_ohm, 3, "Ω")
+        format_si_unit(op.rout_ohm, 3, "Ω")
     )
 }

@@ -45,7 +45,7 @@ fn part_dto(part: &Part) -> PartDto<'_> {
         formatted: if is_opamp {
             "op amp".into()
         } else {
-            crate::board::format_value(part.value, 3, unit)
+            crate::units::format_si_unit(part.value, 3, unit)
         },
         role: &part.role,
     }

@@ -2,12 +2,12 @@
 
 use crate::analysis::montecarlo::Summary;
 use crate::analysis::noise::NoiseKind;
-use crate::board::format_value;
 use crate::netlist::PartKind;
 use crate::order::family_name;
 use crate::pipeline::Design;
 use crate::spec::{Edge, OrderChoice, ResponseClass};
 use crate::units::format_si;
+use crate::units::format_si_unit;
 use std::fmt::Write;
 
 /// The one-line summary of a design: "4th-order Butterworth low-pass at 1 kHz, 2 Sallen-Key
@@ -125,7 +125,7 @@ pub fn design_text(design: &Design) -> String {
                 format!(
                     "{}={}",
                     p.reference,
-                    format_value(p.value, 3, unit).replace(' ', "")
+                    format_si_unit(p.value, 3, unit).replace(' ', "")
                 )
             })
             .collect();

@@ -984,7 +984,7 @@ fn level_warnings(
         warnings.push(format!(
             "stage {stage_no}: {} ({}) {what}: {reason}",
             slot.role,
-            crate::board::format_value(
+            crate::units::format_si_unit(
                 v,
                 3,
                 if slot.class == PartClass::Resistor {
