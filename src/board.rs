@@ -26,7 +26,7 @@
 
 use crate::error::InputError;
 use crate::eseries::{PartClass, Series};
-use crate::link::Rounding;
+use crate::choices::Rounding;
 use crate::netlist::{Node, Part, PartKind, StageNetlist};
 use crate::opamp::OpAmp;
 use crate::sections::Section;

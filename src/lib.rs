@@ -8,6 +8,7 @@
 
 pub mod analysis;
 pub mod board;
+pub mod choices;
 pub mod cli;
 pub mod design;
 pub mod error;

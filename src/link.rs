@@ -8,6 +8,7 @@
 //!
 //! Keys, their accepted values and defaults are documented in the README (section "Link keys").
 
+use crate::choices::Rounding;
 use crate::error::InputError;
 use crate::eseries::Series;
 use crate::opamp::OpAmp;
@@ -31,16 +32,6 @@ pub const DEFAULT_FC_HZ: f64 = 1000.0;
 
 /// Attenuation allowed at the passband edge when `apass` is absent, dB.
 pub const DEFAULT_APASS_DB: f64 = 1.0;
-
-/// How standard values are chosen (`round`).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
-pub enum Rounding {
-    /// Each part rounded to its nearest standard value (`nearest`).
-    Nearest,
-    /// A search over combinations of neighbouring standard values for the least f0 and Q error
-    /// (`search`, the default).
-    Search,
-}
 
 /// The distribution of part values in the tolerance study (`dist`).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]

@@ -14,7 +14,7 @@ use common_circuits::*;
 use num_complex::Complex64;
 use rolloff::board::{Board, BuildChoices, ImpedanceLevel};
 use rolloff::eseries::{PartClass, Series};
-use rolloff::link::Rounding;
+use rolloff::choices::Rounding;
 use rolloff::mna::{self, Drive};
 use rolloff::netlist::{Part, PartKind, StageNetlist};
 use rolloff::opamp::OpAmp;

@@ -24,7 +24,7 @@ pub mod search;
 
 use crate::error::InputError;
 use crate::eseries::{PartClass, Series};
-use crate::link::Rounding;
+use crate::choices::Rounding;
 use crate::netlist::{Node, Part, StageNetlist};
 use crate::sections::{Section, SectionKind};
 use serde::Serialize;

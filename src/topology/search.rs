@@ -17,7 +17,7 @@
 use super::divider::pair_choices;
 use super::{Layout, Realization, Target};
 use crate::eseries::{PartClass, Series};
-use crate::link::Rounding;
+use crate::choices::Rounding;
 
 /// Candidates per free part.
 const FREE_CANDIDATES: usize = 3;
