@@ -126,7 +126,6 @@ pub fn from_curves(
             "each stage curve needs one level per frequency, at least one",
         )));
     }
-    let mut warnings = Vec::new();
     let stages_out = curves
         .into_iter()
         .enumerate()
@@ -142,35 +141,65 @@ pub fn from_curves(
                             (bi, bv)
                         }
                     });
-            let peak_out_v = vin_pk * 10f64.powf(peak_db / 20.0);
-            let headroom_db = 20.0 * (swing_pk / peak_out_v).log10();
-            if headroom_db < 0.0 {
-                warnings.push(format!(
-                    "stage {} reaches {:.3} V peak at {:.4e} Hz for {} V in, beyond the {} V swing",
-                    k + 1,
-                    peak_out_v,
-                    freqs_hz[i_peak],
-                    vin_pk,
-                    swing_pk
-                ));
-            }
-            StageLevel {
+            let mut level = StageLevel {
                 stage: k + 1,
                 peak_hz: freqs_hz[i_peak],
                 gain_db,
-                peak_db,
-                peak_out_v,
-                headroom_db,
-            }
+                peak_db: f64::NEG_INFINITY,
+                peak_out_v: 0.0,
+                headroom_db: f64::INFINITY,
+            };
+            level.set_peak(freqs_hz[i_peak], peak_db, vin_pk, swing_pk);
+            level
         })
         .collect();
-    Ok(Levels {
+    let mut levels = Levels {
         freqs_hz: freqs_hz.to_vec(),
         vin_pk,
         swing_pk,
         stages: stages_out,
-        warnings,
-    })
+        warnings: Vec::new(),
+    };
+    levels.recheck();
+    Ok(levels)
+}
+
+/// Headroom below which a stage is called out, dB: at 1 dB a swing figure's own spread (supply
+/// sag, load, temperature; common practice) already eats the margin.
+pub const HEADROOM_WARN_DB: f64 = 1.0;
+
+impl StageLevel {
+    /// Sets the peak (a refined one, found between grid points) and the figures that follow.
+    pub fn set_peak(&mut self, peak_hz: f64, peak_db: f64, vin_pk: f64, swing_pk: f64) {
+        self.peak_hz = peak_hz;
+        self.peak_db = peak_db;
+        self.peak_out_v = vin_pk * 10f64.powf(peak_db / 20.0);
+        self.headroom_db = 20.0 * (swing_pk / self.peak_out_v).log10();
+    }
+}
+
+impl Levels {
+    /// Rewrites the warnings from the stages' peaks: one sentence per stage whose headroom is
+    /// below [`HEADROOM_WARN_DB`].
+    pub fn recheck(&mut self) {
+        self.warnings = self
+            .stages
+            .iter()
+            .filter(|st| st.headroom_db < HEADROOM_WARN_DB)
+            .map(|st| {
+                let what = if st.headroom_db < 0.0 {
+                    "beyond"
+                } else {
+                    "within 1 dB of"
+                };
+                format!(
+                    "stage {} reaches {:.3} V peak at {:.4e} Hz for {} V in, {what} the {} V swing \
+                     (headroom {:.1} dB); lower the input or the gain of the stages before it",
+                    st.stage, st.peak_out_v, st.peak_hz, self.vin_pk, self.swing_pk, st.headroom_db
+                )
+            })
+            .collect();
+    }
 }
 
 /// Levels of `board`.

@@ -1,6 +1,7 @@
 //! Analysis of the board as built: tolerance study, sensitivities, noise, time response, poles,
 //! stage levels and op-amp requirements.
 
+pub mod built;
 pub mod circuit;
 pub mod fastfit;
 pub mod levels;

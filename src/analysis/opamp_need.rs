@@ -9,17 +9,19 @@
 //! and 1 THz, to 0.1 % — no rule of thumb. A stage that has lost its pole pair (or turned
 //! unstable) at a trial GBW counts as drifted.
 //!
-//! Slew rate: a sine of peak amplitude V at frequency f needs `2π·f·V` V/s. Each stage's own peak
-//! amplitude is the chosen board-output amplitude scaled by `|V_k/V_out|` at that frequency (whole
-//! board, loading included), so an internal stage that peaks is asked for more.
+//! Slew rate: a sine of peak amplitude V at frequency f needs `2π·f·V` V/s. The caller gives each
+//! stage's worst point over the signal band, from the same per-stage levels of the whole loaded
+//! board that the headroom uses ([`SlewPoint`]): the frequency where `f·|V_k|` is largest for a
+//! full-scale input, and the stage's amplitude there. So an internal stage that peaks is asked
+//! for more, and a band-pass stage is asked for what it really carries.
 
-use super::circuit::{merge_stages, transfer_at, AnalysisError, Compiled, Solver};
+use super::built::{self, refine_max, BoardSolver, BuiltSweep};
+use super::circuit::AnalysisError;
 use super::poles::{stage_factor, StageFactor};
 use crate::board::Board;
 use crate::error::InputError;
 use crate::netlist::StageNetlist;
 use crate::opamp::OpAmp;
-use num_complex::Complex64;
 use serde::Serialize;
 use std::f64::consts::PI;
 
@@ -35,7 +37,9 @@ pub struct StageNeed {
     /// Least GBW that keeps the drift within the limit, Hz; `None` when even 1 THz does not
     /// (A0 or Rout alone drift it past the limit).
     pub min_gbw_hz: Option<f64>,
-    /// The stage's peak output amplitude at the slew frequency, V.
+    /// Where over the signal band the stage needs the most slew rate, Hz.
+    pub slew_at_hz: f64,
+    /// The stage's output amplitude there for a full-scale input, V peak.
     pub out_pk_v: f64,
     /// Slew rate that amplitude needs, V/s: 2π·f·V.
     pub slew_v_per_s: f64,
@@ -48,9 +52,10 @@ pub struct StageNeed {
 pub struct OpAmpNeeds {
     /// Drift limit, %.
     pub drift_limit_pct: f64,
-    /// Frequency of the slew check (highest passband frequency), Hz.
+    /// Top of the signal band over which the slew need was sought, Hz.
     pub slew_freq_hz: f64,
-    /// Output amplitude of the slew check, V peak at the board output.
+    /// The board's output amplitude in the passband for a full-scale input, V peak (the input
+    /// amplitude times the built board's measured passband gain).
     pub vout_pk: f64,
     /// One entry per stage.
     pub stages: Vec<StageNeed>,
@@ -163,16 +168,28 @@ fn least_gbw(
     Some(b.exp())
 }
 
-/// The requirements for the board of `stages` with op amp `op`.
+/// Where a stage needs the most slew rate and its output amplitude there.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct SlewPoint {
+    /// Frequency, Hz.
+    pub f_hz: f64,
+    /// The stage's output amplitude there, V peak.
+    pub out_pk_v: f64,
+}
+
+/// The requirements for the board of `stages` with op amp `op`; `slew[k]` is stage k's worst
+/// slew point over the signal band, whose top is `slew_freq_hz`, and `vout_pk` the board's
+/// passband output amplitude (both recorded as given).
 ///
 /// # Errors
-/// `drift` when the limit is not within 0.001–50 %; `vout` when the amplitude is not positive;
-/// `fc` when the slew frequency is not positive; [`AnalysisError`] when a stage cannot be
-/// analysed on an ideal op amp.
+/// `drift` when the limit is not within 0.001–50 %; `vin` when a stage amplitude is negative or
+/// not finite; `points` when `slew` does not have one point per stage; [`AnalysisError`] when a
+/// stage cannot be analysed on an ideal op amp.
 pub fn stages_needs(
     stages: &[&StageNetlist],
     op: &OpAmp,
     drift_limit_pct: f64,
+    slew: &[SlewPoint],
     slew_freq_hz: f64,
     vout_pk: f64,
 ) -> Result<OpAmpNeeds, AnalysisError> {
@@ -182,34 +199,28 @@ pub fn stages_needs(
             format!("drift limit {drift_limit_pct} %; accepted 0.001 to 50 %"),
         )));
     }
-    if !(vout_pk.is_finite() && vout_pk > 0.0) {
+    if slew.len() != stages.len() {
         return Err(AnalysisError::Input(InputError::new(
-            "vout",
-            format!("output amplitude {vout_pk} V; accepted a positive amplitude"),
+            "points",
+            format!(
+                "{} slew points for {} stages; one per stage is needed",
+                slew.len(),
+                stages.len()
+            ),
         )));
     }
-    if !(slew_freq_hz.is_finite() && slew_freq_hz > 0.0) {
+    if slew
+        .iter()
+        .any(|p| !(p.out_pk_v.is_finite() && p.out_pk_v >= 0.0 && p.f_hz.is_finite()))
+    {
         return Err(AnalysisError::Input(InputError::new(
-            "fc",
-            format!("slew-check frequency {slew_freq_hz} Hz; accepted a positive frequency"),
+            "vin",
+            "a stage amplitude for the slew need is not a finite, non-negative voltage",
         )));
     }
     let limit = drift_limit_pct / 100.0;
-    // Stage amplitudes relative to the board output at the slew frequency.
-    let merged = merge_stages(stages)?;
-    let compiled = Compiled::new(&merged.netlist, op)?;
-    let assembled = compiled.assemble(&merged.netlist);
-    let mut solver = Solver::new(compiled.n);
-    let h_out = transfer_at(
-        &compiled,
-        &assembled,
-        &mut solver,
-        Complex64::new(0.0, 2.0 * PI * slew_freq_hz),
-    )?
-    .norm();
-    let x = solver.solution().to_vec();
     let mut out = Vec::with_capacity(stages.len());
-    for (k, net) in stages.iter().enumerate() {
+    for (k, (net, point)) in stages.iter().zip(slew).enumerate() {
         let ideal = stage_factor(net, &OpAmp::ideal())?;
         let with = |gbw_hz: f64| OpAmp { gbw_hz, ..*op };
         let board_drift = drift(net, op, &ideal);
@@ -219,18 +230,7 @@ pub fn stages_needs(
             op.gbw_hz,
             board_drift,
         );
-        let col = merged
-            .stage_outputs
-            .get(k)
-            .and_then(|&node| compiled.node_col.get(node).copied().flatten())
-            .unwrap_or(0);
-        let ratio = if h_out > 0.0 {
-            x[col].norm() / h_out
-        } else {
-            f64::INFINITY
-        };
-        let out_pk_v = vout_pk * ratio;
-        let slew_v_per_s = 2.0 * PI * slew_freq_hz * out_pk_v;
+        let slew_v_per_s = 2.0 * PI * point.f_hz * point.out_pk_v;
         out.push(StageNeed {
             stage: k + 1,
             ideal,
@@ -238,7 +238,8 @@ pub fn stages_needs(
             board_opamp_ok: min_gbw_hz.is_some_and(|g| op.gbw_hz >= g)
                 && op.slew_v_per_s >= slew_v_per_s,
             min_gbw_hz,
-            out_pk_v,
+            slew_at_hz: point.f_hz,
+            out_pk_v: point.out_pk_v,
             slew_v_per_s,
         });
     }
@@ -250,16 +251,82 @@ pub fn stages_needs(
     })
 }
 
-/// The requirements for `board`.
+/// Each stage's worst slew point over the band `(lo_hz, hi_hz)` of the board in `solver`, for a
+/// full-scale input of `vin_pk`: the grid point of `sweep` (inside the band, the band's ends
+/// added) where `f·|V_k(f)|` is largest, refined between its neighbours by
+/// [`built::refine_max`], so a narrow peak between grid points is not missed.
+pub fn slew_points(
+    solver: &mut BoardSolver,
+    sweep: &BuiltSweep,
+    band_hz: (f64, f64),
+    vin_pk: f64,
+) -> Vec<SlewPoint> {
+    let (lo, hi) = band_hz;
+    let mut grid: Vec<f64> = vec![lo];
+    grid.extend(sweep.freq_hz.iter().copied().filter(|&f| f > lo && f < hi));
+    grid.push(hi);
+    (0..solver.n_stages())
+        .map(|k| {
+            let metric = |solver: &mut BoardSolver, f: f64| match solver.solve_at(f) {
+                Ok(_) => f * solver.stage_output(k).norm(),
+                Err(_) => f64::NAN,
+            };
+            let values: Vec<f64> = grid.iter().map(|&f| metric(solver, f)).collect();
+            let i_best = values
+                .iter()
+                .enumerate()
+                .filter(|(_, v)| v.is_finite())
+                .max_by(|a, b| a.1.total_cmp(b.1))
+                .map_or(grid.len() - 1, |(i, _)| i);
+            let from = grid[i_best.saturating_sub(1)];
+            let to = grid[(i_best + 1).min(grid.len() - 1)];
+            let (f, v) = refine_max(solver, from, to, metric);
+            SlewPoint {
+                f_hz: f,
+                out_pk_v: if f > 0.0 && v.is_finite() {
+                    vin_pk * v / f
+                } else {
+                    0.0
+                },
+            }
+        })
+        .collect()
+}
+
+/// The requirements for `board` over the signal band `band_hz` for a full-scale input `vin_pk`:
+/// the stage levels on 40 points a decade over the band, then [`slew_points`] and
+/// [`stages_needs`]; the board's passband amplitude is `vin_pk·|gain|`.
 ///
 /// # Errors
-/// As [`stages_needs`].
+/// As [`stages_needs`]; `noiseband` for a band that is not `0 < lo < hi`.
 pub fn board_needs(
     board: &Board,
     drift_limit_pct: f64,
-    slew_freq_hz: f64,
-    vout_pk: f64,
+    band_hz: (f64, f64),
+    vin_pk: f64,
+    gain: f64,
 ) -> Result<OpAmpNeeds, AnalysisError> {
+    let (lo, hi) = band_hz;
+    if !(lo > 0.0 && hi > lo && hi.is_finite()) {
+        return Err(AnalysisError::Input(InputError::new(
+            "noiseband",
+            format!("signal band {lo} … {hi} Hz; accepted 0 < lo < hi"),
+        )));
+    }
+    let n = ((hi / lo).log10() * 40.0).ceil().clamp(2.0, 4000.0) as usize;
+    let freqs: Vec<f64> = (0..n)
+        .map(|i| lo * (hi / lo).powf(i as f64 / (n - 1) as f64))
+        .collect();
+    let mut solver = BoardSolver::of_board(board)?;
+    let sweep = built::sweep(&mut solver, &freqs)?;
+    let slew = slew_points(&mut solver, &sweep, band_hz, vin_pk);
     let nets: Vec<&StageNetlist> = board.stages.iter().map(|s| &s.netlist).collect();
-    stages_needs(&nets, &board.op_amp, drift_limit_pct, slew_freq_hz, vout_pk)
+    stages_needs(
+        &nets,
+        &board.op_amp,
+        drift_limit_pct,
+        &slew,
+        hi,
+        vin_pk * gain.abs(),
+    )
 }

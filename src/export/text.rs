@@ -241,6 +241,17 @@ pub fn spread_text(design: &Design, summary: &Summary) -> String {
 fn analysis_text(out: &mut String, design: &Design) {
     let a = crate::pipeline::analyses(design);
     let _ = writeln!(out, "\nThe board as built:");
+    if let Some(g) = a.passband_gain_db {
+        let at = if a.passband_ref_hz > 0.0 {
+            format!("at {}Hz", spaced(a.passband_ref_hz))
+        } else {
+            "at DC".to_string()
+        };
+        let _ = writeln!(
+            out,
+            "  passband gain: {g:+.2} dB {at}, measured on the built board"
+        );
+    }
     if let Some(step) = &a.step {
         let pct = |x: Option<f64>| x.map_or("-".into(), |v| format!("{v:.2} %"));
         let time = |x: Option<f64>| x.map_or("-".into(), |v| format!("{}s", spaced(v)));

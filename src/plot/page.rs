@@ -14,12 +14,10 @@ use std::f64::consts::PI;
 use super::figure::Figure;
 use super::figures::{self, Curve, Histogram, PlotData, PlotKind, Sweep};
 use crate::analysis::montecarlo::{MonteCarlo, Summary};
-use crate::board::Board;
 use crate::design::Synthesis;
 use crate::error::InputError;
 use crate::export;
 use crate::link::{self, LinkReport, LinkState};
-use crate::mna;
 use crate::netlist::PartKind;
 use crate::order;
 use crate::pipeline::{self, Design};
@@ -300,127 +298,6 @@ fn ideal_sweep(synthesis: &Synthesis, freqs: &[f64]) -> Sweep {
     }
 }
 
-/// The board's response by nodal analysis of the whole cascade (each stage loads the one before
-/// it), with each stage's output level: the stages are merged into one netlist, compiled once
-/// and solved at every frequency ([`crate::analysis::circuit`], the tolerance study's solver).
-/// The same solves give the input impedance: the source's current is the sum, over the
-/// resistors and capacitors on the input node, of `y·(V_in − V_other)`.
-/// Falls back to [`mna::board_response`] and [`mna::input_impedance`] if the fast path cannot
-/// compile the board.
-fn built_sweep(board: &Board, freqs: &[f64]) -> Result<BuiltSweep, InputError> {
-    use crate::analysis::circuit::{merge_stages, transfer_at, Compiled, Solver};
-    let mut z_in_ohm = Vec::with_capacity(freqs.len());
-    let mut gain_db = Vec::with_capacity(freqs.len());
-    let mut phase_deg = Vec::with_capacity(freqs.len());
-    let mut levels = vec![Vec::with_capacity(freqs.len()); board.stages.len()];
-    let nets: Vec<_> = board.stages.iter().map(|s| &s.netlist).collect();
-    let fast = merge_stages(&nets).ok().and_then(|merged| {
-        let compiled = Compiled::new(&merged.netlist, &board.op_amp).ok()?;
-        let assembled = compiled.assemble(&merged.netlist);
-        let columns: Option<Vec<usize>> = merged
-            .stage_outputs
-            .iter()
-            .map(|&node| compiled.node_col.get(node).copied().flatten())
-            .collect();
-        Some((merged.netlist, compiled, assembled, columns?))
-    });
-    let analysis_error =
-        |e: String| InputError::new("topo", format!("the board cannot be analysed: {e}"));
-    match fast {
-        Some((net, compiled, assembled, columns)) => {
-            let mut solver = Solver::new(compiled.n);
-            // The parts on the input node: admittance kind, value and the column of the other
-            // pin (`None` for ground; a part with both pins on the input carries no current).
-            let on_input: Vec<(PartKind, f64, Option<usize>)> = net
-                .parts
-                .iter()
-                .filter(|p| p.kind != PartKind::OpAmp && p.nodes.len() == 2)
-                .filter_map(|p| {
-                    let (a, b) = (p.nodes[0], p.nodes[1]);
-                    let other = match (a == Some(net.input), b == Some(net.input)) {
-                        (true, false) => b,
-                        (false, true) => a,
-                        _ => return None,
-                    };
-                    let col = other.and_then(|i| compiled.node_col.get(i).copied().flatten());
-                    Some((p.kind, p.value, col))
-                })
-                .collect();
-            for &f in freqs {
-                let s = Complex64::new(0.0, 2.0 * PI * f);
-                let h = transfer_at(&compiled, &assembled, &mut solver, s)
-                    .map_err(|e| analysis_error(e.to_string()))?;
-                gain_db.push(20.0 * h.norm().log10());
-                phase_deg.push(h.arg().to_degrees());
-                let solution = solver.solution();
-                let current: Complex64 = on_input
-                    .iter()
-                    .map(|&(kind, value, col)| {
-                        let y = match kind {
-                            PartKind::Capacitor => s * value,
-                            _ => Complex64::new(1.0 / value, 0.0),
-                        };
-                        let v_other = col.map_or(Complex64::new(0.0, 0.0), |c| solution[c]);
-                        y * (Complex64::new(1.0, 0.0) - v_other)
-                    })
-                    .sum();
-                z_in_ohm.push(if current.norm() > 0.0 {
-                    1.0 / current.norm()
-                } else {
-                    f64::NAN
-                });
-                for (level, &col) in levels.iter_mut().zip(&columns) {
-                    let v = solution
-                        .get(col)
-                        .copied()
-                        .unwrap_or(Complex64::new(f64::NAN, 0.0));
-                    level.push(20.0 * v.norm().log10());
-                }
-            }
-        }
-        None => {
-            let merged = board.netlist();
-            for &f in freqs {
-                let s = Complex64::new(0.0, 2.0 * PI * f);
-                let (h, outputs) =
-                    mna::board_response(board, s).map_err(|e| analysis_error(e.message))?;
-                gain_db.push(20.0 * h.norm().log10());
-                phase_deg.push(h.arg().to_degrees());
-                for (level, v) in levels.iter_mut().zip(&outputs) {
-                    level.push(20.0 * v.norm().log10());
-                }
-                z_in_ohm.push(
-                    mna::input_impedance(&merged.netlist, &board.op_amp, s)
-                        .map(|z| z.norm())
-                        .unwrap_or(f64::NAN),
-                );
-            }
-        }
-    }
-    unwrap_deg(&mut phase_deg);
-    let delay_s = delay_of(freqs, &phase_deg);
-    Ok(BuiltSweep {
-        sweep: Sweep {
-            freq_hz: freqs.to_vec(),
-            gain_db,
-            phase_deg,
-            delay_s,
-        },
-        levels,
-        z_in_ohm,
-    })
-}
-
-/// What [`built_sweep`] gives at each frequency.
-struct BuiltSweep {
-    /// The board's response.
-    sweep: Sweep,
-    /// Each stage's output relative to the input, dB (`levels[stage][frequency]`).
-    levels: Vec<Vec<f64>>,
-    /// |Z| seen by the source at the input, Ω (NaN where the input draws no current).
-    z_in_ohm: Vec<f64>,
-}
-
 /// Composes the design of `state` with [`pipeline::compose`] (the command line's composer) and
 /// computes the plot curves and the text view.
 ///
@@ -475,64 +352,117 @@ impl<'a> Stopwatch<'a> {
 pub fn compose_timed(state: &LinkState, watch: &mut Stopwatch) -> Result<PageModel, InputError> {
     let design = pipeline::compose(state)?;
     watch.lap("compose (synthesis, board, search)");
-    let (lo, hi) = design.span_hz;
-    // The same grid as the tolerance study's (pipeline::study_settings), so the envelope lines up.
-    let freqs = crate::response::log_frequencies(lo, hi, N_POINTS)?;
+    // Every figure comes from the one analysis plan; the page only arranges it.
+    let analyses = pipeline::analyses(&design);
+    watch.lap("analyses");
+    let Some(built) = analyses.sweep.clone() else {
+        let reason = analyses.errors.first().cloned().unwrap_or_default();
+        return Err(InputError::new(
+            "topo",
+            format!("the board cannot be analysed: {reason}"),
+        ));
+    };
     let synthesis = &design.synthesis;
-    let board = &design.board;
+    let freqs = built.freq_hz.clone();
     let ideal = ideal_sweep(synthesis, &freqs);
-    watch.lap("ideal sweep");
-    let BuiltSweep {
-        sweep: built,
-        levels: level_curves,
-        z_in_ohm,
-    } = built_sweep(board, &freqs)?;
-    watch.lap("built sweep");
-    let analyses = Analyses::of(&design, &freqs, &level_curves, watch);
+    let mut phase_deg: Vec<f64> = built.h.iter().map(|h| h.arg().to_degrees()).collect();
+    unwrap_deg(&mut phase_deg);
+    let delay_s = delay_of(&freqs, &phase_deg);
+    let built_curve = Sweep {
+        freq_hz: freqs.clone(),
+        gain_db: built.h.iter().map(|h| 20.0 * h.norm().log10()).collect(),
+        phase_deg,
+        delay_s,
+    };
+    let words = PageWords::of(&design, &analyses);
     let to_hz = |p: &Complex64| p / (2.0 * PI);
+    let hz = |p: &crate::analysis::poles::PlanePoint| Complex64::new(p.re_hz, p.im_hz);
+    let stage_poles = analyses.poles.as_deref().unwrap_or_default();
+    let built_poles_hz: Vec<Complex64> = stage_poles
+        .iter()
+        .flat_map(|st| st.achieved.iter().map(hz))
+        .collect();
+    let zeros_hz: Vec<Complex64> = stage_poles
+        .iter()
+        .flat_map(|st| st.zeros.iter().map(hz))
+        .collect();
+    let step_curve = |r: &Option<crate::analysis::timeresp::TimeResponse>, label: &str| {
+        r.as_ref().map(|r| Curve {
+            label: label.into(),
+            x: r.t_s.clone(),
+            y: r.step.clone(),
+        })
+    };
+    let (noise_total, noise_parts) = match &analyses.noise_report {
+        Some(report) => (
+            Some(Curve {
+                label: "total".into(),
+                x: report.freqs_hz.clone(),
+                y: report.output_density_v_per_rthz.clone(),
+            }),
+            report
+                .sources
+                .iter()
+                .take(4)
+                .map(|source| Curve {
+                    label: format!(
+                        "{}{} {:.0} %",
+                        source.reference,
+                        match source.kind {
+                            crate::analysis::noise::NoiseKind::Resistor => "",
+                            crate::analysis::noise::NoiseKind::OpAmpVoltage => " eₙ",
+                            crate::analysis::noise::NoiseKind::OpAmpCurrentPlus => " iₙ+",
+                            crate::analysis::noise::NoiseKind::OpAmpCurrentMinus => " iₙ−",
+                        },
+                        source.share * 100.0
+                    ),
+                    x: report.freqs_hz.clone(),
+                    y: source.density_v_per_rthz.clone(),
+                })
+                .collect(),
+        ),
+        None => (None, Vec::new()),
+    };
     let data = PlotData {
         class: Some(synthesis.class),
         gain_db: state.requirement.gain_db,
         mask: state.requirement.mask,
         ideal,
-        built: Some(built),
+        built: Some(built_curve),
         envelope_db: None,
         envelope_label: String::new(),
         target_poles_hz: synthesis.poles.iter().map(to_hz).collect(),
-        built_poles_hz: analyses.built_poles_hz.clone(),
-        zeros_hz: if analyses.zeros_hz.is_empty() {
+        built_poles_hz,
+        zeros_hz: if zeros_hz.is_empty() {
             vec![Complex64::new(0.0, 0.0); synthesis.zeros_at_origin.min(1)]
         } else {
-            analyses.zeros_hz.clone()
+            zeros_hz
         },
-        step_ideal: analyses.step_ideal.clone(),
-        step_built: analyses.step_built.clone(),
+        step_ideal: step_curve(&analyses.step_response_ideal, "ideal"),
+        step_built: step_curve(&analyses.step_response, "built"),
         impedance: Some(Curve {
             label: "|Z in|".into(),
             x: freqs.clone(),
-            y: z_in_ohm,
+            y: built.z_in_ohm.clone(),
         }),
-        noise_total: analyses.noise_total.clone(),
-        noise_parts: analyses.noise_parts.clone(),
-        levels: if analyses.levels.is_empty() {
-            level_curves
-                .into_iter()
-                .enumerate()
-                .map(|(k, y)| Curve {
-                    label: format!("stage {}", k + 1),
-                    x: freqs.clone(),
-                    y,
-                })
-                .collect()
-        } else {
-            analyses.levels.clone()
-        },
+        noise_total,
+        noise_parts,
+        levels: built
+            .levels_db
+            .iter()
+            .enumerate()
+            .map(|(k, y)| Curve {
+                label: format!("stage {}", k + 1),
+                x: freqs.clone(),
+                y: y.clone(),
+            })
+            .collect(),
         level_limit_db: Some(20.0 * (state.signal.swing_pk / state.signal.vin_pk).log10()),
         hist_cutoff: None,
         hist_gain: None,
     };
     let mut view = text_view(&design, &data);
-    analyses.fill(&mut view);
+    words.fill(&mut view);
     watch.lap("text view");
     Ok(PageModel {
         design,
@@ -542,241 +472,98 @@ pub fn compose_timed(state: &LinkState, watch: &mut Stopwatch) -> Result<PageMod
     })
 }
 
-/// The analyses of the built board beyond its frequency response: poles, step response,
-/// sensitivities. Each is optional: one that fails leaves its plot or table with a note and its
-/// reason among the warnings, and the rest of the sheet still shows.
-struct Analyses {
-    noise_total: Option<Curve>,
-    noise_parts: Vec<Curve>,
+/// The sentences and tables the page shows about the analyses, worded from
+/// [`pipeline::Analyses`] alone (nothing here computes a figure).
+struct PageWords {
     noise_line: String,
-    levels: Vec<Curve>,
     headroom: Vec<String>,
     needs: Vec<String>,
-    built_poles_hz: Vec<Complex64>,
-    zeros_hz: Vec<Complex64>,
-    step_ideal: Option<Curve>,
-    step_built: Option<Curve>,
     step_figures: Option<crate::analysis::timeresp::StepFigures>,
     sensitivities: Vec<Vec<SensitivityRow>>,
     problems: Vec<String>,
 }
 
-impl Analyses {
-    fn of(
-        design: &Design,
-        freqs: &[f64],
-        built_levels: &[Vec<f64>],
-        watch: &mut Stopwatch,
-    ) -> Analyses {
-        use crate::analysis::{levels, noise, opamp_need, poles, sensitivity, timeresp};
-        let board = &design.board;
+impl PageWords {
+    fn of(design: &Design, analyses: &pipeline::Analyses) -> PageWords {
         let state = &design.state;
-        let mut problems = Vec::new();
-        let gain = 10f64.powf(state.requirement.gain_db / 20.0);
-        let first_freq = freqs.first().copied().unwrap_or(design.span_hz.0);
-        let last_freq = freqs.last().copied().unwrap_or(design.span_hz.1);
-
-        // Noise: density at the output, the largest contributors, rms over the band.
-        let band_hz = state
-            .signal
-            .noise_band_hz
-            .unwrap_or((first_freq, last_freq));
-        let signal_v_rms = Some(state.signal.vin_pk * gain / 2f64.sqrt());
-        let (mut noise_total, mut noise_parts, mut noise_line) = (None, Vec::new(), String::new());
-        // Every second plot frequency: the densities are smooth on a log axis, and the noise
-        // solve (one adjoint solve per frequency and source) is the largest analysis of an edit.
-        let settings = noise::NoiseSettings {
-            freqs_hz: freqs.iter().copied().step_by(2).collect(),
-            band_hz,
-            signal_v_rms,
-        };
-        match noise::board_noise(board, &settings) {
-            Ok(report) => {
-                noise_total = Some(Curve {
-                    label: "total".into(),
-                    x: report.freqs_hz.clone(),
-                    y: report.output_density_v_per_rthz.clone(),
-                });
-                noise_parts = report
-                    .sources
-                    .iter()
-                    .take(4)
-                    .map(|source| Curve {
-                        label: format!(
-                            "{}{} {:.0} %",
-                            source.reference,
-                            match source.kind {
-                                noise::NoiseKind::Resistor => "",
-                                noise::NoiseKind::OpAmpVoltage => " eₙ",
-                                noise::NoiseKind::OpAmpCurrentPlus => " iₙ+",
-                                noise::NoiseKind::OpAmpCurrentMinus => " iₙ−",
-                            },
-                            source.share * 100.0
-                        ),
-                        x: report.freqs_hz.clone(),
-                        y: source.density_v_per_rthz.clone(),
-                    })
-                    .collect();
-                noise_line = format!(
-                    "output noise {} rms over {} … {}",
-                    engineering_unit(report.rms_v, 3, "V"),
-                    engineering_unit(report.band_hz.0, 3, "Hz"),
-                    engineering_unit(report.band_hz.1, 3, "Hz")
+        let mut problems = analyses.warnings.clone();
+        problems.extend(analyses.errors.iter().cloned());
+        let noise_line = analyses
+            .noise
+            .as_ref()
+            .map(|noise| {
+                let mut line = format!(
+                    "output noise {} rms over the signal band {} … {}",
+                    engineering_unit(noise.rms_v, 3, "V"),
+                    engineering_unit(noise.band_hz.0, 3, "Hz"),
+                    engineering_unit(noise.band_hz.1, 3, "Hz")
                 );
-                if let Some(snr) = report.snr_db {
-                    noise_line.push_str(&format!(" · SNR {snr:.1} dB"));
+                if let Some(snr) = noise.snr_db {
+                    line.push_str(&format!(" · SNR {snr:.1} dB"));
                 }
-            }
-            Err(e) => problems.push(format!("noise: {e}")),
-        }
-        watch.lap("noise");
-
-        // Stage levels and headroom against the op amp's swing.
-        let (mut level_curves, mut headroom) = (Vec::new(), Vec::new());
-        // The built sweep solved the whole board at these frequencies already: its stage
-        // outputs (one curve per stage on either of its paths) are the levels.
-        match levels::from_curves(
-            freqs,
-            built_levels.to_vec(),
-            state.signal.vin_pk,
-            state.signal.swing_pk,
-        ) {
-            Ok(report) => {
-                for stage in &report.stages {
-                    level_curves.push(Curve {
-                        label: format!("stage {}", stage.stage),
-                        x: report.freqs_hz.clone(),
-                        y: stage.gain_db.clone(),
-                    });
-                    headroom.push(format!(
-                        "peak {} out at {} ({} headroom)",
-                        engineering_unit(stage.peak_out_v, 3, "V"),
-                        engineering_unit(stage.peak_hz, 3, "Hz"),
-                        format!("{:+.1} dB", stage.headroom_db).replace('-', "−")
-                    ));
-                }
-                problems.extend(report.warnings.iter().cloned());
-            }
-            Err(e) => problems.push(format!("stage levels: {e}")),
-        }
-        watch.lap("levels");
-
-        // What each stage asks of its op amp.
-        let slew_freq_hz = match (design.synthesis.class, design.synthesis.bw_hz) {
-            (ResponseClass::BandPass, Some(bw)) => {
-                let half = bw / 2.0;
-                half + (half * half + design.synthesis.fc_hz.powi(2)).sqrt()
-            }
-            (ResponseClass::HighPass, _) => last_freq,
-            _ => design.synthesis.fc_hz,
-        };
-        let vout_pk = state.signal.vin_pk * gain;
-        let mut needs = Vec::new();
-        match opamp_need::board_needs(board, state.signal.drift_pct, slew_freq_hz, vout_pk) {
-            Ok(report) => {
-                for need in &report.stages {
-                    let gbw = match need.min_gbw_hz {
-                        Some(g) => format!(
-                            "GBW ≥ {} for {} % drift",
-                            engineering_unit(g, 3, "Hz"),
-                            state.signal.drift_pct
-                        ),
-                        None => "no GBW keeps the drift in bounds".to_string(),
-                    };
-                    let verdict = if need.board_opamp_ok {
-                        "the chosen op amp does"
-                    } else {
-                        "the chosen op amp falls short"
-                    };
-                    needs.push(format!(
-                        "Needs {gbw} and slew ≥ {} ({} peak at {}); {verdict}.",
-                        engineering_unit(need.slew_v_per_s, 3, "V/s"),
-                        engineering_unit(need.out_pk_v, 3, "V"),
-                        engineering_unit(report.slew_freq_hz, 3, "Hz")
-                    ));
-                }
-            }
-            Err(e) => problems.push(format!("op-amp requirements: {e}")),
-        }
-        watch.lap("op-amp needs");
-
-        let mut built_poles_hz = Vec::new();
-        let mut zeros_hz = Vec::new();
-        match poles::board_poles(board) {
-            Ok(stages) => {
-                for stage in stages {
-                    let hz = |p: &poles::PlanePoint| Complex64::new(p.re_hz, p.im_hz);
-                    built_poles_hz.extend(stage.achieved.iter().map(hz));
-                    zeros_hz.extend(stage.zeros.iter().map(hz));
-                }
-            }
-            Err(e) => problems.push(format!("poles of the built board: {e}")),
-        }
-        watch.lap("poles");
-        let settings = timeresp::TimeSettings {
-            n_points: 600,
-            t_end_s: None,
-        };
-        let (mut step_built, mut step_ideal, mut step_figures) = (None, None, None);
-        match timeresp::board_response(board, &settings) {
-            Ok(built) => {
-                let t_end = built.t_s.last().copied();
-                step_figures = Some(built.figures);
-                step_built = Some(Curve {
-                    label: "built".into(),
-                    x: built.t_s,
-                    y: built.step,
-                });
-                let ideal_settings = timeresp::TimeSettings {
-                    n_points: settings.n_points,
-                    t_end_s: t_end,
+                line
+            })
+            .unwrap_or_default();
+        let headroom = analyses
+            .levels
+            .iter()
+            .flatten()
+            .map(|stage| {
+                format!(
+                    "peak {} out at {} ({} headroom)",
+                    engineering_unit(stage.peak_out_v, 3, "V"),
+                    engineering_unit(stage.peak_hz, 3, "Hz"),
+                    format!("{:+.1} dB", stage.headroom_db).replace('-', "−")
+                )
+            })
+            .collect();
+        let needs = analyses
+            .opamp_needs
+            .iter()
+            .flat_map(|report| report.stages.iter())
+            .map(|need| {
+                let gbw = match need.min_gbw_hz {
+                    Some(g) => format!(
+                        "GBW ≥ {} for {} % drift",
+                        engineering_unit(g, 3, "Hz"),
+                        state.signal.drift_pct
+                    ),
+                    None => "more GBW than any op amp has to keep the drift in bounds".to_string(),
                 };
-                if let Ok(ideal) =
-                    timeresp::board_response(&pipeline::ideal_board(board), &ideal_settings)
-                {
-                    step_ideal = Some(Curve {
-                        label: "ideal".into(),
-                        x: ideal.t_s,
-                        y: ideal.step,
-                    });
-                }
-            }
-            Err(e) => problems.push(format!("step response: {e}")),
-        }
-        watch.lap("step response");
-        let sensitivities = match sensitivity::board_sensitivities(board) {
-            Ok(stages) => stages
-                .into_iter()
-                .map(|stage| {
-                    stage
-                        .parts
-                        .into_iter()
-                        .map(|p| SensitivityRow {
-                            reference: p.reference,
-                            f0: signed(p.f0),
-                            q: p.q.map_or_else(|| "–".to_string(), signed),
-                        })
-                        .collect()
-                })
-                .collect(),
-            Err(e) => {
-                problems.push(format!("sensitivities: {e}"));
-                Vec::new()
-            }
-        };
-        watch.lap("sensitivities");
-        Analyses {
-            noise_total,
-            noise_parts,
+                let verdict = if need.board_opamp_ok {
+                    "the chosen op amp does"
+                } else {
+                    "the chosen op amp falls short"
+                };
+                format!(
+                    "Needs {gbw} and slew ≥ {} ({} peak at {}); {verdict}.",
+                    engineering_unit(need.slew_v_per_s, 3, "V/s"),
+                    engineering_unit(need.out_pk_v, 3, "V"),
+                    engineering_unit(need.slew_at_hz, 3, "Hz")
+                )
+            })
+            .collect();
+        let sensitivities = analyses
+            .sensitivities
+            .iter()
+            .flatten()
+            .map(|stage| {
+                stage
+                    .parts
+                    .iter()
+                    .map(|p| SensitivityRow {
+                        reference: p.reference.clone(),
+                        f0: signed(p.f0),
+                        q: p.q.map_or_else(|| "–".to_string(), signed),
+                    })
+                    .collect()
+            })
+            .collect();
+        PageWords {
             noise_line,
-            levels: level_curves,
             headroom,
             needs,
-            built_poles_hz,
-            zeros_hz,
-            step_ideal,
-            step_built,
-            step_figures,
+            step_figures: analyses.step,
             sensitivities,
             problems,
         }
@@ -1501,19 +1288,23 @@ mod tests {
                 .copied()
                 .step_by(20)
                 .collect();
-            let BuiltSweep {
-                sweep: fast,
-                levels,
-                z_in_ohm,
-            } = built_sweep(board, &freqs).unwrap_or_else(|e| panic!("{e}"));
+            let mut solver = crate::analysis::built::BoardSolver::of_board(board)
+                .unwrap_or_else(|e| panic!("{e}"));
+            let sweep = crate::analysis::built::sweep(&mut solver, &freqs)
+                .unwrap_or_else(|e| panic!("{e}"));
+            let (levels, z_in_ohm) = (&sweep.levels_db, &sweep.z_in_ohm);
             for (i, &f) in freqs.iter().enumerate() {
                 let s = Complex64::new(0.0, 2.0 * PI * f);
-                let (h, outputs) =
-                    mna::board_response(board, s).unwrap_or_else(|e| panic!("{}", e.message));
+                let (h, outputs) = crate::mna::board_response(board, s)
+                    .unwrap_or_else(|e| panic!("{}", e.message));
                 let gain = 20.0 * h.norm().log10();
-                assert!((fast.gain_db[i] - gain).abs() < 1e-9, "{link} at {f} Hz");
+                let fast = sweep.h[i];
+                assert!(
+                    (20.0 * fast.norm().log10() - gain).abs() < 1e-9,
+                    "{link} at {f} Hz"
+                );
                 // Phases agree modulo whole turns.
-                let d = (fast.phase_deg[i] - h.arg().to_degrees()).rem_euclid(360.0);
+                let d = (fast.arg().to_degrees() - h.arg().to_degrees()).rem_euclid(360.0);
                 assert!(d < 1e-9 || 360.0 - d < 1e-9, "{link} phase at {f} Hz: {d}");
                 for (k, v) in outputs.iter().enumerate() {
                     assert!((levels[k][i] - 20.0 * v.norm().log10()).abs() < 1e-9);
@@ -1521,7 +1312,7 @@ mod tests {
                 // The input impedance from the same solve equals the general nodal analysis'
                 // source current.
                 let merged = board.netlist();
-                let z = mna::input_impedance(&merged.netlist, &board.op_amp, s)
+                let z = crate::mna::input_impedance(&merged.netlist, &board.op_amp, s)
                     .unwrap_or_else(|e| panic!("{}", e.message))
                     .norm();
                 assert!(

@@ -6,6 +6,7 @@
 //! 3. the plot span, the family comparison and the warnings gathered from every step.
 //! Sweeps ([`sweep`]) and the tolerance study ([`spread`]) run on a composed design.
 
+use crate::analysis::built::BoardSolver;
 use crate::analysis::montecarlo::{
     CutoffDefinition, MonteCarlo, MonteCarloSettings, PartDistribution, PartTolerance, Summary,
     Tolerances,
@@ -20,7 +21,12 @@ use crate::order::{self, FamilyOrder};
 use crate::spec::{Edge, Family, Mask, ResponseClass};
 use num_complex::Complex64;
 
-const TWO_PI: f64 = 2.0 * std::f64::consts::PI;
+mod analyses;
+
+pub use analyses::{
+    analyses, passband_ref_hz, plot_grid, signal_band_hz, Analyses, LevelSummary, NoiseShare,
+    NoiseSummary, HIGH_PASS_TOP, NOISE_EVERY, PLOT_POINTS, STEP_POINTS,
+};
 
 /// A composed design: the state it came from, the synthesis, the board and its context.
 #[derive(Debug, Clone)]
@@ -154,14 +160,22 @@ pub fn ideal_board(board: &Board) -> Board {
     ideal
 }
 
+/// Internal points per decade on which the sweep's phase is unwrapped, whatever the requested
+/// spacing: between neighbours 1/200 of a decade apart the phase of a 20th-order board moves far
+/// less than half a turn.
+pub const UNWRAP_POINTS_PER_DECADE: f64 = 200.0;
+
 /// Gain, unwrapped phase and group delay of the board (or, with `ideal`, of [`ideal_board`]) at
-/// `n_points` log-spaced frequencies.
+/// `n_points` log-spaced frequencies, from the banded solve of the whole board.
 ///
-/// The group delay is −Δarg H/Δω over a symmetric step of ±10⁻⁴·ω around each point, with the
-/// phase difference taken from the ratio H(ω+δ)/H(ω−δ) so it never wraps.
+/// The phase is unwrapped along an internal grid of [`UNWRAP_POINTS_PER_DECADE`] from the first
+/// frequency, so it does not depend on how many points are asked for. The group delay is
+/// −Δarg H/Δω over a symmetric step of ±10⁻⁴·ω around each point, with the phase difference taken
+/// from the ratio H(ω+δ)/H(ω−δ) so it never wraps.
 ///
 /// # Errors
-/// A message when the nodal analysis meets a singular circuit.
+/// A message when the board equations are singular (the dense reference analysis names the
+/// likely cause).
 pub fn sweep(
     design: &Design,
     from_hz: f64,
@@ -176,25 +190,39 @@ pub fn sweep(
     } else {
         design.board.clone()
     };
-    let merged = board.netlist();
-    let h_at = |f: f64| -> Result<Complex64, String> {
-        mna::netlist_response(&merged, &board.op_amp, Complex64::new(0.0, TWO_PI * f))
-            .map(|(h, _)| h)
-            .map_err(|e| e.message)
+    let failed = |e: crate::analysis::circuit::AnalysisError| match e {
+        crate::analysis::circuit::AnalysisError::Singular(m) => diagnose_singular(&board)
+            .map(|cause| format!("singular circuit equations: {cause}"))
+            .unwrap_or_else(|| format!("singular circuit equations: {m}")),
+        other => other.to_string(),
     };
+    let mut solver = BoardSolver::of_board(&board).map_err(failed)?;
     let mut rows = Vec::with_capacity(freqs.len());
-    let mut previous: Option<(Complex64, f64)> = None;
+    let mut previous: Option<(f64, Complex64, f64)> = None;
     for f in freqs {
-        let h = h_at(f)?;
         let step = 1e-4;
-        let ratio = h_at(f * (1.0 + step))? / h_at(f * (1.0 - step))?;
+        let ratio = solver.solve_at(f * (1.0 + step)).map_err(failed)?
+            / solver.solve_at(f * (1.0 - step)).map_err(failed)?;
         let delay_s = -ratio.arg() / (TWO_PI * f * 2.0 * step);
-        // Unwrap: add the phase change from the last point, which is small on a fine sweep.
+        let h = solver.solve_at(f).map_err(failed)?;
         let phase_rad = match previous {
-            Some((h_prev, phase_prev)) => phase_prev + (h / h_prev).arg(),
+            Some((f_prev, h_prev, phase_prev)) => {
+                // Walk from the last point on the internal grid, adding each small change.
+                let n_sub = ((f / f_prev).log10() * UNWRAP_POINTS_PER_DECADE)
+                    .ceil()
+                    .max(1.0) as usize;
+                let (mut phase, mut h_last) = (phase_prev, h_prev);
+                for j in 1..n_sub {
+                    let f_j = f_prev * (f / f_prev).powf(j as f64 / n_sub as f64);
+                    let h_j = solver.solve_at(f_j).map_err(failed)?;
+                    phase += (h_j / h_last).arg();
+                    h_last = h_j;
+                }
+                phase + (h / h_last).arg()
+            }
             None => h.arg(),
         };
-        previous = Some((h, phase_rad));
+        previous = Some((f, h, phase_rad));
         rows.push(SweepRow {
             freq_hz: f,
             gain_db: 20.0 * h.norm().log10(),
@@ -204,6 +232,17 @@ pub fn sweep(
     }
     Ok(rows)
 }
+
+/// The cause of a singular board, as the dense reference analysis names it (a node without a DC
+/// path, a capacitor loop, an op amp without feedback); `None` when it finds the board solvable.
+pub fn diagnose_singular(board: &Board) -> Option<String> {
+    [0.0, 1.0, 1e3]
+        .iter()
+        .find_map(|&w| mna::board_response(board, Complex64::new(0.0, w)).err())
+        .map(|e| e.message)
+}
+
+const TWO_PI: f64 = 2.0 * std::f64::consts::PI;
 
 /// How the tolerance study reads a run's cutoff for this family: the ripple-band edge for
 /// Chebyshev, −6.02 dB for Linkwitz-Riley, −3.01 dB otherwise.
@@ -228,13 +267,7 @@ pub fn study_settings(design: &Design, n_points: usize) -> Result<MonteCarloSett
         Distribution::Uniform => PartDistribution::Uniform,
     };
     let class = state.requirement.class;
-    let passband_ref_hz = match class {
-        ResponseClass::LowPass => 0.0,
-        // A decade above the cutoff: in the passband, and well below where the op amp's
-        // gain-bandwidth starts to take gain away.
-        ResponseClass::HighPass => design.synthesis.fc_hz * 10.0,
-        ResponseClass::BandPass => design.synthesis.fc_hz,
-    };
+    let passband_ref_hz = passband_ref_hz(design);
     Ok(MonteCarloSettings {
         runs: state.study.runs,
         seed: state.study.seed,
@@ -274,12 +307,13 @@ pub fn start_spread(design: &Design, n_points: usize) -> Result<MonteCarlo, Stri
     .map_err(|e| e.to_string())
 }
 
-/// Runs the whole tolerance study of a design at 200 frequencies.
+/// Runs the whole tolerance study of a design on the plot grid ([`PLOT_POINTS`]), as the page
+/// does.
 ///
 /// # Errors
 /// As [`start_spread`].
 pub fn spread(design: &Design) -> Result<Summary, String> {
-    let mut study = start_spread(design, 200)?;
+    let mut study = start_spread(design, PLOT_POINTS)?;
     while !study.is_done() {
         study.step(1000);
     }
@@ -300,199 +334,5 @@ pub fn spice_sweep(design: &Design) -> crate::export::spice::AcSweep {
         points_per_decade: 50,
         f_start_hz: design.span_hz.0,
         f_stop_hz: design.span_hz.1,
-    }
-}
-
-/// The highest frequency of the passband, Hz: where slew rate matters most (lp: the passband
-/// edge or cutoff; bp: the upper edge; hp: the top of the plot span, since a high-pass passes on).
-pub fn top_of_passband_hz(design: &Design) -> f64 {
-    let syn = &design.synthesis;
-    let mask_pass = design.state.requirement.mask.map(|m| m.pass);
-    match (syn.class, mask_pass) {
-        (ResponseClass::LowPass, Some(Edge::Single(f))) => f.max(syn.fc_hz),
-        (ResponseClass::LowPass, _) => syn.fc_hz,
-        (ResponseClass::BandPass, Some(Edge::Pair(_, hi))) => hi,
-        (ResponseClass::BandPass, _) => {
-            let bw = syn.bw_hz.unwrap_or(syn.fc_hz);
-            bw / 2.0 + (bw * bw / 4.0 + syn.fc_hz * syn.fc_hz).sqrt()
-        }
-        (ResponseClass::HighPass, _) => design.span_hz.1,
-    }
-}
-
-/// The noise contribution of one part, for the summary.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
-pub struct NoiseShare {
-    /// Part reference, or `U1 en` style for op-amp sources.
-    #[serde(rename = "ref")]
-    pub reference: String,
-    /// What kind of source.
-    pub kind: crate::analysis::noise::NoiseKind,
-    /// RMS output noise over the band from this source, V.
-    pub rms_v: f64,
-    /// Share of the total output noise power, 0–1.
-    pub share: f64,
-}
-
-/// The noise in a few numbers.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
-pub struct NoiseSummary {
-    /// Integration band, Hz.
-    pub band_hz: (f64, f64),
-    /// Total RMS output noise over the band, V.
-    pub rms_v: f64,
-    /// Signal-to-noise ratio for the input amplitude `vin` through the passband gain, dB.
-    pub snr_db: Option<f64>,
-    /// The sources, largest first.
-    pub sources: Vec<NoiseShare>,
-}
-
-/// One stage's largest output level.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
-pub struct LevelSummary {
-    /// Stage number, 1-based.
-    pub stage: usize,
-    /// Largest gain from the board input to this stage's output, dB.
-    pub peak_db: f64,
-    /// Where it peaks, Hz.
-    pub peak_hz: f64,
-    /// Output amplitude there for `vin`, V peak.
-    pub peak_out_v: f64,
-    /// Margin to the swing `swing`, dB (negative: clips).
-    pub headroom_db: f64,
-}
-
-/// Everything the views show beyond the response: each part computed on the board as built.
-/// A part that cannot be computed is `None`, with its reason in `errors`.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
-pub struct Analyses {
-    /// Normalized sensitivities of each stage's f0 and Q to every part.
-    pub sensitivities: Option<Vec<crate::analysis::sensitivity::StageSensitivity>>,
-    /// Noise summary over the noise band.
-    pub noise: Option<NoiseSummary>,
-    /// Step response figures of the built board.
-    pub step: Option<crate::analysis::timeresp::StepFigures>,
-    /// Step response figures of the ideal design (exact parts, ideal op amp).
-    pub step_ideal: Option<crate::analysis::timeresp::StepFigures>,
-    /// Op-amp requirements per stage (GBW for the drift limit, slew rate).
-    pub opamp_needs: Option<crate::analysis::opamp_need::OpAmpNeeds>,
-    /// Each stage's peak level and headroom.
-    pub levels: Option<Vec<LevelSummary>>,
-    /// Target and achieved poles per stage.
-    pub poles: Option<Vec<crate::analysis::poles::StagePoles>>,
-    /// Soft problems found by the analyses (a stage that clips, …).
-    pub warnings: Vec<String>,
-    /// Analyses that could not be done, with the reason.
-    pub errors: Vec<String>,
-}
-
-/// Frequencies (log-spaced over the span) used by the noise and level analyses.
-pub const ANALYSIS_POINTS: usize = 200;
-
-/// The value of an analysis, or `None` with its reason added to `errors`.
-fn keep<T>(
-    errors: &mut Vec<String>,
-    what: &str,
-    result: Result<T, crate::analysis::circuit::AnalysisError>,
-) -> Option<T> {
-    match result {
-        Ok(v) => Some(v),
-        Err(e) => {
-            errors.push(format!("{what}: {e}"));
-            None
-        }
-    }
-}
-
-/// Runs every analysis of the board as built.
-pub fn analyses(design: &Design) -> Analyses {
-    use crate::analysis::{levels, noise, opamp_need, poles, sensitivity, timeresp};
-    let board = &design.board;
-    let signal = &design.state.signal;
-    let mut errors = Vec::new();
-    let mut warnings = Vec::new();
-    let (lo, hi) = design.span_hz;
-    let freqs = crate::response::log_frequencies(lo, hi, ANALYSIS_POINTS).unwrap_or_default();
-    let gain = board.passband_gain().abs();
-    let settings = noise::NoiseSettings {
-        freqs_hz: freqs.clone(),
-        band_hz: signal.noise_band_hz.unwrap_or((lo, hi)),
-        signal_v_rms: Some(signal.vin_pk * gain / std::f64::consts::SQRT_2),
-    };
-    let noise = keep(&mut errors, "noise", noise::board_noise(board, &settings)).map(|report| {
-        let mut sources: Vec<NoiseShare> = report
-            .sources
-            .iter()
-            .map(|s| NoiseShare {
-                reference: s.reference.clone(),
-                kind: s.kind,
-                rms_v: s.rms_v,
-                share: s.share,
-            })
-            .collect();
-        sources.sort_by(|a, b| b.share.total_cmp(&a.share));
-        NoiseSummary {
-            band_hz: report.band_hz,
-            rms_v: report.rms_v,
-            snr_db: report.snr_db,
-            sources,
-        }
-    });
-    let time = timeresp::TimeSettings {
-        n_points: 400,
-        t_end_s: None,
-    };
-    let step = keep(
-        &mut errors,
-        "step response",
-        timeresp::board_response(board, &time),
-    )
-    .map(|r| r.figures);
-    let step_ideal = keep(
-        &mut errors,
-        "ideal step response",
-        timeresp::board_response(&ideal_board(board), &time),
-    )
-    .map(|r| r.figures);
-    let vout_pk = signal.vin_pk * gain;
-    let opamp_needs = keep(
-        &mut errors,
-        "op-amp requirements",
-        opamp_need::board_needs(board, signal.drift_pct, top_of_passband_hz(design), vout_pk),
-    );
-    let levels = keep(
-        &mut errors,
-        "stage levels",
-        levels::board_levels(board, &freqs, signal.vin_pk, signal.swing_pk),
-    )
-    .map(|l| {
-        warnings.extend(l.warnings.iter().cloned());
-        l.stages
-            .iter()
-            .map(|s| LevelSummary {
-                stage: s.stage,
-                peak_db: s.peak_db,
-                peak_hz: s.peak_hz,
-                peak_out_v: s.peak_out_v,
-                headroom_db: s.headroom_db,
-            })
-            .collect()
-    });
-    let sensitivities = keep(
-        &mut errors,
-        "sensitivities",
-        sensitivity::board_sensitivities(board),
-    );
-    let poles = keep(&mut errors, "poles", poles::board_poles(board));
-    Analyses {
-        sensitivities,
-        noise,
-        step,
-        step_ideal,
-        opamp_needs,
-        levels,
-        poles,
-        warnings,
-        errors,
     }
 }

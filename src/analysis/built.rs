@@ -1,0 +1,227 @@
+//! The built board's frequency response: the one production path from a board to H(jω).
+//!
+//! The stages are merged into one netlist ([`merge_stages`], stage k's input is stage k−1's
+//! output, so each stage loads the one before it), compiled once and solved at each frequency by
+//! the banded solver of [`super::circuit`]. One solve gives the board's transfer, every stage's
+//! output and the current drawn from the source, so the sweep, the stage levels, the slew need
+//! and the input impedance all come from the same numbers. The dense nodal analysis in
+//! `crate::mna` is the independent reference these solves are tested against; it is not used
+//! here.
+
+use super::circuit::{merge_stages, transfer_at, AnalysisError, Assembled, Compiled, Solver};
+use crate::board::Board;
+use crate::netlist::{PartKind, StageNetlist};
+use crate::opamp::OpAmp;
+use num_complex::Complex64;
+use std::f64::consts::PI;
+
+/// A board compiled for repeated solves.
+pub struct BoardSolver {
+    compiled: Compiled,
+    assembled: Assembled,
+    solver: Solver,
+    /// Solution column of each stage's output, in signal order.
+    stage_cols: Vec<usize>,
+    /// The parts on the input node: admittance kind, value and the column of the other pin
+    /// (`None` for ground).
+    on_input: Vec<(PartKind, f64, Option<usize>)>,
+    /// The complex frequency of the last solve, rad/s.
+    last_s: Complex64,
+}
+
+impl BoardSolver {
+    /// Compiles the board of `stages` (signal order) with op amp `op`.
+    ///
+    /// # Errors
+    /// [`AnalysisError::BadNetlist`] for a malformed netlist or a board without stages.
+    pub fn new(stages: &[&StageNetlist], op: &OpAmp) -> Result<BoardSolver, AnalysisError> {
+        let merged = merge_stages(stages)?;
+        let compiled = Compiled::new(&merged.netlist, op)?;
+        let assembled = compiled.assemble(&merged.netlist);
+        let column = |node: usize| compiled.node_col.get(node).copied().flatten();
+        let stage_cols = merged
+            .stage_outputs
+            .iter()
+            .map(|&node| {
+                column(node).ok_or_else(|| {
+                    AnalysisError::BadNetlist(format!("stage output node {node} has no equation"))
+                })
+            })
+            .collect::<Result<Vec<usize>, _>>()?;
+        let net = &merged.netlist;
+        let on_input = net
+            .parts
+            .iter()
+            .filter(|p| p.kind != PartKind::OpAmp && p.nodes.len() == 2)
+            .filter_map(|p| {
+                let (a, b) = (p.nodes[0], p.nodes[1]);
+                let other = match (a == Some(net.input), b == Some(net.input)) {
+                    (true, false) => b,
+                    (false, true) => a,
+                    // A part with both pins on the input carries no current.
+                    _ => return None,
+                };
+                Some((p.kind, p.value, other.and_then(column)))
+            })
+            .collect();
+        let solver = Solver::new(compiled.n);
+        Ok(BoardSolver {
+            compiled,
+            assembled,
+            solver,
+            stage_cols,
+            on_input,
+            last_s: Complex64::new(0.0, 0.0),
+        })
+    }
+
+    /// Compiles `board` with its own op amp.
+    ///
+    /// # Errors
+    /// As [`BoardSolver::new`].
+    pub fn of_board(board: &Board) -> Result<BoardSolver, AnalysisError> {
+        let nets: Vec<&StageNetlist> = board.stages.iter().map(|s| &s.netlist).collect();
+        BoardSolver::new(&nets, &board.op_amp)
+    }
+
+    /// Number of stages.
+    pub fn n_stages(&self) -> usize {
+        self.stage_cols.len()
+    }
+
+    /// Solves the board at `f_hz` (0 = DC) and returns V(out)/V(in).
+    ///
+    /// # Errors
+    /// [`AnalysisError::Singular`] when the equations are singular there.
+    pub fn solve_at(&mut self, f_hz: f64) -> Result<Complex64, AnalysisError> {
+        let s = Complex64::new(0.0, 2.0 * PI * f_hz);
+        self.last_s = s;
+        transfer_at(&self.compiled, &self.assembled, &mut self.solver, s)
+    }
+
+    /// Stage `k`'s output relative to the board input at the last solve.
+    pub fn stage_output(&self, k: usize) -> Complex64 {
+        self.stage_cols
+            .get(k)
+            .and_then(|&c| self.solver.solution().get(c).copied())
+            .unwrap_or(Complex64::new(f64::NAN, 0.0))
+    }
+
+    /// |Z| seen by the source at the last solve, Ω: 1 V over the sum, over the parts on the
+    /// input node, of `y·(V_in − V_other)`; NaN where the input draws no current.
+    pub fn input_impedance_ohm(&self) -> f64 {
+        let s = self.last_s;
+        let solution = self.solver.solution();
+        let current: Complex64 = self
+            .on_input
+            .iter()
+            .map(|&(kind, value, col)| {
+                let y = match kind {
+                    PartKind::Capacitor => s * value,
+                    _ => Complex64::new(1.0 / value, 0.0),
+                };
+                let v_other = col.map_or(Complex64::new(0.0, 0.0), |c| solution[c]);
+                y * (Complex64::new(1.0, 0.0) - v_other)
+            })
+            .sum();
+        if current.norm() > 0.0 {
+            1.0 / current.norm()
+        } else {
+            f64::NAN
+        }
+    }
+}
+
+/// The built board on a frequency grid.
+#[derive(Debug, Clone, PartialEq)]
+pub struct BuiltSweep {
+    /// Frequencies, Hz.
+    pub freq_hz: Vec<f64>,
+    /// V(out)/V(in) at each frequency.
+    pub h: Vec<Complex64>,
+    /// Each stage's output relative to the input, dB (`levels_db[stage][frequency]`).
+    pub levels_db: Vec<Vec<f64>>,
+    /// |Z| seen by the source at the input, Ω (NaN where the input draws no current).
+    pub z_in_ohm: Vec<f64>,
+}
+
+/// Solves `solver`'s board at every frequency of `freqs_hz`.
+///
+/// # Errors
+/// [`AnalysisError::Singular`] at the first frequency where the equations are singular.
+pub fn sweep(solver: &mut BoardSolver, freqs_hz: &[f64]) -> Result<BuiltSweep, AnalysisError> {
+    let n_stages = solver.n_stages();
+    let mut out = BuiltSweep {
+        freq_hz: freqs_hz.to_vec(),
+        h: Vec::with_capacity(freqs_hz.len()),
+        levels_db: vec![Vec::with_capacity(freqs_hz.len()); n_stages],
+        z_in_ohm: Vec::with_capacity(freqs_hz.len()),
+    };
+    for &f in freqs_hz {
+        let h = solver.solve_at(f)?;
+        out.h.push(h);
+        out.z_in_ohm.push(solver.input_impedance_ohm());
+        for (k, level) in out.levels_db.iter_mut().enumerate() {
+            level.push(20.0 * solver.stage_output(k).norm().log10());
+        }
+    }
+    Ok(out)
+}
+
+/// The maximum of `value(solver, f)` for f in `[lo_hz, hi_hz]`, by golden-section search in ln f
+/// to a relative width of 10⁻⁶, starting from a bracket around a grid maximum. Returns `(f, value)`
+/// of the best point seen (the bracket ends included), so a refined peak is never below the
+/// grid's. A solve that fails counts as −∞.
+pub fn refine_max(
+    solver: &mut BoardSolver,
+    lo_hz: f64,
+    hi_hz: f64,
+    mut value: impl FnMut(&mut BoardSolver, f64) -> f64,
+) -> (f64, f64) {
+    let mut eval = |solver: &mut BoardSolver, f: f64| {
+        let v = value(solver, f);
+        if v.is_nan() {
+            f64::NEG_INFINITY
+        } else {
+            v
+        }
+    };
+    let (mut a, mut b) = (lo_hz.ln(), hi_hz.ln());
+    let mut best = (lo_hz, eval(solver, lo_hz));
+    let at_hi = eval(solver, hi_hz);
+    if at_hi > best.1 {
+        best = (hi_hz, at_hi);
+    }
+    if !(a.is_finite() && b.is_finite()) || b <= a {
+        return best;
+    }
+    let ratio = (5f64.sqrt() - 1.0) / 2.0;
+    let mut c = b - ratio * (b - a);
+    let mut d = a + ratio * (b - a);
+    let mut fc = eval(solver, c.exp());
+    let mut fd = eval(solver, d.exp());
+    for _ in 0..60 {
+        if b - a < 1e-6 {
+            break;
+        }
+        if fc >= fd {
+            b = d;
+            d = c;
+            fd = fc;
+            c = b - ratio * (b - a);
+            fc = eval(solver, c.exp());
+        } else {
+            a = c;
+            c = d;
+            fc = fd;
+            d = a + ratio * (b - a);
+            fd = eval(solver, d.exp());
+        }
+        for (x, v) in [(c, fc), (d, fd)] {
+            if v > best.1 {
+                best = (x.exp(), v);
+            }
+        }
+    }
+    best
+}
