@@ -10,8 +10,8 @@
 //! schematics to SVG (a stand-in for the canvas: the same plot code, another backend).
 
 use criterion::{criterion_group, criterion_main, Criterion};
+use rolloff::app as page;
 use rolloff::plot::figures::PlotKind;
-use rolloff::plot::page;
 use rolloff::plot::{self, Look, Theme};
 use std::hint::black_box;
 

@@ -323,7 +323,7 @@ fn cmd_plot(report: &LinkReport, flags: &Flags, out: &mut dyn Write) -> Result<(
             names.join(", ")
         )));
     };
-    let model = crate::plot::page::compose(&report.state)?;
+    let model = crate::app::compose(&report.state)?;
     let svg = crate::plot::render_svg(&model.figure(kind), 960, 540, Theme::Light)
         .map_err(|e| Failure::Other(e.to_string()))?;
     match &flags.out {

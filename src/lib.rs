@@ -7,6 +7,7 @@
 //! only `wasm` (built for wasm32) knows JavaScript types.
 
 pub mod analysis;
+pub mod app;
 pub mod board;
 pub mod choices;
 pub mod cli;

@@ -1,7 +1,7 @@
 //! The wasm facade: the only module that knows JavaScript types.
 //!
 //! One export per page action. Each converts its arguments by hand, calls the native core
-//! ([`crate::plot::page`], [`crate::plot`], [`crate::schematic`], the tolerance study) and returns
+//! ([`crate::app`], [`crate::plot`], [`crate::schematic`], the tolerance study) and returns
 //! plain values: errors cross the boundary as `{ ok: false, message }` objects or as rejected
 //! `Result`s with a message, never as panics. A panic hook writes any defect into the page's
 //! `#defect` element and the console, so a broken page says so.
@@ -15,7 +15,7 @@ use wasm_bindgen::prelude::*;
 use web_sys::HtmlCanvasElement;
 
 use crate::analysis::montecarlo::MonteCarlo;
-use crate::plot::page::{self, PageModel, View};
+use crate::app::{self, PageModel, View};
 use crate::plot::{self, Look, PlotKind, Theme};
 use crate::schematic;
 

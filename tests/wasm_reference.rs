@@ -7,7 +7,7 @@
 
 mod wasm_common;
 
-use rolloff::plot::page;
+use rolloff::app as page;
 use serde_json::Value;
 use wasm_common::{compare, values, LINKS, RUNS, SEED};
 

@@ -2774,7 +2774,7 @@ mod tests {
     ];
 
     fn study(link: &str, runs: usize) -> MonteCarlo {
-        let evaluation = crate::plot::page::evaluate(&format!("{link}&runs={runs}&seed=77"));
+        let evaluation = crate::app::evaluate(&format!("{link}&runs={runs}&seed=77"));
         let model = evaluation
             .model
             .unwrap_or_else(|| panic!("{link} designs: {:?}", evaluation.view.errors));

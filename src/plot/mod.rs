@@ -8,7 +8,6 @@
 pub mod axis;
 pub mod figure;
 pub mod figures;
-pub mod page;
 
 pub use axis::{Axis, Scale, TickFormat};
 pub use figure::{draw, readout, Figure, Layer, Orientation, Readout, Shape, Weight};

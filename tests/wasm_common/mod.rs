@@ -3,7 +3,7 @@
 //! natively into `target/wasm-reference.json`; `tests/wasm.rs` recomputes them in headless
 //! Chromium and compares.
 
-use rolloff::plot::page;
+use rolloff::app as page;
 use serde_json::{json, Value};
 
 /// The links compared: the README's demo scenarios and a few more shapes (band-pass, high-pass,
