@@ -105,6 +105,28 @@ pub fn evaluate(query: &str, accept_errors: bool) -> JsValue {
     to_js_via_json(&view)
 }
 
+/// The part of a link that the page's form cannot show (`form_keys`: its field names, comma
+/// separated), as a query string the page appends to the form's own ([`page::link_extras`]).
+#[wasm_bindgen]
+pub fn link_extras(query: &str, form_keys: &str) -> String {
+    let keys: Vec<&str> = form_keys.split(',').map(str::trim).collect();
+    page::link_extras(query, &keys)
+}
+
+/// What the form shows for a link ([`page::form_of_link`]); `form_keys` are the form's field
+/// names, comma separated.
+#[wasm_bindgen]
+pub fn form_of_link(query: &str, form_keys: &str) -> JsValue {
+    let keys: Vec<&str> = form_keys.split(',').map(str::trim).collect();
+    to_js(&page::form_of_link(query, &keys))
+}
+
+/// The defaults the form's placeholders show ([`page::form_defaults`]): `[[key, text], …]`.
+#[wasm_bindgen]
+pub fn form_defaults() -> JsValue {
+    to_js(&page::form_defaults())
+}
+
 /// Reads a link without composing its design: the view carries its bad values (`errors`), its
 /// ignored keys and `refused`, and no design. The design on screen is not changed.
 #[wasm_bindgen]

@@ -37,22 +37,13 @@
   function fields() {
     return Array.prototype.filter.call(form.elements, function (el) { return el.name; });
   }
-  /* Defaults are read once from the markup, before any link is applied (a hidden input's
-   * defaultValue follows its value, so it cannot be asked later). */
-  var defaults = new Map();
-  function recordDefaults() {
-    fields().forEach(function (el) {
-      if (el.type === 'radio') return;
-      if (el.tagName === 'SELECT') {
-        var chosen = Array.prototype.find.call(el.options, function (o) { return o.defaultSelected; });
-        defaults.set(el, chosen ? chosen.value : (el.options[0] ? el.options[0].value : ''));
-      } else {
-        defaults.set(el, el.value);
-      }
+  /* An empty field leaves its key to the core; its placeholder shows the core's default. */
+  function showDefaults() {
+    engine.form_defaults().forEach(function (pair) {
+      fields().forEach(function (el) {
+        if (el.name === pair[0] && el.type !== 'radio' && el.tagName !== 'SELECT' && el.type !== 'hidden') el.placeholder = pair[1];
+      });
     });
-  }
-  function fieldDefault(el) {
-    return defaults.has(el) ? defaults.get(el) : '';
   }
   function radioValue(name) {
     var checked = $$('input[name="' + name + '"]', form).find(function (r) { return r.checked; });
@@ -65,11 +56,23 @@
     return !!hit;
   }
 
-  /* The query string of the form: `v=1`, then every field that differs from its default, the
-   * order when it is fixed, and the parts typed over. */
+  /* The form's names, for the core to tell which link keys the form has no field for. */
+  function formKeys() {
+    var names = [];
+    fields().forEach(function (el) { if (el.name !== 'ordermode' && names.indexOf(el.name) < 0) names.push(el.name); });
+    names.push('set');
+    return names.join(',');
+  }
+  function isShown(el) {
+    return !el.closest('[hidden]');
+  }
+
+  /* The form as a query string for the core: every shown field that holds a value (an empty field
+   * leaves the key to the core, which knows its default), the parts typed over, and the keys of
+   * the opened link that the form has no field for (kept as the core gave them). No key is left
+   * out for equalling a default, and the link written to the address bar is the core's. */
   function readForm() {
     var params = new URLSearchParams();
-    params.set('v', '1');
     var mode = radioValue('ordermode');
     var seen = {};
     fields().forEach(function (el) {
@@ -78,61 +81,49 @@
       if (el.type === 'radio') {
         seen[name] = true;
         var value = radioValue(name);
-        var def = ($$('input[name="' + name + '"]', form).find(function (r) { return r.defaultChecked; }) || {}).value;
-        if (value && value !== def) params.set(name, value);
+        if (value) params.set(name, value);
         return;
       }
+      if (!isShown(el)) return;
       var text = el.value.trim();
-      if (name === 'order') {
-        if (mode === 'fixed' && text) params.set('order', text);
-        return;
-      }
-      if (text && text !== fieldDefault(el)) params.set(name, text);
+      if (name === 'order' && mode !== 'fixed') return;
+      if (text) params.set(name, text);
     });
     if (state.overrides.size) {
       var list = [];
       state.overrides.forEach(function (text, ref) { list.push(ref + ':' + text); });
       params.set('set', list.join(','));
     }
-    return params.toString();
+    var query = params.toString();
+    return state.extra ? (query ? query + '&' : '') + state.extra : query;
   }
 
-  /* Puts a link's values into the form. Unknown keys and bad values are left to the core, which
-   * reports them; a select keeps its default when the link's value is not one of its options. */
-  function applyQuery(params) {
+  /* Puts a link into the form, as the core reads it: each field shows the core's text for the
+   * link's state, an absent key leaves its field empty, and the keys without a field are kept. */
+  function applyQuery(search) {
+    var fill = engine.form_of_link(search, formKeys());
     fields().forEach(function (el) {
-      if (el.type === 'radio') {
-        el.checked = el.defaultChecked;
-      } else {
-        el.value = fieldDefault(el);
-      }
+      if (el.type === 'radio') el.checked = el.defaultChecked;
+      else if (el.tagName === 'SELECT') {
+        var chosen = Array.prototype.find.call(el.options, function (o) { return o.defaultSelected; });
+        el.value = chosen ? chosen.value : (el.options[0] ? el.options[0].value : '');
+      } else el.value = '';
     });
     state.overrides = new Map();
-    params.forEach(function (value, key) {
-      if (key === 'set') {
-        value.split(',').forEach(function (pair) {
-          var at = pair.indexOf(':');
-          if (at > 0) state.overrides.set(pair.slice(0, at).trim(), pair.slice(at + 1).trim());
-        });
-        return;
-      }
+    fill.overrides.forEach(function (pair) { state.overrides.set(pair[0], pair[1]); });
+    fill.values.forEach(function (pair) {
+      var key = pair[0], value = pair[1];
       var els = fields().filter(function (el) { return el.name === key; });
       if (!els.length) return;
       if (els[0].type === 'radio') { setRadio(key, value); return; }
-      var el = els[0];
-      if (el.tagName === 'SELECT') {
-        if (Array.prototype.some.call(el.options, function (o) { return o.value === value; })) el.value = value;
-      } else {
-        el.value = value;
-      }
+      els[0].value = value;
     });
-    var hasLimits = params.has('fpass') || params.has('fstop') || params.has('fsample');
-    setRadio('ordermode', params.has('order') || !hasLimits ? 'fixed' : 'limits');
-    if (params.has('fsample') || params.has('adcbits') || params.has('fsignal')) $('#converter').open = true;
-    var title = params.get('title');
+    state.extra = fill.extra;
+    setRadio('ordermode', fill.order_mode);
+    if (fill.converter) $('#converter').open = true;
     var titleBox = $('#design-title');
-    titleBox.hidden = !title;
-    titleBox.textContent = title || '';
+    titleBox.hidden = !fill.title;
+    titleBox.textContent = fill.title || '';
     syncVisibility();
   }
 
@@ -495,25 +486,30 @@
     return view.committed;
   }
 
-  /* The address bar follows the design, a moment after the typing stops: replacing the history
-   * entry is a round trip to the browser that costs more than the whole redraw, and Chromium
-   * refuses it when it comes hundreds of times in a few seconds. Leaving the page, copying the
-   * link or printing writes it at once. */
-  var address = { timer: 0, query: null };
+  /* The address bar carries the link the core wrote for the design on screen. It is written at
+   * once after an edit, at most once every ADDRESS_MS: Chromium refuses history changes that come
+   * hundreds of times in a few seconds, and a reload must never find an older link. Leaving the
+   * page, copying the link or printing writes a pending one at once. Opening an example or a file
+   * adds a history entry, so the previous design is one Back away. */
+  var ADDRESS_MS = 60;
+  var address = { timer: 0, query: null, lastAt: -Infinity };
   function keepAddress(query) {
     address.query = query;
-    window.clearTimeout(address.timer);
-    address.timer = window.setTimeout(writeAddress, 250);
+    if (address.timer) return;
+    var wait = ADDRESS_MS - (performance.now() - address.lastAt);
+    if (wait <= 0) writeAddress();
+    else address.timer = window.setTimeout(writeAddress, wait);
   }
-  function writeAddress() {
+  function writeAddress(push) {
     window.clearTimeout(address.timer);
     address.timer = 0;
     if (address.query === null) return;
     var query = address.query;
     address.query = null;
-    if (window.location.search !== '?' + query) {
-      window.history.replaceState(null, '', window.location.pathname + '?' + query + window.location.hash);
-    }
+    address.lastAt = performance.now();
+    var url = window.location.pathname + query + window.location.hash;
+    if (push === true) window.history.pushState(null, '', url);
+    else if (window.location.search !== query) window.history.replaceState(null, '', url);
   }
 
   // ---- the live loop: every edit recomputes on the next frame ----
@@ -523,11 +519,11 @@
     // design on screen (and a study running on it) stays.
     if (!initial && query === state.lastQuery) return null;
     state.lastQuery = query;
-    keepAddress(query);
     var t0 = performance.now();
     var view = engine.evaluate(query, !!initial);
     var t1 = performance.now();
     var committed = render(view, initial);
+    if (committed) keepAddress(view.link);
     document.body.setAttribute('data-evaluate-ms', (t1 - t0).toFixed(2));
     document.body.setAttribute('data-render-ms', (performance.now() - t1).toFixed(2));
     if (committed) scheduleStudy();
@@ -568,55 +564,52 @@
     });
   }
 
-  /* Opens a link: loads what is valid; a field whose value was refused goes back to its default
-   * (the value the design used) and the refusal is listed in the notice. The link is first only
-   * read (no design is made), then the form's link is composed once; only when that design
-   * cannot be made (a value valid alone but not with the rest) do the fields it names go back to
-   * their defaults for a second try. */
-  function openQuery(search) {
-    var params = new URLSearchParams(search);
-    // The link as it came is read first, so that its unknown keys and refused values are known.
-    var view = engine.check_link(params.toString());
+  /* Opens a link: loads what is valid; a value that was refused shows the default the design
+   * uses, and the refusal is listed in the notice. A link from a newer version changes nothing:
+   * not the form, not the design, not the address. `push` adds a history entry (an example or a
+   * file was opened), so the previous design stays one Back away. */
+  function openQuery(search, push) {
+    var view = engine.check_link(search);
     if (view.refused) {
-      params = new URLSearchParams();
+      showNotice(view.errors.map(function (e) { return e.key + ': ' + e.message + ' — the link is not opened'; }));
+      return false;
     }
-    applyQuery(params);
+    var before = state.extra;
+    applyQuery(search);
+    syncVisibility();
+    var query = readForm();
+    state.lastQuery = query;
+    var final = engine.evaluate(query, true);
     var refused = view.errors.slice();
-    function resetFields(errors) {
-      errors.forEach(function (error) {
-        var target = fields().filter(function (e) { return e.name === error.key; });
-        target.forEach(function (e) {
-          if (e.type === 'radio') e.checked = e.defaultChecked;
-          else e.value = fieldDefault(e);
+    if (!final.committed && final.errors.length) {
+      // A value valid alone but not with the rest: its field is emptied (the core's default)
+      // for a second try.
+      final.errors.forEach(function (error) {
+        fields().filter(function (e) { return e.name === error.key; }).forEach(function (e) {
+          if (e.type !== 'radio' && e.tagName !== 'SELECT') e.value = '';
         });
         if (error.key === 'set' || error.key.indexOf('set:') === 0) state.overrides = new Map();
       });
-    }
-    function compose() {
-      syncVisibility();
-      var query = readForm();
-      address.query = query;
-      writeAddress();
-      state.lastQuery = query;
-      return engine.evaluate(query, true);
-    }
-    resetFields(refused);
-    var final = compose();
-    if (!final.committed && final.errors.length) {
-      resetFields(final.errors);
       refused = refused.concat(final.errors);
-      final = compose();
+      query = readForm();
+      state.lastQuery = query;
+      final = engine.evaluate(query, true);
+    }
+    if (final.committed) {
+      address.query = final.link;
+      writeAddress(push === true);
+    } else {
+      state.extra = before;
     }
     // What the opened link carried but the design does not use: its unknown keys and notes, and
-    // every refused value (the field went back to its default).
+    // every refused value (the field shows the default the design uses).
     var notes = view.ignored.slice();
     final.ignored.forEach(function (n) { if (notes.indexOf(n) < 0) notes.push(n); });
-    refused.forEach(function (e) {
-      notes.push(e.key + ': ' + e.message + (view.refused ? ' — the link is not opened' : ' (the default is used)'));
-    });
+    refused.forEach(function (e) { notes.push(e.key + ': ' + e.message + ' (the default is used)'); });
     render(final, false);
     showNotice(notes);
     if (final.committed) scheduleStudy();
+    return final.committed;
   }
 
   // ---- crosshair readout ----
@@ -818,7 +811,7 @@
     $('#example').addEventListener('change', function (event) {
       var value = event.target.value;
       if (!value) return;
-      openQuery(value);
+      openQuery(value, true);
       event.target.value = '';
     });
     $$('.thumb').forEach(function (b) {
@@ -849,13 +842,14 @@
       file.text().then(function (text) {
         var result = engine.import_json(text);
         if (!result.ok) { showNotice(['The file was not opened: ' + result.message]); return; }
-        openQuery(result.query);
+        openQuery(result.query, true);
       });
       event.target.value = '';
     });
     $('#print').addEventListener('click', function () { window.print(); });
     window.addEventListener('beforeprint', function () { writeAddress(); preparePrint(); });
     window.addEventListener('pagehide', writeAddress);
+    window.addEventListener('popstate', function () { openQuery(window.location.search, false); });
     document.addEventListener('visibilitychange', writeAddress);
     window.addEventListener('afterprint', function () { printing = false; if (state.committed) drawAll(); });
     $('#notice-close').addEventListener('click', function () { $('#notice').hidden = true; });
@@ -894,7 +888,7 @@
   // ---- start ----
   function start(core) {
     engine = core;
-    recordDefaults();
+    showDefaults();
     wire();
     if (typeof rolloffOpening !== 'undefined') rolloffOpening.started = performance.now();
     openQuery(window.location.search);

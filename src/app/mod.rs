@@ -144,6 +144,9 @@ pub struct View {
     pub comparison: Vec<FamilyRow>,
     /// A line above the comparison.
     pub comparison_hint: String,
+    /// The whole state as the link writer writes it ([`link::to_query`]): what the address bar,
+    /// Copy link and the exports carry. Empty when no design was made.
+    pub link: String,
 }
 
 /// A design that was composed successfully, with everything the plots and exports need.
@@ -192,6 +195,7 @@ pub fn evaluate(query: &str) -> Evaluation {
         Ok(mut model) => {
             model.view.errors = errors;
             model.view.ignored = ignored;
+            model.view.link = link::to_query(&report.state);
             Evaluation {
                 view: model.view.clone(),
                 model: Some(model),
@@ -232,6 +236,7 @@ fn empty_view(errors: Vec<FieldError>, ignored: Vec<String>) -> View {
         stages: Vec::new(),
         comparison: Vec::new(),
         comparison_hint: String::new(),
+        link: String::new(),
     }
 }
 
@@ -460,6 +465,105 @@ pub fn compose_timed(state: &LinkState, watch: &mut Stopwatch) -> Result<PageMod
         view,
         study: None,
     })
+}
+
+/// The part of `query` that a form with the fields `form_keys` cannot show: every pair whose key
+/// is a link key (`link::KEYS`) but not one of the form's, in the order given, as a query string
+/// (no `?`). The page sends it back with every edit, so a key without a field (`tolset`, a seed
+/// set by hand …) survives editing; unknown keys are not kept (they are listed as ignored).
+pub fn link_extras(query: &str, form_keys: &[&str]) -> String {
+    let mut out = form_urlencoded::Serializer::new(String::new());
+    for (key, value) in form_urlencoded::parse(link::query_of(query).as_bytes()) {
+        if key != "v" && link::KEYS.contains(&key.as_ref()) && !form_keys.contains(&key.as_ref()) {
+            out.append_pair(&key, &value);
+        }
+    }
+    out.finish()
+}
+
+/// What the page's form shows for a link: the value of every key as the link writer writes it
+/// for the state the link reads as (so a version-1 link fills the form with today's names, and a
+/// bad value shows the default the design uses), the parts typed over, the order mode and the
+/// keys the form has no field for.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FormFill {
+    /// `(key, text)` for every key the writer writes, except `v`, `set` and the extras.
+    pub values: Vec<(String, String)>,
+    /// Parts typed over: `(reference, value text)`.
+    pub overrides: Vec<(String, String)>,
+    /// `fixed` when the order is fixed, `limits` when it follows from the limits.
+    pub order_mode: &'static str,
+    /// True when the converter helper's keys are set.
+    pub converter: bool,
+    /// The design's title, when it has one (shown as text only).
+    pub title: Option<String>,
+    /// The keys without a field, as a query string ([`link_extras`]).
+    pub extra: String,
+}
+
+/// The form's values for `query` (see [`FormFill`]); `form_keys` are the form's field names.
+pub fn form_of_link(query: &str, form_keys: &[&str]) -> FormFill {
+    let report = link::parse(query);
+    let state = &report.state;
+    let written = link::to_query(state);
+    let values = form_urlencoded::parse(link::query_of(&written).as_bytes())
+        .filter(|(k, _)| k != "v" && k != "set" && form_keys.contains(&k.as_ref()))
+        .map(|(k, v)| (k.into_owned(), v.into_owned()))
+        .collect();
+    let overrides = form_urlencoded::parse(link::query_of(&written).as_bytes())
+        .filter(|(k, _)| k == "set")
+        .flat_map(|(_, v)| {
+            v.split(',')
+                .filter_map(|pair| pair.split_once(':'))
+                .map(|(r, t)| (r.to_string(), t.to_string()))
+                .collect::<Vec<_>>()
+        })
+        .collect();
+    FormFill {
+        values,
+        overrides,
+        order_mode: match state.requirement.order {
+            crate::spec::OrderChoice::Fixed(_) => "fixed",
+            crate::spec::OrderChoice::FromMask => "limits",
+        },
+        converter: state.converter.is_some(),
+        title: state.title.clone(),
+        extra: link_extras(&written, form_keys),
+    }
+}
+
+/// The default of every key that has a plain default value, as the form's placeholders show it:
+/// an empty field leaves the key to the core, which uses this value.
+pub fn form_defaults() -> Vec<(String, String)> {
+    let d = LinkState::default();
+    let n = |v: f64| crate::units::format_si(v, 6).replace('µ', "u");
+    let order = match d.requirement.order {
+        crate::spec::OrderChoice::Fixed(k) => k.to_string(),
+        crate::spec::OrderChoice::FromMask => String::new(),
+    };
+    let mut out = vec![
+        ("order", order),
+        ("fc", n(d.requirement.fc_hz.unwrap_or(link::DEFAULT_FC_HZ))),
+        ("gain", n(d.requirement.gain_db)),
+        ("ripple", "0.5".to_string()),
+        ("apass", n(link::DEFAULT_APASS_DB)),
+        ("rtol", n(d.rtol_pct)),
+        ("ctol", n(d.ctol_pct)),
+        ("gbw", n(d.op_amp.gbw_hz)),
+        ("a0", n(d.op_amp.a0_db)),
+        ("rout", n(d.op_amp.rout_ohm)),
+        ("slew", n(d.op_amp.slew_v_per_s)),
+        ("vnoise", n(d.op_amp.en_v_per_rthz)),
+        ("inoise", n(d.op_amp.in_a_per_rthz)),
+        ("vin", n(d.signal.vin_pk)),
+        ("swing", n(d.signal.swing_pk)),
+        ("drift", n(d.signal.drift_pct)),
+        ("runs", d.study.runs.to_string()),
+        ("seed", d.study.seed.to_string()),
+        ("sigmas", n(d.study.sigmas)),
+    ];
+    out.retain(|(_, v)| !v.is_empty());
+    out.into_iter().map(|(k, v)| (k.to_string(), v)).collect()
 }
 
 mod import;

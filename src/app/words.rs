@@ -355,6 +355,7 @@ pub(super) fn text_view(design: &Design, data: &PlotData) -> View {
         stages,
         comparison,
         comparison_hint,
+        link: String::new(),
     }
 }
 
