@@ -6,7 +6,7 @@
 //! 3. the plot span, the family comparison and the warnings gathered from every step.
 //! Sweeps ([`sweep`]) and the tolerance study ([`spread`]) run on a composed design.
 
-use crate::analysis::montecarlo::{
+use crate::analysis::tolerance::{
     CutoffDefinition, MonteCarlo, MonteCarloSettings, PartDistribution, PartTolerance, Summary,
     Tolerances,
 };

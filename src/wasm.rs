@@ -14,7 +14,7 @@ use serde::Serialize;
 use wasm_bindgen::prelude::*;
 use web_sys::HtmlCanvasElement;
 
-use crate::analysis::montecarlo::MonteCarlo;
+use crate::analysis::tolerance::MonteCarlo;
 use crate::plot::page::{self, PageModel, View};
 use crate::plot::{self, Look, PlotKind, Theme};
 use crate::schematic;

@@ -13,7 +13,7 @@ use std::f64::consts::PI;
 
 use super::figure::Figure;
 use super::figures::{self, Curve, Histogram, PlotData, PlotKind, Sweep};
-use crate::analysis::montecarlo::{MonteCarlo, Summary};
+use crate::analysis::tolerance::{MonteCarlo, Summary};
 use crate::board::Board;
 use crate::design::Synthesis;
 use crate::error::InputError;
@@ -1123,8 +1123,8 @@ impl PageModel {
                     Edge::Pair(a, b) => (a, b),
                 };
                 let edge = match cut.side {
-                    crate::analysis::montecarlo::CutoffSide::Lower => lo,
-                    crate::analysis::montecarlo::CutoffSide::Upper => hi,
+                    crate::analysis::tolerance::CutoffSide::Lower => lo,
+                    crate::analysis::tolerance::CutoffSide::Upper => hi,
                 };
                 limits.push(("pass edge".to_string(), edge));
             }
