@@ -10,7 +10,7 @@
 //! and its per-run work (draws, stage polynomials, f0 and Q, cutoff search, statistics).
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
-use rolloff::analysis::montecarlo::{
+use rolloff::analysis::tolerance::{
     CutoffDefinition, MonteCarlo, MonteCarloSettings, PartDistribution, RunLanes, Tolerances,
     RUN_LANES,
 };
@@ -128,7 +128,7 @@ fn bench(c: &mut Criterion) {
     kernel.throughput(Throughput::Elements((n_eval * n_stages * lanes) as u64));
     kernel.bench_function("4 stages, 203 points, 8 runs in lanes", |b| {
         b.iter(|| {
-            rolloff::analysis::montecarlo::cascade_kernel_lanes(
+            rolloff::analysis::tolerance::cascade_kernel_lanes(
                 criterion::black_box(&x),
                 &coef_n,
                 &coef_d,

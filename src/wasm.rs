@@ -14,8 +14,8 @@ use serde::Serialize;
 use wasm_bindgen::prelude::*;
 use web_sys::HtmlCanvasElement;
 
-use crate::analysis::montecarlo::MonteCarlo;
-use crate::app::{self, PageModel, View};
+use crate::analysis::tolerance::MonteCarlo;
+use crate::app::{self as page, PageModel, View};
 use crate::plot::{self, Look, PlotKind, Theme};
 use crate::schematic;
 

@@ -6,18 +6,19 @@ use num_complex::Complex64;
 use rand_core::{RngCore, SeedableRng};
 use rand_xoshiro::Xoshiro256PlusPlus;
 use rolloff::analysis::circuit::{input_drive, merge_stages, Compiled, Solver};
-use rolloff::analysis::fastfit::{magnitude_squared_into, FastFit};
+use rolloff::analysis::fastfit::FastFit;
 use rolloff::analysis::levels::board_levels;
-use rolloff::analysis::montecarlo::{
-    CutoffDefinition, CutoffSide, MonteCarlo, MonteCarloSettings, PartDistribution, Summary,
-    Tolerances,
-};
+use rolloff::analysis::magnitude::magnitude_squared_into;
 use rolloff::analysis::noise::{stages_noise, NoiseKind, NoiseSettings, BOLTZMANN_J_PER_K};
 use rolloff::analysis::opamp_need::board_needs;
 use rolloff::analysis::poles::{board_poles, section_poles, stage_factor};
 use rolloff::analysis::poly::stage_transfer;
 use rolloff::analysis::sensitivity::stage_sensitivities;
 use rolloff::analysis::timeresp::{board_response, TimeSettings};
+use rolloff::analysis::tolerance::{
+    CutoffDefinition, CutoffSide, MonteCarlo, MonteCarloSettings, PartDistribution, Summary,
+    Tolerances,
+};
 use rolloff::board::{Board, BuildChoices};
 use rolloff::design::synthesize;
 use rolloff::eseries::Series;
@@ -657,7 +658,7 @@ fn nominal_cutoffs_of_high_and_band_pass_are_analytic() {
 /// data (the definition numpy calls "linear"), exactly, for random data with ties.
 #[test]
 fn percentiles_by_selection_equal_sorted_percentiles() {
-    use rolloff::analysis::montecarlo::{
+    use rolloff::analysis::tolerance::{
         percentile_sorted, percentiles_by_selection, percentiles_f32_by_histogram,
     };
     let mut rng = Xoshiro256PlusPlus::seed_from_u64(3);
@@ -704,7 +705,7 @@ fn percentiles_by_selection_equal_sorted_percentiles() {
 /// override sets the resistor's tolerance to zero. 20,000 runs: sampling error 0.5 %; tolerance 2 %.
 #[test]
 fn uniform_parts_and_per_part_overrides() {
-    use rolloff::analysis::montecarlo::PartTolerance;
+    use rolloff::analysis::tolerance::PartTolerance;
     let (r, c) = (10e3, 10e-9);
     let mut settings = mc_settings(20_000, 17, 5.0, 3.0, ResponseClass::LowPass);
     settings.tolerances.distribution = PartDistribution::Uniform;
@@ -766,7 +767,7 @@ fn bad_study_settings_name_their_key() {
     s.tolerances.distribution = PartDistribution::Gaussian { sigmas: 0.5 };
     check(s, "sigmas");
     let mut s = mc_settings(10, 1, 1.0, 1.0, ResponseClass::LowPass);
-    s.tolerances.overrides = vec![rolloff::analysis::montecarlo::PartTolerance {
+    s.tolerances.overrides = vec![rolloff::analysis::tolerance::PartTolerance {
         reference: "R9".into(),
         pct: 1.0,
     }];

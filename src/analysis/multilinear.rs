@@ -16,7 +16,7 @@
 //! real-point solve of [`super::fastfit`].
 
 use super::circuit::Compiled;
-use super::montecarlo::lanes::Lane8;
+use super::lanes::Lane8;
 use super::poly::FitWork;
 use crate::netlist::{PartKind, StageNetlist};
 
@@ -180,7 +180,7 @@ impl Multilinear {
     /// `l` (indexed like the netlist's parts), `num_u[j][l]` and `den_u[j][l]` receive
     /// coefficient `j` of run `l` (length ≥ K), `mono` is scratch of length ≥
     /// [`Multilinear::n_terms`]. `V` is the lane arithmetic
-    /// ([`super::montecarlo::lanes::Lane8`]).
+    /// ([`super::lanes::Lane8`]).
     ///
     /// Each lane does the operations of [`Multilinear::evaluate`] in the same order (the same
     /// eight partial sums, added in the same tree), so every lane's result is bit-identical to a

@@ -10,8 +10,8 @@
 //! comparison shows.
 
 use super::circuit::AnalysisError;
-use super::montecarlo::dominant_w0_q;
 use super::poly::{stage_transfer, Rational};
+use super::roots::dominant_w0_q;
 use crate::board::Board;
 use crate::netlist::StageNetlist;
 use crate::opamp::OpAmp;

@@ -14,9 +14,9 @@
 //! conductance.
 
 use super::circuit::{AnalysisError, Compiled};
-use super::montecarlo::{bairstow, dominant_w0_q};
 use super::poles::stage_order;
 use super::poly::{FitWork, Poly, FIT_TRIM_REL};
+use super::roots::{bairstow, dominant_w0_q};
 use crate::board::Board;
 use crate::netlist::{PartKind, StageNetlist};
 use crate::opamp::OpAmp;

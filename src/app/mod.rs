@@ -11,7 +11,7 @@ use num_complex::Complex64;
 use serde::Serialize;
 use std::f64::consts::PI;
 
-use crate::analysis::montecarlo::Summary;
+use crate::analysis::tolerance::Summary;
 use crate::design::Synthesis;
 use crate::error::InputError;
 use crate::link::{self, LinkReport, LinkState};

@@ -3,7 +3,7 @@
 //! command line.
 
 use super::{PageModel, N_POINTS, STUDY_BAND};
-use crate::analysis::montecarlo::{MonteCarlo, Summary};
+use crate::analysis::tolerance::{MonteCarlo, Summary};
 use crate::error::InputError;
 use crate::export;
 use crate::pipeline;
@@ -58,8 +58,8 @@ impl PageModel {
                     Edge::Pair(a, b) => (a, b),
                 };
                 let edge = match cut.side {
-                    crate::analysis::montecarlo::CutoffSide::Lower => lo,
-                    crate::analysis::montecarlo::CutoffSide::Upper => hi,
+                    crate::analysis::tolerance::CutoffSide::Lower => lo,
+                    crate::analysis::tolerance::CutoffSide::Upper => hi,
                 };
                 limits.push(("pass edge".to_string(), edge));
             }

@@ -5,7 +5,7 @@
 //! (every part of the board) and `warnings`, plus the requirement, the mask, the poles, the family
 //! comparison and the analyses. Non-finite numbers are written as `null`.
 
-use crate::analysis::montecarlo::Summary;
+use crate::analysis::tolerance::Summary;
 use crate::link::FORMAT_VERSION;
 use crate::netlist::{Part, PartKind};
 use crate::order::family_name;

@@ -1,7 +1,7 @@
 //! The text report of `rolloff design` and `rolloff spread`: the design in words and tables.
 
-use crate::analysis::montecarlo::Summary;
 use crate::analysis::noise::NoiseKind;
+use crate::analysis::tolerance::Summary;
 use crate::netlist::PartKind;
 use crate::order::family_name;
 use crate::pipeline::Design;

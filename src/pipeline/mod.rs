@@ -7,7 +7,7 @@
 //! Sweeps ([`sweep`]) and the tolerance study ([`spread`]) run on a composed design.
 
 use crate::analysis::built::BoardSolver;
-use crate::analysis::montecarlo::{
+use crate::analysis::tolerance::{
     CutoffDefinition, MonteCarlo, MonteCarloSettings, PartDistribution, PartTolerance, Summary,
     Tolerances,
 };

@@ -1,0 +1,415 @@
+//! What a tolerance study builds once: each stage compiled and fitted at its nominal values (with
+//! its multilinear expansion where it has one), the draw table (nominal values, spreads), the
+//! evaluation grid with the mask bounds at each point, the instruction set, and the nominal
+//! board's readings, worked out by the same batch path as every run.
+
+use super::batch::Batch;
+use super::{
+    CutoffDefinition, MonteCarlo, MonteCarloSettings, PartDistribution, RunResult, MAX_RUNS,
+    MAX_TOLERANCE_PCT,
+};
+use crate::analysis::circuit::{AnalysisError, Assembled, Compiled};
+use crate::analysis::fastfit::FastFit;
+use crate::analysis::lanes::{Isa, RunLanes, RUN_LANES};
+use crate::analysis::multilinear::Multilinear;
+use crate::analysis::poly::FitWork;
+use crate::analysis::roots::dominant_w0_q;
+use crate::board::Board;
+use crate::error::InputError;
+use crate::netlist::{PartKind, StageNetlist};
+use crate::opamp::OpAmp;
+use crate::spec::{Edge, Mask};
+use rand_core::SeedableRng;
+use rand_xoshiro::Xoshiro256PlusPlus;
+use std::f64::consts::PI;
+
+/// One stage prepared for repeated fitting.
+#[derive(Debug, Clone)]
+pub(super) struct StageRun {
+    pub(super) compiled: Compiled,
+    pub(super) assembled: Assembled,
+    pub(super) fast: FastFit,
+    /// The multilinear expansion of N and D (stages of up to eight parts), used instead of
+    /// solving per run.
+    pub(super) multi: Option<Multilinear>,
+    /// Index into the run's value vector of this stage's first part.
+    pub(super) value_offset: usize,
+    pub(super) n_parts: usize,
+    /// 0, 1 or 2 (degree of the denominator with an ideal op amp, at most 2).
+    pub(super) order: usize,
+    /// Nominal f0 (rad/s) and Q of the dominant factor, the start of each run's iteration.
+    pub(super) nominal_w0: f64,
+    pub(super) nominal_q: f64,
+    /// The nominal far real pole of a third-degree denominator (the op amp's), in u = s/ω_g;
+    /// each run finds it by Halley's iteration and splits off the filter's quadratic factor.
+    pub(super) far_root_u: Option<f64>,
+    /// N and D in u of the batch's runs (K coefficients, one lane per run).
+    pub(super) num_l: Vec<RunLanes>,
+    pub(super) den_l: Vec<RunLanes>,
+    /// |N|², |D|² in x of the batch's runs.
+    pub(super) sq_n: Vec<RunLanes>,
+    pub(super) sq_d: Vec<RunLanes>,
+    /// Monomials of the multilinear expansion, one lane per run.
+    pub(super) mono: Vec<RunLanes>,
+    /// One run's part values, for the per-run solve of stages without an expansion.
+    pub(super) scalar_values: Vec<f64>,
+}
+
+fn input(key: &str, message: String) -> AnalysisError {
+    AnalysisError::Input(InputError::new(key, message))
+}
+
+fn validate(settings: &MonteCarloSettings) -> Result<(), AnalysisError> {
+    if settings.runs == 0 || settings.runs > MAX_RUNS {
+        return Err(input(
+            "runs",
+            format!("{} runs asked for; accepted 1 to {MAX_RUNS}", settings.runs),
+        ));
+    }
+    let t = &settings.tolerances;
+    for (key, v) in [("rtol", t.resistor_pct), ("ctol", t.capacitor_pct)] {
+        if !(v.is_finite() && (0.0..=MAX_TOLERANCE_PCT).contains(&v)) {
+            return Err(input(
+                key,
+                format!("tolerance {v} %; accepted 0 to {MAX_TOLERANCE_PCT} %"),
+            ));
+        }
+    }
+    for o in &t.overrides {
+        if !(o.pct.is_finite() && (0.0..=MAX_TOLERANCE_PCT).contains(&o.pct)) {
+            return Err(input(
+                &format!("tol:{}", o.reference),
+                format!("tolerance {} %; accepted 0 to {MAX_TOLERANCE_PCT} %", o.pct),
+            ));
+        }
+    }
+    if let PartDistribution::Gaussian { sigmas } = t.distribution {
+        if !(sigmas.is_finite() && (1.0..=6.0).contains(&sigmas)) {
+            return Err(input(
+                "sigmas",
+                format!("{sigmas} standard deviations; accepted 1 to 6"),
+            ));
+        }
+    }
+    let f = &settings.freqs_hz;
+    if f.is_empty() || f.len() > 100_000 {
+        return Err(input(
+            "points",
+            format!("{} frequencies; accepted 1 to 100000", f.len()),
+        ));
+    }
+    if f.iter().any(|v| !(v.is_finite() && *v > 0.0)) || f.windows(2).any(|w| w[1] <= w[0]) {
+        return Err(input(
+            "from",
+            "frequencies must be positive, finite and ascending".into(),
+        ));
+    }
+    if settings
+        .percentiles
+        .iter()
+        .any(|p| !(p.is_finite() && (0.0..=100.0).contains(p)))
+    {
+        return Err(input("percentiles", "percentiles are 0 to 100".into()));
+    }
+    let CutoffDefinition::Attenuation { db } = settings.cutoff;
+    if !(db.is_finite() && db > 0.0 && db < 100.0) {
+        return Err(input(
+            "cutoff",
+            format!("cutoff attenuation {db} dB; accepted above 0 and below 100 dB"),
+        ));
+    }
+    if !(settings.reference_gain.is_finite() && settings.reference_gain > 0.0) {
+        return Err(input(
+            "gain",
+            format!(
+                "reference gain {} V/V; accepted a positive finite number",
+                settings.reference_gain
+            ),
+        ));
+    }
+    if !(settings.passband_ref_hz.is_finite() && settings.passband_ref_hz >= 0.0) {
+        return Err(input(
+            "fc",
+            "passband reference frequency must be 0 or positive".into(),
+        ));
+    }
+    Ok(())
+}
+
+/// In-band test of one frequency against a mask: `(in passband, in stopband)`.
+fn bands(mask: &Mask, f: f64) -> (bool, bool) {
+    match (mask.pass, mask.stop) {
+        (Edge::Single(fp), Edge::Single(fs)) => {
+            if fp <= fs {
+                (f <= fp, f >= fs)
+            } else {
+                (f >= fp, f <= fs)
+            }
+        }
+        (Edge::Pair(pl, ph), Edge::Pair(sl, sh)) => (f >= pl && f <= ph, f <= sl || f >= sh),
+        // Mixed edge kinds do not pass the link's validation; they check nothing.
+        _ => (false, false),
+    }
+}
+
+fn mask_edges(mask: &Mask) -> Vec<f64> {
+    let mut v = Vec::new();
+    for e in [mask.pass, mask.stop] {
+        match e {
+            Edge::Single(f) => v.push(f),
+            Edge::Pair(a, b) => {
+                v.push(a);
+                v.push(b);
+            }
+        }
+    }
+    v
+}
+
+impl MonteCarlo {
+    /// Prepares a study of `board` (its stages as built, its op-amp model).
+    ///
+    /// # Errors
+    /// As [`MonteCarlo::from_stages`].
+    pub fn new(
+        board: &Board,
+        mask: Option<&Mask>,
+        settings: MonteCarloSettings,
+    ) -> Result<MonteCarlo, AnalysisError> {
+        let stages: Vec<StageNetlist> = board.stages.iter().map(|s| s.netlist.clone()).collect();
+        MonteCarlo::from_stages(&stages, &board.op_amp, mask, settings)
+    }
+
+    /// Prepares a study of the board made of `stages` (in signal order) with op amp `op`.
+    ///
+    /// # Errors
+    /// [`AnalysisError::Input`] naming the setting out of range (`runs` 1–100,000, `rtol`/`ctol`
+    /// 0–50 %, `sigmas` 1–6, frequencies positive and ascending, percentiles 0–100, an override for
+    /// a part that is not on the board: key `tol:REF`); [`AnalysisError::BadNetlist`] or
+    /// [`AnalysisError::Singular`] when the nominal board cannot be analysed.
+    pub fn from_stages(
+        stages: &[StageNetlist],
+        op: &OpAmp,
+        mask: Option<&Mask>,
+        settings: MonteCarloSettings,
+    ) -> Result<MonteCarlo, AnalysisError> {
+        validate(&settings)?;
+        if stages.is_empty() {
+            return Err(AnalysisError::BadNetlist("the board has no stages".into()));
+        }
+        let t = &settings.tolerances;
+        for o in &t.overrides {
+            let found = stages.iter().any(|s| {
+                s.parts
+                    .iter()
+                    .any(|p| p.reference == o.reference && p.kind != PartKind::OpAmp)
+            });
+            if !found {
+                return Err(input(
+                    &format!("tol:{}", o.reference),
+                    format!("no resistor or capacitor {} on the board", o.reference),
+                ));
+            }
+        }
+        let divisor = match t.distribution {
+            PartDistribution::Gaussian { sigmas } => sigmas,
+            PartDistribution::Uniform => 1.0,
+        };
+        let f = &settings.freqs_hz;
+        let n_grid = f.len();
+        let f_g = (f[0] * f[n_grid - 1]).sqrt();
+        let w_g = 2.0 * PI * f_g;
+        let mut nominal_values = Vec::new();
+        let mut spread = Vec::new();
+        let mut drawn = Vec::new();
+        let mut runs = Vec::with_capacity(stages.len());
+        let ideal = OpAmp::ideal();
+        for net in stages {
+            let compiled = Compiled::new(net, op)?;
+            let assembled = compiled.assemble(net);
+            let mut work = FitWork::new(&compiled);
+            let value_offset = nominal_values.len();
+            for p in &net.parts {
+                let pct = match p.kind {
+                    PartKind::OpAmp => 0.0,
+                    PartKind::Resistor => t.resistor_pct,
+                    PartKind::Capacitor => t.capacitor_pct,
+                };
+                let pct = t
+                    .overrides
+                    .iter()
+                    .find(|o| o.reference == p.reference && p.kind != PartKind::OpAmp)
+                    .map_or(pct, |o| o.pct);
+                if p.kind != PartKind::OpAmp {
+                    drawn.push(nominal_values.len());
+                }
+                nominal_values.push(if p.kind == PartKind::OpAmp {
+                    0.0
+                } else {
+                    p.value
+                });
+                spread.push(pct / 100.0 / divisor);
+            }
+            // The stage order from the ideal-op-amp denominator; the nominal dominant factor from
+            // the real one.
+            let ideal_rat = crate::analysis::poly::stage_transfer(net, &ideal)?;
+            // Order 0: a stage without frequency-setting poles (a gain stage); it has no f0 or Q.
+            let order = ideal_rat.den.degree().min(2);
+            let rat = crate::analysis::poly::fitted_rational(&compiled, &assembled, &mut work)?;
+            let poles = rat.poles()?;
+            let (w0, q) = if order == 0 {
+                (f64::NAN, f64::NAN)
+            } else {
+                dominant_w0_q(&poles, order).ok_or_else(|| {
+                    AnalysisError::NoConvergence(format!(
+                        "no dominant pole {} found in a stage of order {order}",
+                        if order == 2 { "pair" } else { "" }
+                    ))
+                })?
+            };
+            let mut fast = FastFit::new(&compiled, rat.scale_rad_s, w_g);
+            fast.choose_pivots(&compiled, &assembled);
+            let k = fast.n_coef();
+            // A cubic denominator with one real pole well above the dominant pair: the fast split.
+            let far_root_u = (order == 2 && rat.den.degree() == 3)
+                .then(|| {
+                    poles
+                        .iter()
+                        .filter(|p| p.im == 0.0 && p.norm() > 2.0 * w0)
+                        .map(|p| p.re / w_g)
+                        .next()
+                })
+                .flatten();
+            let multi = Multilinear::new(&compiled, net, rat.scale_rad_s, w_g);
+            let n_terms = multi.as_ref().map_or(0, Multilinear::n_terms);
+            runs.push(StageRun {
+                multi,
+                far_root_u,
+                compiled,
+                assembled,
+                fast,
+                num_l: vec![[0.0; RUN_LANES]; k],
+                den_l: vec![[0.0; RUN_LANES]; k],
+                sq_n: vec![[0.0; RUN_LANES]; k],
+                sq_d: vec![[0.0; RUN_LANES]; k],
+                mono: vec![[0.0; RUN_LANES]; n_terms],
+                scalar_values: vec![0.0; net.parts.len()],
+                value_offset,
+                n_parts: net.parts.len(),
+                order,
+                nominal_w0: w0,
+                nominal_q: q,
+            });
+        }
+        let mut eval_f: Vec<f64> = f.clone();
+        let edges = mask.map(mask_edges).unwrap_or_default();
+        eval_f.extend(edges.iter().copied());
+        let ref_idx = eval_f.len();
+        eval_f.push(settings.passband_ref_hz);
+        let g2 = settings.reference_gain * settings.reference_gain;
+        let mut lo_bound = Vec::with_capacity(eval_f.len());
+        let mut hi_bound = Vec::with_capacity(eval_f.len());
+        let mut stop_weight = Vec::with_capacity(eval_f.len());
+        let mut has_stop = false;
+        for (i, &fr) in eval_f.iter().enumerate() {
+            let (in_pass, in_stop) = match mask {
+                Some(m) if i != ref_idx => bands(m, fr),
+                _ => (false, false),
+            };
+            let m = mask.copied();
+            lo_bound.push(match (in_pass, m) {
+                (true, Some(m)) => g2 * 10f64.powf(-m.apass_db / 10.0) * (1.0 - 1e-12),
+                _ => 0.0,
+            });
+            hi_bound.push(match (in_stop, m) {
+                (true, Some(m)) => g2 * 10f64.powf(-m.astop_db / 10.0) * (1.0 + 1e-12),
+                _ => f64::INFINITY,
+            });
+            stop_weight.push(if in_stop { 1.0 } else { 0.0 });
+            has_stop |= in_stop;
+        }
+        let x_eval: Vec<f64> = eval_f.iter().map(|fr| (fr / f_g) * (fr / f_g)).collect();
+        let width = runs
+            .iter()
+            .map(|s| s.compiled.degree_bound + 1)
+            .max()
+            .unwrap_or(1);
+        let n_stages = runs.len();
+        let n_eval = x_eval.len();
+        let runs_total = settings.runs;
+        let batch = Batch {
+            active: [false; RUN_LANES],
+            failed: [false; RUN_LANES],
+            values: nominal_values.iter().map(|&v| [v; RUN_LANES]).collect(),
+            coef_n: vec![[0.0; RUN_LANES]; n_stages * width],
+            coef_d: vec![[0.0; RUN_LANES]; n_stages * width],
+            deg_n: vec![0; n_stages],
+            deg_d: vec![0; n_stages],
+            w0: vec![[f64::NAN; RUN_LANES]; n_stages],
+            q: vec![[f64::NAN; RUN_LANES]; n_stages],
+            h2: vec![[0.0; RUN_LANES]; n_eval],
+            den: vec![[0.0; RUN_LANES]; n_eval],
+            pass: [false; RUN_LANES],
+            cut_lo_hz: [f64::NAN; RUN_LANES],
+            cut_hi_hz: [f64::NAN; RUN_LANES],
+            gain_db: [f64::NAN; RUN_LANES],
+            atten_db: [f64::NAN; RUN_LANES],
+        };
+        let mut mc = MonteCarlo {
+            rng: Xoshiro256PlusPlus::seed_from_u64(settings.seed),
+            nominal_values,
+            spread,
+            drawn,
+            stages: runs,
+            x_eval,
+            n_grid,
+            ref_idx,
+            lo_bound,
+            hi_bound,
+            stop_weight,
+            has_mask: mask.is_some(),
+            has_stop,
+            w_g,
+            width,
+            isa: Isa::detect(),
+            batch,
+            done: 0,
+            n_pass: 0,
+            env_min: vec![[f64::INFINITY; RUN_LANES]; n_grid],
+            env_max: vec![[0.0; RUN_LANES]; n_grid],
+            samples_h2: Vec::new(),
+            curves: Vec::new(),
+            cut_lo: Vec::with_capacity(runs_total),
+            cut_hi: Vec::with_capacity(runs_total),
+            gain_db: Vec::with_capacity(runs_total),
+            atten_db: Vec::with_capacity(runs_total),
+            stage_f0: vec![Vec::with_capacity(runs_total); n_stages],
+            stage_q: vec![Vec::with_capacity(runs_total); n_stages],
+            nominal: RunResult::default(),
+            nominal_h2: Vec::new(),
+            nominal_f0q: Vec::new(),
+            fallbacks: 0,
+            cutoff_level: {
+                let CutoffDefinition::Attenuation { db } = settings.cutoff;
+                g2 * 10f64.powf(-db / 10.0)
+            },
+            settings,
+        };
+        // The nominal board: the same path, in lane 0, with every part at its nominal value.
+        mc.batch.active[0] = true;
+        mc.run_batch(None);
+        if mc.batch.failed[0] {
+            return Err(AnalysisError::Singular("a stage of a tolerance run".into()));
+        }
+        let b = &mc.batch;
+        mc.nominal = RunResult {
+            cut_lo_hz: b.cut_lo_hz[0],
+            cut_hi_hz: b.cut_hi_hz[0],
+            gain_db: b.gain_db[0],
+            atten_db: b.atten_db[0],
+        };
+        mc.nominal_h2 = b.h2[..n_grid].iter().map(|v| v[0]).collect();
+        mc.nominal_f0q = b.w0.iter().zip(&b.q).map(|(w, q)| (w[0], q[0])).collect();
+        Ok(mc)
+    }
+}
