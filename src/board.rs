@@ -24,12 +24,12 @@
 //! Inverting stages (multiple feedback) set any gain by a part ratio at no cost, so their gains
 //! are left as the synthesis spread them; the overall gain is unchanged either way.
 
+use crate::choices::Rounding;
 use crate::error::InputError;
 use crate::eseries::{PartClass, Series};
-use crate::choices::Rounding;
 use crate::netlist::{Node, Part, PartKind, StageNetlist};
 use crate::opamp::OpAmp;
-use crate::sections::Section;
+use crate::section::Section;
 use crate::topology::{self, Circuit, Freedoms, Target, Topology};
 use crate::units::format_si_unit;
 use serde::Serialize;

@@ -22,11 +22,11 @@ pub mod mfb;
 pub mod sallen_key;
 pub mod search;
 
+use crate::choices::Rounding;
 use crate::error::InputError;
 use crate::eseries::{PartClass, Series};
-use crate::choices::Rounding;
 use crate::netlist::{Node, Part, StageNetlist};
-use crate::sections::{Section, SectionKind};
+use crate::section::{Section, SectionKind};
 use serde::Serialize;
 use std::f64::consts::PI;
 
