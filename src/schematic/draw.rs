@@ -8,7 +8,7 @@ use plotters::style::{FontStyle, RGBAColor};
 use super::layouts::{Inputs, Layout, Slot, OPAMP_X, OPAMP_Y};
 use super::value_label;
 use crate::netlist::{Node, PartKind, StageNetlist};
-use crate::plot::figure::{backend_err, round, text_style, text_style_with, Coord};
+use crate::plot::render::{backend_err, round, text_style, text_style_with, Coord};
 use crate::plot::{Look, PlotError};
 
 struct Pen {

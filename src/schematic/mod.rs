@@ -21,7 +21,7 @@ use plotters::prelude::DrawingBackend;
 use serde::Serialize;
 
 use crate::netlist::{PartKind, StageNetlist};
-use crate::plot::figure::backend_err;
+use crate::plot::render::backend_err;
 use crate::plot::{Look, PlotError};
 use crate::units::format_si;
 use draw::{draw_layout, draw_list};
