@@ -15,7 +15,7 @@ use rolloff::analysis::tolerance::{
     RUN_LANES,
 };
 use rolloff::board::{Board, BuildChoices};
-use rolloff::sections::{Section, SectionKind};
+use rolloff::section::{Section, SectionKind};
 use rolloff::spec::{Edge, Mask, ResponseClass};
 use std::time::{Duration, Instant};
 

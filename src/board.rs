@@ -29,7 +29,7 @@ use crate::error::InputError;
 use crate::eseries::{PartClass, Series};
 use crate::netlist::{Node, Part, PartKind, StageNetlist};
 use crate::opamp::OpAmp;
-use crate::sections::Section;
+use crate::section::Section;
 use crate::topology::{self, Circuit, Freedoms, Target, Topology};
 use crate::units::format_si_unit;
 use serde::Serialize;
@@ -365,7 +365,7 @@ impl Board {
         // gain on the built board).
         let band_pass = sections
             .iter()
-            .any(|s| s.kind == crate::sections::SectionKind::BandPass);
+            .any(|s| s.kind == crate::section::SectionKind::BandPass);
         if gain < 0.0 && band_pass {
             self.warnings.push(format!(
                 "the board inverts (inverting stages: {})",

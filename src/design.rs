@@ -17,7 +17,8 @@ use crate::error::InputError;
 use crate::order;
 use crate::prototype::{self, Prototype};
 use crate::response;
-use crate::sections::{self, Section, StageOrder};
+use crate::section::Section;
+use crate::sections::{self, StageOrder};
 use crate::spec::{Edge, Family, MarginPlacement, Mask, OrderChoice, Requirement, ResponseClass};
 use crate::transform::{self, Band};
 

@@ -25,6 +25,7 @@ pub mod plot;
 pub mod prototype;
 pub mod response;
 pub mod schematic;
+pub mod section;
 pub mod sections;
 pub mod spec;
 pub mod topology;

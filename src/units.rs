@@ -9,7 +9,10 @@
 //!   without a space: `10 nF`, `4k7Ω`, `2 kHz`.
 //!
 //! Formatting goes the other way: [`format_si`] writes a value to a chosen number of significant
-//! digits with the prefix that keeps the mantissa in 1 ≤ m < 1000.
+//! digits with the prefix that keeps the mantissa in 1 ≤ m < 1000, and [`format_si_unit`] adds a
+//! unit after one space. They are the crate's one SI formatter (the plots' axis labels and
+//! readouts call them too): NaN is `–`, infinities `∞`, prefixes run from f to T, and the minus
+//! sign follows one rule, [`Minus`] (ASCII in text that is read back, U+2212 on figures).
 
 /// The SI prefixes we read and write, with their powers of ten.
 const PREFIXES: [(char, i32); 10] = [
@@ -128,18 +131,55 @@ fn parse_plain(text: &str) -> Option<f64> {
     text.parse::<f64>().ok()
 }
 
-/// Writes `value` with `digits` significant digits (1–15) and an SI prefix.
+/// Which minus sign a formatted negative value carries: the one rule of every SI formatter here.
 ///
-/// The mantissa stays in 1 ≤ |m| < 1000; trailing zeros are dropped (`4700` → `4.7k`,
-/// `2.2e-9` → `2.2n`, `1e-6` → `1µ`). Values outside 1e-15 … 1e15 use scientific notation; zero
-/// is `0`. Non-finite values are written as `∞`, `-∞` or `NaN`.
+/// Text that is read back or handed to other programs (links, the text report, the parts list,
+/// SPICE, CSV, error messages) writes the ASCII hyphen-minus, which [`parse_si`] and every tool
+/// read; text drawn on a figure or shown in a readout writes the typographic minus sign U+2212,
+/// which is as wide as a digit and as long as the plus sign (Unicode, "MINUS SIGN"). The choice
+/// applies to every minus in the text, the mantissa's and an exponent's.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Minus {
+    /// `-` (U+002D): text that is read back.
+    Ascii,
+    /// `−` (U+2212): text that is only read by people (figures, readouts).
+    Typographic,
+}
+
+/// What [`format_si`] writes for NaN: an en dash, "no value", in every style.
+pub const NOT_A_NUMBER: &str = "–";
+
+/// Writes `value` with `digits` significant digits (1–15) and an SI prefix, with the ASCII minus
+/// ([`Minus::Ascii`], so [`parse_si`] reads it back).
+///
+/// The mantissa stays in 1 ≤ |m| < 1000 with a prefix from f (1e-15) to T (1e12); trailing zeros
+/// are dropped (`4700` → `4.7k`, `2.2e-9` → `2.2n`, `1e-6` → `1µ`, `999.96` at 4 digits → `1k`).
+/// Values below 1e-15 or from 1e15 up use scientific notation (`1.5e15`); zero is `0`; infinities
+/// are `∞` and `-∞`; NaN is [`NOT_A_NUMBER`] (`–`).
 pub fn format_si(value: f64, digits: usize) -> String {
+    format_si_with(value, digits, Minus::Ascii)
+}
+
+/// [`format_si`] with the minus sign chosen by `minus`: the one SI formatter of the crate.
+///
+/// The value is first rounded to `digits` significant digits in decimal (so `999.96` at four
+/// digits is `1k`, not `1000`), then the prefix is chosen from the rounded value.
+pub fn format_si_with(value: f64, digits: usize, minus: Minus) -> String {
+    let text = format_si_ascii(value, digits);
+    match minus {
+        Minus::Ascii => text,
+        Minus::Typographic => text.replace('-', "−"),
+    }
+}
+
+/// The formatter itself, with ASCII minus signs.
+fn format_si_ascii(value: f64, digits: usize) -> String {
     let digits = digits.clamp(1, 15);
     if value == 0.0 {
         return "0".into();
     }
     if value.is_nan() {
-        return "NaN".into();
+        return NOT_A_NUMBER.into();
     }
     if value.is_infinite() {
         return if value > 0.0 {
@@ -180,11 +220,20 @@ pub fn format_si(value: f64, digits: usize) -> String {
 
 /// A value in engineering notation with its unit, prefix and unit together after one space:
 /// `14.7 kΩ`, `22 nF`, `470 Ω`, `1.59 kHz` ([`format_si`]: up to `digits` significant digits,
-/// trailing zeros dropped).
+/// trailing zeros dropped, ASCII minus). An empty unit gives the number and prefix alone (`4.7k`).
 pub fn format_si_unit(value: f64, digits: usize, unit: &str) -> String {
-    let text = format_si(value, digits);
+    format_si_unit_with(value, digits, unit, Minus::Ascii)
+}
+
+/// [`format_si_unit`] with the minus sign chosen by `minus` (figures and readouts use
+/// [`Minus::Typographic`]).
+pub fn format_si_unit_with(value: f64, digits: usize, unit: &str, minus: Minus) -> String {
+    let text = format_si_with(value, digits, minus);
+    if unit.is_empty() {
+        return text;
+    }
     match text.chars().last() {
-        Some(c) if "fpnuµmkMGT".contains(c) => {
+        Some(c) if "fpnµmkMGT".contains(c) => {
             let number = &text[..text.len() - c.len_utf8()];
             format!("{number} {c}{unit}")
         }
@@ -272,6 +321,54 @@ mod tests {
         assert_eq!(format_si(-0.5, 3), "-500m");
         assert_eq!(format_si(0.0, 3), "0");
         assert_eq!(format_si(12.0, 3), "12");
+    }
+
+    #[test]
+    fn negatives_take_the_minus_of_their_style() {
+        // ASCII hyphen-minus U+002D for text read back; MINUS SIGN U+2212 for figures (Unicode).
+        assert_eq!(format_si(-4700.0, 3), "-4.7k");
+        assert_eq!(format_si_with(-4700.0, 3, Minus::Typographic), "−4.7k");
+        assert_eq!(format_si_with(-0.25, 3, Minus::Typographic), "−250m");
+        assert_eq!(format_si_unit(-20.0, 3, "dB"), "-20 dB");
+        assert_eq!(
+            format_si_unit_with(-2.2e-9, 3, "F", Minus::Typographic),
+            "−2.2 nF"
+        );
+        // The exponent of the scientific form follows the same rule.
+        assert_eq!(format_si(-1.5e-18, 3), "-1.5e-18");
+        assert_eq!(format_si_with(-1.5e-18, 3, Minus::Typographic), "−1.5e−18");
+    }
+
+    #[test]
+    fn round_values_and_the_t_prefix() {
+        // SI prefixes (BIPM SI brochure, table 7): k = 1e3, M = 1e6, G = 1e9, T = 1e12,
+        // f = 1e-15; outside f … T the scientific form.
+        assert_eq!(format_si(1000.0, 3), "1k");
+        assert_eq!(format_si(1.5e6, 3), "1.5M");
+        assert_eq!(format_si(2.0e9, 3), "2G");
+        assert_eq!(format_si(1.0e12, 3), "1T");
+        assert_eq!(format_si(999.96e9, 4), "1T");
+        assert_eq!(format_si(4.7e-15, 3), "4.7f");
+        assert_eq!(format_si(1.5e15, 3), "1.5e15");
+        assert_eq!(format_si(123.456, 4), "123.5");
+        assert_eq!(format_si_unit(3.3e12, 3, "Hz"), "3.3 THz");
+        assert_eq!(format_si_unit(4700.0, 3, ""), "4.7k");
+        assert_eq!(format_si_unit(470.0, 3, ""), "470");
+    }
+
+    #[test]
+    fn nan_is_a_dash_and_infinities_are_signed() {
+        // IEEE 754 non-finite values: NaN has no value to show (en dash), ±∞ keep their sign.
+        assert_eq!(format_si(f64::NAN, 3), "–");
+        assert_eq!(format_si_with(f64::NAN, 3, Minus::Typographic), "–");
+        assert_eq!(format_si(f64::INFINITY, 3), "∞");
+        assert_eq!(format_si(f64::NEG_INFINITY, 3), "-∞");
+        assert_eq!(
+            format_si_with(f64::NEG_INFINITY, 3, Minus::Typographic),
+            "−∞"
+        );
+        assert_eq!(format_si_unit(f64::NAN, 3, "Hz"), "– Hz");
+        assert_eq!(format_si_unit(f64::INFINITY, 3, "Ω"), "∞ Ω");
     }
 
     #[test]

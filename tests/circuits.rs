@@ -18,7 +18,7 @@ use rolloff::eseries::{PartClass, Series};
 use rolloff::mna::{self, Drive};
 use rolloff::netlist::{Part, PartKind, StageNetlist};
 use rolloff::opamp::OpAmp;
-use rolloff::sections::{Section, SectionKind};
+use rolloff::section::{Section, SectionKind};
 use rolloff::topology::{Circuit, Topology};
 use std::f64::consts::{FRAC_1_SQRT_2, PI};
 

@@ -17,7 +17,7 @@ use rolloff::board::{Board, BuildChoices};
 use rolloff::export::spice::{self, AcSweep};
 use rolloff::mna;
 use rolloff::opamp::OpAmp;
-use rolloff::sections::{Section, SectionKind};
+use rolloff::section::{Section, SectionKind};
 use rolloff::topology::Topology;
 use std::path::PathBuf;
 use std::process::Command;

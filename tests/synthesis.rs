@@ -16,7 +16,8 @@ use rolloff::design::{synthesize, Synthesis};
 use rolloff::order::{self, OrderError};
 use rolloff::prototype::{self, Prototype};
 use rolloff::response;
-use rolloff::sections::{Section, SectionKind, StageOrder};
+use rolloff::section::{Section, SectionKind};
+use rolloff::sections::StageOrder;
 use rolloff::spec::{Edge, Family, MarginPlacement, Mask, OrderChoice, Requirement, ResponseClass};
 use serde_json::Value;
 

@@ -15,7 +15,7 @@ use super::roots::dominant_w0_q;
 use crate::board::Board;
 use crate::netlist::StageNetlist;
 use crate::opamp::OpAmp;
-use crate::sections::Section;
+use crate::section::Section;
 use num_complex::Complex64;
 use serde::Serialize;
 use std::f64::consts::PI;

@@ -1,11 +1,14 @@
 //! Plot axes: the map from data to pixels (linear or logarithmic), tick placement and the
-//! engineering-notation tick labels.
+//! engineering-notation tick labels (written by the crate's one SI formatter,
+//! [`crate::units::format_si_with`], with the typographic minus of figures).
 //!
 //! Tick placement follows common practice for engineering plots: a linear axis steps by 1, 2 or 5
 //! times a power of ten; a logarithmic axis labels every decade and draws unlabelled grid lines at
 //! 2 … 9 within each decade (1-2-5 labels when the axis spans less than about two decades).
 
 use serde::Serialize;
+
+use crate::units::{format_si_unit_with, format_si_with, Minus};
 
 /// How data values map onto an axis.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
@@ -261,74 +264,20 @@ fn log_ticks(min: f64, max: f64, format: TickFormat, allow_125: bool) -> Vec<Tic
     ticks
 }
 
-/// Formats `value` in engineering notation with `digits` significant digits and an SI prefix
-/// (f p n µ m – k M G T), trimming trailing zeros: 1000 → "1k", 2.2e-9 → "2.2n", 0 → "0".
+/// Formats `value` for a figure in engineering notation with `digits` significant digits and an
+/// SI prefix (f p n µ m – k M G T), trimming trailing zeros: 1000 → "1k", 2.2e-9 → "2.2n",
+/// 0 → "0", −0.25 → "−250m". A thin wrapper: [`crate::units::format_si_with`] with the
+/// typographic minus ([`Minus::Typographic`]), NaN as "–".
 pub fn engineering(value: f64, digits: usize) -> String {
-    if value == 0.0 {
-        return "0".to_string();
-    }
-    if !value.is_finite() {
-        return if value.is_nan() {
-            "–".to_string()
-        } else if value > 0.0 {
-            "∞".to_string()
-        } else {
-            "−∞".to_string()
-        };
-    }
-    const PREFIXES: [&str; 9] = ["f", "p", "n", "µ", "m", "", "k", "M", "G"];
-    let magnitude = value.abs();
-    let mut group = (magnitude.log10() / 3.0).floor() as i32;
-    group = group.clamp(-5, 3);
-    let mut scaled = magnitude / 10f64.powi(group * 3);
-    // Rounding can carry 999.96 into 1000: move to the next prefix then.
-    let digits = digits.max(1);
-    let int_digits = if scaled >= 100.0 {
-        3
-    } else if scaled >= 10.0 {
-        2
-    } else {
-        1
-    };
-    let decimals = digits.saturating_sub(int_digits);
-    let rounded: f64 = format!("{scaled:.decimals$}").parse().unwrap_or(scaled);
-    if rounded >= 1000.0 && group < 3 {
-        group += 1;
-        scaled = magnitude / 10f64.powi(group * 3);
-    }
-    let int_digits = if scaled >= 100.0 {
-        3
-    } else if scaled >= 10.0 {
-        2
-    } else {
-        1
-    };
-    let decimals = digits.saturating_sub(int_digits);
-    let mut text = format!("{scaled:.decimals$}");
-    if text.contains('.') {
-        text = text.trim_end_matches('0').trim_end_matches('.').to_string();
-    }
-    let prefix = PREFIXES[(group + 5) as usize];
-    let sign = if value < 0.0 { "−" } else { "" };
-    format!("{sign}{text}{prefix}")
+    format_si_with(value, digits, Minus::Typographic)
 }
 
-/// Formats `value` in engineering notation followed by a space, the prefix and the unit, as the
-/// SI writes quantities: 2000 Hz → "2 kHz", 4990 Ω → "4.99 kΩ", 0.25 s → "250 ms". An empty unit
-/// gives the number with its prefix alone.
+/// Formats `value` for a figure in engineering notation followed by a space, the prefix and the
+/// unit, as the SI writes quantities: 2000 Hz → "2 kHz", 4990 Ω → "4.99 kΩ", 0.25 s → "250 ms". An
+/// empty unit gives the number with its prefix alone. A thin wrapper:
+/// [`crate::units::format_si_unit_with`] with the typographic minus.
 pub fn engineering_unit(value: f64, digits: usize, unit: &str) -> String {
-    let text = engineering(value, digits);
-    if unit.is_empty() {
-        return text;
-    }
-    // The prefix is the trailing letter, when there is one.
-    match text.chars().last() {
-        Some(c) if c.is_alphabetic() && !matches!(c, '∞') => {
-            let number = &text[..text.len() - c.len_utf8()];
-            format!("{number} {c}{unit}")
-        }
-        _ => format!("{text} {unit}"),
-    }
+    format_si_unit_with(value, digits, unit, Minus::Typographic)
 }
 
 /// A plain readout value (dB, degrees): three decimals below 10, two below 100, one above, so that

@@ -1,17 +1,24 @@
 //! Plots drawn by Rust, generic over the plotters backend (canvas in the browser, SVG natively).
 //!
 //! [`figure::Figure`] is a backend-free description of one plot (axes and layers);
-//! [`figure::draw`] renders it onto any [`plotters::prelude::DrawingBackend`] using only primitive
-//! calls, and [`figure::readout`] reads it back under a pointer for the crosshair. The look (colours
-//! for light and dark pages, line weights) lives here, so the page and the SVG files look alike.
+//! [`render::draw`] renders it onto any [`plotters::prelude::DrawingBackend`] using only primitive
+//! calls (each layer drawn by the private `layers` module), and [`crosshair::readout`] reads it
+//! back under a pointer for the crosshair. [`figures`] builds each family of plots from the
+//! analysis data; [`axis`] holds scales, ticks and readout numbers. The look (colours for light and
+//! dark pages, line weights) lives here, so the page and the SVG files look alike.
 
 pub mod axis;
+pub mod crosshair;
 pub mod figure;
 pub mod figures;
+mod layers;
+pub mod render;
 
 pub use axis::{Axis, Scale, TickFormat};
-pub use figure::{draw, readout, Figure, Layer, Orientation, Readout, Shape, Weight};
+pub use crosshair::{readout, Readout, ReadoutEntry};
+pub use figure::{Figure, Frame, Layer, Orientation, Shape, Weight};
 pub use figures::{PlotData, PlotKind};
+pub use render::draw;
 
 use plotters::prelude::RGBAColor;
 use serde::Serialize;

@@ -5,7 +5,7 @@ use num_complex::Complex64;
 use rolloff::board::{Board, BuildChoices};
 use rolloff::netlist::StageNetlist;
 use rolloff::opamp::OpAmp;
-use rolloff::sections::{Section, SectionKind};
+use rolloff::section::{Section, SectionKind};
 use rolloff::topology::Topology;
 use std::f64::consts::{FRAC_1_SQRT_2, PI};
 

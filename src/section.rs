@@ -1,0 +1,155 @@
+//! One section of the cascade and its own ideal response: what it passes, f0, Q, gain, and
+//! `H(jω)`, phase and group delay from its transfer function.
+//!
+//! A leaf: [`crate::sections`] (building and ordering sections) and [`crate::response`] (the
+//! cascade's response) both import it, and it imports neither. Phase and group delay are
+//! analytic: the denominator `w0² − ω² + jω·w0/Q` of a second-order section has a positive
+//! imaginary part for every `ω > 0`, so its argument runs continuously from 0 to π (a first-order
+//! `w0 + jω` from 0 to π/2), and `τ = −dφ/dω` is the derivative of that argument (see
+//! [`crate::response`] for the cascade).
+
+use num_complex::Complex64;
+use serde::Serialize;
+
+const TWO_PI: f64 = 2.0 * std::f64::consts::PI;
+
+/// What a section passes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub enum SectionKind {
+    /// H(s) = g·w0² / (s² + s·w0/Q + w0²), or g·w0 / (s + w0) for first order.
+    LowPass,
+    /// H(s) = g·s² / (s² + s·w0/Q + w0²), or g·s / (s + w0) for first order.
+    HighPass,
+    /// H(s) = g·(w0/Q)·s / (s² + s·w0/Q + w0²): gain g at f0. Second order only.
+    BandPass,
+}
+
+/// One section of the cascade.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Section {
+    /// What the section passes.
+    pub kind: SectionKind,
+    /// Natural frequency (second order) or pole frequency (first order), Hz.
+    pub f0_hz: f64,
+    /// Pole quality factor; `None` for a first-order section.
+    pub q: Option<f64>,
+    /// Passband gain, V/V, signed: DC gain (low-pass), high-frequency gain (high-pass), gain at f0
+    /// (band-pass).
+    pub gain: f64,
+}
+
+impl Section {
+    /// 1 or 2.
+    pub fn order(&self) -> usize {
+        if self.q.is_some() {
+            2
+        } else {
+            1
+        }
+    }
+
+    /// `H(jω)` of one section at `f_hz` (ω = 2π·f).
+    pub fn response(&self, f_hz: f64) -> Complex64 {
+        let w = TWO_PI * f_hz;
+        let w0 = TWO_PI * self.f0_hz;
+        let s = Complex64::new(0.0, w);
+        match self.q {
+            Some(q) => {
+                let den = s * s + s * (w0 / q) + w0 * w0;
+                let num = match self.kind {
+                    SectionKind::LowPass => Complex64::new(w0 * w0, 0.0),
+                    SectionKind::HighPass => s * s,
+                    SectionKind::BandPass => s * (w0 / q),
+                };
+                num * self.gain / den
+            }
+            None => {
+                let den = s + w0;
+                let num = match self.kind {
+                    SectionKind::LowPass => Complex64::new(w0, 0.0),
+                    // A first-order band-pass does not exist; a first-order section in a band-pass
+                    // cascade can only be a high-pass (s) piece, so treat it like one.
+                    SectionKind::HighPass | SectionKind::BandPass => s,
+                };
+                num * self.gain / den
+            }
+        }
+    }
+
+    /// Phase of one section at `f_hz`, radians, continuous in frequency (see the module docs).
+    pub fn phase_rad(&self, f_hz: f64) -> f64 {
+        let w = TWO_PI * f_hz;
+        let w0 = TWO_PI * self.f0_hz;
+        let (numerator, denominator) = match self.q {
+            Some(q) => {
+                let num = match self.kind {
+                    SectionKind::LowPass => 0.0,
+                    SectionKind::HighPass => std::f64::consts::PI,
+                    SectionKind::BandPass => std::f64::consts::FRAC_PI_2,
+                };
+                (num, (w * w0 / q).atan2(w0 * w0 - w * w))
+            }
+            None => {
+                let num = match self.kind {
+                    SectionKind::LowPass => 0.0,
+                    SectionKind::HighPass | SectionKind::BandPass => std::f64::consts::FRAC_PI_2,
+                };
+                (num, w.atan2(w0))
+            }
+        };
+        let sign = if self.gain < 0.0 {
+            -std::f64::consts::PI
+        } else {
+            0.0
+        };
+        numerator - denominator + sign
+    }
+
+    /// Group delay of one section at `f_hz`, seconds (analytic, see the module docs).
+    pub fn group_delay_s(&self, f_hz: f64) -> f64 {
+        let w = TWO_PI * f_hz;
+        let w0 = TWO_PI * self.f0_hz;
+        match self.q {
+            Some(q) => {
+                let a = w0 / q;
+                let re = w0 * w0 - w * w;
+                a * (w0 * w0 + w * w) / (re * re + a * a * w * w)
+            }
+            None => w0 / (w0 * w0 + w * w),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn sec(kind: SectionKind, q: Option<f64>) -> Section {
+        Section {
+            kind,
+            f0_hz: 1000.0,
+            q,
+            gain: 1.0,
+        }
+    }
+
+    #[test]
+    fn analytic_phase_agrees_with_complex_argument() {
+        // Naive oracle: arg H(jω) from the complex value, compared modulo 360°.
+        let kinds = [
+            sec(SectionKind::LowPass, Some(3.0)),
+            sec(SectionKind::HighPass, Some(0.6)),
+            sec(SectionKind::BandPass, Some(5.0)),
+            sec(SectionKind::LowPass, None),
+            sec(SectionKind::HighPass, None),
+        ];
+        for s in kinds {
+            for f in [1.0, 300.0, 999.0, 1000.0, 1001.0, 5e4] {
+                let analytic = s.phase_rad(f);
+                let direct = s.response(f).arg();
+                let diff = (analytic - direct).rem_euclid(2.0 * std::f64::consts::PI);
+                assert!(diff < 1e-9 || (2.0 * std::f64::consts::PI - diff) < 1e-9);
+            }
+        }
+    }
+}
