@@ -10,7 +10,7 @@
 //!
 //! The rows are in the order the writer puts the keys in a link.
 
-use super::write::number_text;
+use super::write::{band_text, edge_text, list_text, number_text};
 use super::{Distribution, LinkState, DEFAULT_APASS_DB, DEFAULT_RIPPLE_DB, FORMAT_VERSION};
 use crate::choices::Rounding;
 use crate::eseries::Series;
@@ -279,6 +279,22 @@ const DISTRIBUTIONS: [(&str, Distribution); 2] = [
 ];
 const DISTRIBUTION_NAMES: [&str; 2] = names(&DISTRIBUTIONS);
 
+const fn num(lo: f64, hi: f64, what: &'static str) -> Parse {
+    Parse::Number { lo, hi, what }
+}
+
+const fn num_or_ideal(lo: f64, hi: f64, what: &'static str) -> Parse {
+    Parse::NumberOrIdeal { lo, hi, what }
+}
+
+const fn int(lo: u64, hi: u64, what: &'static str) -> Parse {
+    Parse::Integer { lo, hi, what }
+}
+
+const fn parts_of(lo: f64, hi: f64, what: &'static str) -> Parse {
+    Parse::Parts { lo, hi, what }
+}
+
 /// The number a value carries (the reader only hands a row the value its parse makes).
 fn number(value: &Value) -> f64 {
     match value {
@@ -316,26 +332,6 @@ fn parts(value: Value) -> Vec<(String, f64)> {
     }
 }
 
-fn edge_text(edge: Edge) -> String {
-    match edge {
-        Edge::Single(f) => number_text(f),
-        Edge::Pair(lo, hi) => format!("{},{}", number_text(lo), number_text(hi)),
-    }
-}
-
-fn band_text(band: Option<(f64, f64)>) -> Option<String> {
-    band.map(|(lo, hi)| format!("{},{}", number_text(lo), number_text(hi)))
-}
-
-fn list_text(items: &[(String, f64)]) -> Option<String> {
-    let text = items
-        .iter()
-        .map(|(r, v)| format!("{r}:{}", number_text(*v)))
-        .collect::<Vec<_>>()
-        .join(",");
-    Some(text).filter(|t| !t.is_empty())
-}
-
 /// Every key, in the order the writer puts them in a link.
 pub(crate) const TABLE: [Row; 44] = [
     row(Key::V, "v", Parse::Version, None, |_| {
@@ -368,11 +364,7 @@ pub(crate) const TABLE: [Row; 44] = [
     row(
         Key::Ripple,
         "ripple",
-        Parse::Number {
-            lo: 0.01,
-            hi: 3.0,
-            what: "Chebyshev passband ripple in dB",
-        },
+        num(0.01, 3.0, "Chebyshev passband ripple in dB"),
         None,
         |s| match s.requirement.family {
             Family::Chebyshev { ripple_db } => Some(number_text(ripple_db)),
@@ -384,11 +376,7 @@ pub(crate) const TABLE: [Row; 44] = [
     row(
         Key::Order,
         "order",
-        Parse::Integer {
-            lo: 1,
-            hi: super::MAX_ORDER as u64,
-            what: "order",
-        },
+        int(1, super::MAX_ORDER as u64, "order"),
         None,
         |s| match s.requirement.order {
             OrderChoice::Fixed(n) => Some(n.to_string()),
@@ -396,26 +384,14 @@ pub(crate) const TABLE: [Row; 44] = [
         },
     )
     .always(),
-    row(
-        Key::Fc,
-        "fc",
-        Parse::Number {
-            lo: 1e-3,
-            hi: 1e9,
-            what: "cutoff in Hz",
-        },
-        None,
-        |s| s.requirement.fc_hz.map(number_text),
-    )
+    row(Key::Fc, "fc", num(1e-3, 1e9, "cutoff in Hz"), None, |s| {
+        s.requirement.fc_hz.map(number_text)
+    })
     .always(),
     row(
         Key::Bw,
         "bw",
-        Parse::Number {
-            lo: 1e-3,
-            hi: 1e9,
-            what: "bandwidth in Hz",
-        },
+        num(1e-3, 1e9, "bandwidth in Hz"),
         None,
         |s| s.requirement.bw_hz.map(number_text),
     )
@@ -428,11 +404,7 @@ pub(crate) const TABLE: [Row; 44] = [
     row(
         Key::PassLoss,
         "passloss",
-        Parse::Number {
-            lo: 1e-3,
-            hi: 20.0,
-            what: "attenuation allowed at the passband edge in dB",
-        },
+        num(1e-3, 20.0, "attenuation allowed at the passband edge in dB"),
         None,
         |s| s.requirement.mask.map(|m| number_text(m.apass_db)),
     )
@@ -447,11 +419,7 @@ pub(crate) const TABLE: [Row; 44] = [
     row(
         Key::StopDepth,
         "stopdepth",
-        Parse::Number {
-            lo: 1e-3,
-            hi: 300.0,
-            what: "attenuation required in the stopband in dB",
-        },
+        num(1e-3, 300.0, "attenuation required in the stopband in dB"),
         None,
         |s| s.requirement.mask.map(|m| number_text(m.astop_db)),
     )
@@ -467,44 +435,28 @@ pub(crate) const TABLE: [Row; 44] = [
     row(
         Key::Fsample,
         "fsample",
-        Parse::Number {
-            lo: 1e-3,
-            hi: 1e10,
-            what: "converter sample rate in Hz",
-        },
+        num(1e-3, 1e10, "converter sample rate in Hz"),
         None,
         |s| s.converter.map(|c| number_text(c.sample_rate_hz)),
     ),
     row(
         Key::Adcbits,
         "adcbits",
-        Parse::Integer {
-            lo: 1,
-            hi: 32,
-            what: "converter resolution in bits",
-        },
+        int(1, 32, "converter resolution in bits"),
         None,
         |s| s.converter.map(|c| c.bits.to_string()),
     ),
     row(
         Key::Fsignal,
         "fsignal",
-        Parse::Number {
-            lo: 1e-3,
-            hi: 1e10,
-            what: "signal bandwidth in Hz",
-        },
+        num(1e-3, 1e10, "signal bandwidth in Hz"),
         None,
         |s| s.converter.map(|c| number_text(c.signal_band_hz)),
     ),
     row(
         Key::Gain,
         "gain",
-        Parse::Number {
-            lo: -40.0,
-            hi: 60.0,
-            what: "overall passband gain in dB",
-        },
+        num(-40.0, 60.0, "overall passband gain in dB"),
         Some(|s, v| s.requirement.gain_db = number(&v)),
         |s| Some(number_text(s.requirement.gain_db)),
     ),
@@ -532,121 +484,77 @@ pub(crate) const TABLE: [Row; 44] = [
     row(
         Key::Rtol,
         "rtol",
-        Parse::Number {
-            lo: 0.0,
-            hi: 50.0,
-            what: "resistor tolerance in %",
-        },
+        num(0.0, 50.0, "resistor tolerance in %"),
         Some(|s, v| s.rtol_pct = number(&v)),
         |s| Some(number_text(s.rtol_pct)),
     ),
     row(
         Key::Ctol,
         "ctol",
-        Parse::Number {
-            lo: 0.0,
-            hi: 50.0,
-            what: "capacitor tolerance in %",
-        },
+        num(0.0, 50.0, "capacitor tolerance in %"),
         Some(|s, v| s.ctol_pct = number(&v)),
         |s| Some(number_text(s.ctol_pct)),
     ),
     row(
         Key::Gbw,
         "gbw",
-        Parse::NumberOrIdeal {
-            lo: 1.0,
-            hi: 1e11,
-            what: "op-amp gain-bandwidth in Hz (or ideal)",
-        },
+        num_or_ideal(1.0, 1e11, "op-amp gain-bandwidth in Hz (or ideal)"),
         Some(|s, v| s.op_amp.gbw_hz = number(&v)),
         |s| Some(number_text(s.op_amp.gbw_hz)),
     ),
     row(
         Key::A0,
         "a0",
-        Parse::NumberOrIdeal {
-            lo: 0.0,
-            hi: 300.0,
-            what: "op-amp open-loop DC gain in dB (or ideal)",
-        },
+        num_or_ideal(0.0, 300.0, "op-amp open-loop DC gain in dB (or ideal)"),
         Some(|s, v| s.op_amp.a0_db = number(&v)),
         |s| Some(number_text(s.op_amp.a0_db)),
     ),
     row(
         Key::Rout,
         "rout",
-        Parse::Number {
-            lo: 0.0,
-            hi: 1e5,
-            what: "op-amp output resistance in Ω",
-        },
+        num(0.0, 1e5, "op-amp output resistance in Ω"),
         Some(|s, v| s.op_amp.rout_ohm = number(&v)),
         |s| Some(number_text(s.op_amp.rout_ohm)),
     ),
     row(
         Key::Vnoise,
         "vnoise",
-        Parse::Number {
-            lo: 0.0,
-            hi: 1e-5,
-            what: "op-amp voltage noise in V/√Hz",
-        },
+        num(0.0, 1e-5, "op-amp voltage noise in V/√Hz"),
         Some(|s, v| s.op_amp.en_v_per_rthz = number(&v)),
         |s| Some(number_text(s.op_amp.en_v_per_rthz)),
     ),
     row(
         Key::Inoise,
         "inoise",
-        Parse::Number {
-            lo: 0.0,
-            hi: 1e-8,
-            what: "op-amp current noise in A/√Hz",
-        },
+        num(0.0, 1e-8, "op-amp current noise in A/√Hz"),
         Some(|s, v| s.op_amp.in_a_per_rthz = number(&v)),
         |s| Some(number_text(s.op_amp.in_a_per_rthz)),
     ),
     row(
         Key::Slew,
         "slew",
-        Parse::NumberOrIdeal {
-            lo: 1.0,
-            hi: 1e12,
-            what: "op-amp slew rate in V/s (or ideal)",
-        },
+        num_or_ideal(1.0, 1e12, "op-amp slew rate in V/s (or ideal)"),
         Some(|s, v| s.op_amp.slew_v_per_s = number(&v)),
         |s| Some(number_text(s.op_amp.slew_v_per_s)),
     ),
     row(
         Key::Rlevel,
         "rlevel",
-        Parse::Number {
-            lo: 10.0,
-            hi: 1e7,
-            what: "resistor impedance level in Ω",
-        },
+        num(10.0, 1e7, "resistor impedance level in Ω"),
         Some(|s, v| s.r_level_ohm = Some(number(&v))),
         |s| s.r_level_ohm.map(number_text),
     ),
     row(
         Key::Cratio,
         "cratio",
-        Parse::Number {
-            lo: 1e-3,
-            hi: 1e4,
-            what: "capacitor ratio",
-        },
+        num(1e-3, 1e4, "capacitor ratio"),
         Some(|s, v| s.c_ratio = Some(number(&v))),
         |s| s.c_ratio.map(number_text),
     ),
     row(
         Key::Rratio,
         "rratio",
-        Parse::Number {
-            lo: 1e-3,
-            hi: 1e4,
-            what: "resistor ratio",
-        },
+        num(1e-3, 1e4, "resistor ratio"),
         Some(|s, v| s.r_ratio = Some(number(&v))),
         |s| s.r_ratio.map(number_text),
     ),
@@ -660,22 +568,14 @@ pub(crate) const TABLE: [Row; 44] = [
     row(
         Key::Set,
         "set",
-        Parse::Parts {
-            lo: 1e-15,
-            hi: 1e9,
-            what: "a part value (Ω or F)",
-        },
+        parts_of(1e-15, 1e9, "a part value (Ω or F)"),
         Some(|s, v| s.overrides = parts(v)),
         |s| list_text(&s.overrides),
     ),
     row(
         Key::Tolset,
         "tolset",
-        Parse::Parts {
-            lo: 0.0,
-            hi: 50.0,
-            what: "a part tolerance in %",
-        },
+        parts_of(0.0, 50.0, "a part tolerance in %"),
         Some(|s, v| s.tolerance_overrides = parts(v)),
         |s| list_text(&s.tolerance_overrides),
     ),
@@ -703,22 +603,14 @@ pub(crate) const TABLE: [Row; 44] = [
     row(
         Key::Runs,
         "runs",
-        Parse::Integer {
-            lo: 1,
-            hi: 100_000,
-            what: "number of tolerance runs",
-        },
+        int(1, 100_000, "number of tolerance runs"),
         Some(|s, v| s.study.runs = integer(&v) as usize),
         |s| Some(s.study.runs.to_string()),
     ),
     row(
         Key::Seed,
         "seed",
-        Parse::Integer {
-            lo: 0,
-            hi: u64::MAX,
-            what: "random seed",
-        },
+        int(0, u64::MAX, "random seed"),
         Some(|s, v| s.study.seed = integer(&v)),
         |s| Some(s.study.seed.to_string()),
     ),
@@ -732,44 +624,28 @@ pub(crate) const TABLE: [Row; 44] = [
     row(
         Key::Sigmas,
         "sigmas",
-        Parse::Number {
-            lo: 1.0,
-            hi: 6.0,
-            what: "standard deviations spanned by the tolerance",
-        },
+        num(1.0, 6.0, "standard deviations spanned by the tolerance"),
         Some(|s, v| s.study.sigmas = number(&v)),
         |s| Some(number_text(s.study.sigmas)),
     ),
     row(
         Key::Vin,
         "vin",
-        Parse::Number {
-            lo: 1e-9,
-            hi: 1e3,
-            what: "input amplitude in V peak",
-        },
+        num(1e-9, 1e3, "input amplitude in V peak"),
         Some(|s, v| s.signal.vin_pk = number(&v)),
         |s| Some(number_text(s.signal.vin_pk)),
     ),
     row(
         Key::Swing,
         "swing",
-        Parse::Number {
-            lo: 1e-3,
-            hi: 1e3,
-            what: "op-amp output swing in V peak",
-        },
+        num(1e-3, 1e3, "op-amp output swing in V peak"),
         Some(|s, v| s.signal.swing_pk = number(&v)),
         |s| Some(number_text(s.signal.swing_pk)),
     ),
     row(
         Key::Drift,
         "drift",
-        Parse::Number {
-            lo: 0.01,
-            hi: 50.0,
-            what: "allowed f0 or Q drift in %",
-        },
+        num(0.01, 50.0, "allowed f0 or Q drift in %"),
         Some(|s, v| s.signal.drift_pct = number(&v)),
         |s| Some(number_text(s.signal.drift_pct)),
     ),

@@ -5,6 +5,7 @@
 
 use super::keys::{Row, Written, TABLE};
 use super::LinkState;
+use crate::spec::Edge;
 use crate::units::parse_si;
 
 /// Characters kept as they are in a written link: letters, digits, `-._~` and the `,` and `:`
@@ -39,6 +40,29 @@ pub(crate) fn number_text(value: f64) -> String {
     } else {
         format!("{value}")
     }
+}
+
+/// An edge as a link writes it: `1k`, or `2k,20k` for a pair.
+pub(crate) fn edge_text(edge: Edge) -> String {
+    match edge {
+        Edge::Single(f) => number_text(f),
+        Edge::Pair(lo, hi) => format!("{},{}", number_text(lo), number_text(hi)),
+    }
+}
+
+/// A `lo,hi` band, when there is one.
+pub(crate) fn band_text(band: Option<(f64, f64)>) -> Option<String> {
+    band.map(|(lo, hi)| format!("{},{}", number_text(lo), number_text(hi)))
+}
+
+/// `REF:value` pairs joined by commas, when there are any.
+pub(crate) fn list_text(items: &[(String, f64)]) -> Option<String> {
+    let text = items
+        .iter()
+        .map(|(r, v)| format!("{r}:{}", number_text(*v)))
+        .collect::<Vec<_>>()
+        .join(",");
+    Some(text).filter(|t| !t.is_empty())
 }
 
 /// The keys a link for `state` carries, with their texts, in the table's order.
