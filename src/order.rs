@@ -131,7 +131,9 @@ pub fn selectivity(class: ResponseClass, mask: &Mask) -> Result<f64, InputError>
             if fs <= fp {
                 return Err(InputError::new(
                     "stopedge",
-                    format!("a low-pass stopband edge must lie above passedge ({fp} Hz), got {fs} Hz"),
+                    format!(
+                        "a low-pass stopband edge must lie above passedge ({fp} Hz), got {fs} Hz"
+                    ),
                 ));
             }
             Ok(fs / fp)

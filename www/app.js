@@ -65,11 +65,11 @@
     return !!hit;
   }
 
-  /* The query string of the form: `v=1`, then every field that differs from its default, the
+  /* The query string of the form: `v=2`, then every field that differs from its default, the
    * order when it is fixed, and the parts typed over. */
   function readForm() {
     var params = new URLSearchParams();
-    params.set('v', '1');
+    params.set('v', '2');
     var mode = radioValue('ordermode');
     var seen = {};
     fields().forEach(function (el) {
@@ -95,6 +95,26 @@
       params.set('set', list.join(','));
     }
     return params.toString();
+  }
+
+  /* A version-1 link names the limits as v1 did (README, "Version 1 links"); the form's fields
+   * have the version-2 names. The core reads a link without `v` as version 1 when it names only
+   * v1 limits, and so does this. A stopgap until the form is filled from the core's form values. */
+  var V1_NAMES = { fpass: 'passedge', apass: 'passloss', fstop: 'stopedge', astop: 'stopdepth' };
+  function fieldNames(params) {
+    var oldNames = Object.keys(V1_NAMES);
+    var newNames = oldNames.map(function (k) { return V1_NAMES[k]; });
+    var has = function (k) { return params.has(k); };
+    var v = params.get('v');
+    if (!(v === '1' || (v === null && oldNames.some(has) && !newNames.some(has)))) return params;
+    // In a version-1 link the new names are unknown keys: they fill no field.
+    var out = new URLSearchParams();
+    params.forEach(function (value, key) {
+      if (V1_NAMES[key]) out.set(V1_NAMES[key], value);
+      else if (newNames.indexOf(key) < 0) out.append(key, value);
+    });
+    out.set('v', '2');
+    return out;
   }
 
   /* Puts a link's values into the form. Unknown keys and bad values are left to the core, which
@@ -126,7 +146,7 @@
         el.value = value;
       }
     });
-    var hasLimits = params.has('fpass') || params.has('fstop') || params.has('fsample');
+    var hasLimits = params.has('passedge') || params.has('stopedge') || params.has('fsample');
     setRadio('ordermode', params.has('order') || !hasLimits ? 'fixed' : 'limits');
     if (params.has('fsample') || params.has('adcbits') || params.has('fsignal')) $('#converter').open = true;
     var title = params.get('title');
@@ -580,7 +600,7 @@
     if (view.refused) {
       params = new URLSearchParams();
     }
-    applyQuery(params);
+    applyQuery(fieldNames(params));
     var refused = view.errors.slice();
     function resetFields(errors) {
       errors.forEach(function (error) {
