@@ -67,8 +67,8 @@ pub struct Synthesis {
 ///
 /// # Errors
 /// `order` (out of 1–20, odd for band-pass or Linkwitz-Riley, or absent with no mask), `ripple`,
-/// `fc`, `bw`, `gain`, the mask keys `fpass`, `apass`, `fstop`, `astop` (see
-/// [`order::selectivity`]; no order up to 20 is reported on `astop`), and `stageorder` (see
+/// `fc`, `bw`, `gain`, the mask keys `passedge`, `passloss`, `stopedge`, `stopdepth` (see
+/// [`order::selectivity`]; no order up to 20 is reported on `stopdepth`), and `stageorder` (see
 /// [`sections::arrange`]).
 pub fn synthesize(req: &Requirement, stage_order: &StageOrder) -> Result<Synthesis, InputError> {
     let mut warnings = Vec::new();
@@ -91,7 +91,7 @@ pub fn synthesize(req: &Requirement, stage_order: &StageOrder) -> Result<Synthes
             let mask = req.mask.as_ref().ok_or_else(|| {
                 InputError::new(
                     "order",
-                    "give an order (1–20), or a specification (fpass, apass, fstop, astop) \
+                    "give an order (1–20), or a specification (passedge, passloss, stopedge, stopdepth) \
                      from which the order follows",
                 )
             })?;
@@ -134,7 +134,7 @@ pub fn synthesize(req: &Requirement, stage_order: &StageOrder) -> Result<Synthes
             // panic, for a hand-built requirement.
             return Err(InputError::new(
                 "order",
-                "give an order (1–20), or a specification (fpass, apass, fstop, astop)",
+                "give an order (1–20), or a specification (passedge, passloss, stopedge, stopdepth)",
             ));
         }
     };
@@ -262,7 +262,7 @@ fn missing_band_error(class: ResponseClass, req: &Requirement) -> InputError {
         ),
         _ => InputError::new(
             "fc",
-            "a fixed order needs fc (cutoff, Hz), or a specification (fpass, apass, fstop, astop)",
+            "a fixed order needs fc (cutoff, Hz), or a specification (passedge, passloss, stopedge, stopdepth)",
         ),
     }
 }
@@ -324,7 +324,7 @@ pub fn band_from_mask(
         // selectivity() has already rejected every other combination.
         _ => {
             return Err(InputError::new(
-                "fpass",
+                "passedge",
                 "the passband edge does not match the response class",
             ))
         }
@@ -391,7 +391,7 @@ pub fn mask_misses(cascade: &[Section], mask: &Mask, gain_db: f64) -> Vec<String
         let a = response::attenuation_db(cascade, f, gain_db);
         if a > mask.apass_db + 1e-6 {
             out.push(format!(
-                "the passband edge {f} Hz is {a:.3} dB down, more than apass {} dB",
+                "the passband edge {f} Hz is {a:.3} dB down, more than passloss {} dB",
                 mask.apass_db
             ));
         }
@@ -400,7 +400,7 @@ pub fn mask_misses(cascade: &[Section], mask: &Mask, gain_db: f64) -> Vec<String
         let a = response::attenuation_db(cascade, f, gain_db);
         if a < mask.astop_db - 1e-6 {
             out.push(format!(
-                "the stopband edge {f} Hz is only {a:.3} dB down, less than astop {} dB",
+                "the stopband edge {f} Hz is only {a:.3} dB down, less than stopdepth {} dB",
                 mask.astop_db
             ));
         }

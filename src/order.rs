@@ -70,10 +70,10 @@ impl OrderError {
                     None => format!("needs more than order {limit}"),
                 };
                 InputError::new(
-                    "astop",
+                    "stopdepth",
                     format!(
-                        "{} {need} to reach astop at fstop, and orders above {limit} are not \
-                         designed; move fstop away from the passband, lower astop, raise apass, \
+                        "{} {need} to reach stopdepth at stopedge, and orders above {limit} are not \
+                         designed; move stopedge away from the passband, lower stopdepth, raise passloss, \
                          or set a fixed order",
                         family_name(*family)
                     ),
@@ -126,24 +126,26 @@ pub fn selectivity(class: ResponseClass, mask: &Mask) -> Result<f64, InputError>
     check_attenuations(mask)?;
     match (class, mask.pass, mask.stop) {
         (ResponseClass::LowPass, Edge::Single(fp), Edge::Single(fs)) => {
-            check_frequency("fpass", fp)?;
-            check_frequency("fstop", fs)?;
+            check_frequency("passedge", fp)?;
+            check_frequency("stopedge", fs)?;
             if fs <= fp {
                 return Err(InputError::new(
-                    "fstop",
-                    format!("a low-pass stopband edge must lie above fpass ({fp} Hz), got {fs} Hz"),
+                    "stopedge",
+                    format!(
+                        "a low-pass stopband edge must lie above passedge ({fp} Hz), got {fs} Hz"
+                    ),
                 ));
             }
             Ok(fs / fp)
         }
         (ResponseClass::HighPass, Edge::Single(fp), Edge::Single(fs)) => {
-            check_frequency("fpass", fp)?;
-            check_frequency("fstop", fs)?;
+            check_frequency("passedge", fp)?;
+            check_frequency("stopedge", fs)?;
             if fs >= fp {
                 return Err(InputError::new(
-                    "fstop",
+                    "stopedge",
                     format!(
-                        "a high-pass stopband edge must lie below fpass ({fp} Hz), got {fs} Hz"
+                        "a high-pass stopband edge must lie below passedge ({fp} Hz), got {fs} Hz"
                     ),
                 ));
             }
@@ -151,22 +153,22 @@ pub fn selectivity(class: ResponseClass, mask: &Mask) -> Result<f64, InputError>
         }
         (ResponseClass::BandPass, Edge::Pair(p_lo, p_hi), Edge::Pair(s_lo, s_hi)) => {
             for (key, f) in [
-                ("fpass", p_lo),
-                ("fpass", p_hi),
-                ("fstop", s_lo),
-                ("fstop", s_hi),
+                ("passedge", p_lo),
+                ("passedge", p_hi),
+                ("stopedge", s_lo),
+                ("stopedge", s_hi),
             ] {
                 check_frequency(key, f)?;
             }
             if p_lo >= p_hi {
                 return Err(InputError::new(
-                    "fpass",
+                    "passedge",
                     format!("band-pass edges must be lo,hi with lo < hi, got {p_lo},{p_hi}"),
                 ));
             }
             if !(s_lo < p_lo && s_hi > p_hi) {
                 return Err(InputError::new(
-                    "fstop",
+                    "stopedge",
                     format!(
                         "band-pass stopband edges must lie outside the passband \
                          ({p_lo}–{p_hi} Hz): lo below {p_lo} Hz, hi above {p_hi} Hz; got \
@@ -180,19 +182,19 @@ pub fn selectivity(class: ResponseClass, mask: &Mask) -> Result<f64, InputError>
         }
         (ResponseClass::BandPass, _, _) => Err(InputError::new(
             if matches!(mask.pass, Edge::Pair(..)) {
-                "fstop"
+                "stopedge"
             } else {
-                "fpass"
+                "passedge"
             },
-            "a band-pass mask needs two edges, lo,hi, for fpass and for fstop",
+            "a band-pass mask needs two edges, lo,hi, for passedge and for stopedge",
         )),
         (_, _, _) => Err(InputError::new(
             if matches!(mask.pass, Edge::Single(_)) {
-                "fstop"
+                "stopedge"
             } else {
-                "fpass"
+                "passedge"
             },
-            "a low-pass or high-pass mask needs one frequency for fpass and one for fstop",
+            "a low-pass or high-pass mask needs one frequency for passedge and one for stopedge",
         )),
     }
 }
@@ -211,18 +213,18 @@ fn check_frequency(key: &str, f: f64) -> Result<(), InputError> {
 fn check_attenuations(mask: &Mask) -> Result<(), InputError> {
     if !(mask.apass_db.is_finite() && mask.apass_db > 0.0) {
         return Err(InputError::new(
-            "apass",
+            "passloss",
             format!(
-                "apass must be a positive attenuation in dB, got {}",
+                "passloss must be a positive attenuation in dB, got {}",
                 mask.apass_db
             ),
         ));
     }
     if !(mask.astop_db.is_finite() && mask.astop_db > mask.apass_db) {
         return Err(InputError::new(
-            "astop",
+            "stopdepth",
             format!(
-                "astop must be a finite attenuation above apass ({} dB), got {}",
+                "stopdepth must be a finite attenuation above passloss ({} dB), got {}",
                 mask.apass_db, mask.astop_db
             ),
         ));
@@ -295,8 +297,8 @@ pub fn min_order(
                 Err(OrderError::Input(InputError::new(
                     "ripple",
                     format!(
-                        "ripple {ripple_db} dB is larger than apass {} dB, so the passband \
-                         ripple alone breaks the mask; set ripple at most apass",
+                        "ripple {ripple_db} dB is larger than passloss {} dB, so the passband \
+                         ripple alone breaks the mask; set ripple at most passloss",
                         mask.apass_db
                     ),
                 )))
@@ -392,17 +394,17 @@ mod tests {
     fn bad_masks_name_their_key() {
         let lp = ResponseClass::LowPass;
         let key = |m: Mask, c| selectivity(c, &m).unwrap_err().key;
-        assert_eq!(key(lp_mask(1e3, 500.0, 1.0, 40.0), lp), "fstop");
-        assert_eq!(key(lp_mask(1e3, 2e3, 0.0, 40.0), lp), "apass");
-        assert_eq!(key(lp_mask(1e3, 2e3, 3.0, 2.0), lp), "astop");
-        assert_eq!(key(lp_mask(f64::NAN, 2e3, 1.0, 40.0), lp), "fpass");
+        assert_eq!(key(lp_mask(1e3, 500.0, 1.0, 40.0), lp), "stopedge");
+        assert_eq!(key(lp_mask(1e3, 2e3, 0.0, 40.0), lp), "passloss");
+        assert_eq!(key(lp_mask(1e3, 2e3, 3.0, 2.0), lp), "stopdepth");
+        assert_eq!(key(lp_mask(f64::NAN, 2e3, 1.0, 40.0), lp), "passedge");
         assert_eq!(
             key(lp_mask(1e3, 2e3, 1.0, 40.0), ResponseClass::HighPass),
-            "fstop"
+            "stopedge"
         );
         assert_eq!(
             key(lp_mask(1e3, 2e3, 1.0, 40.0), ResponseClass::BandPass),
-            "fpass"
+            "passedge"
         );
     }
 
@@ -413,8 +415,8 @@ mod tests {
             let err = row.result.unwrap_err();
             assert!(matches!(err, OrderError::AboveLimit { .. }), "{err:?}");
             let input = err.to_input_error();
-            assert_eq!(input.key, "astop");
-            assert!(input.message.contains("fstop") && input.message.contains("order"));
+            assert_eq!(input.key, "stopdepth");
+            assert!(input.message.contains("stopedge") && input.message.contains("order"));
         }
     }
 

@@ -72,13 +72,13 @@ pub enum Edge {
 /// the passband gain.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct Mask {
-    /// Passband edge (`fpass`).
+    /// Passband edge (link key `passedge`).
     pub pass: Edge,
-    /// Largest attenuation allowed anywhere in the passband, dB (`apass`).
+    /// Largest attenuation allowed anywhere in the passband, dB (`passloss`).
     pub apass_db: f64,
-    /// Stopband edge (`fstop`).
+    /// Stopband edge (`stopedge`).
     pub stop: Edge,
-    /// Smallest attenuation required anywhere in the stopband, dB (`astop`).
+    /// Smallest attenuation required anywhere in the stopband, dB (`stopdepth`).
     pub astop_db: f64,
 }
 

@@ -1709,7 +1709,7 @@ fn demo_links_design_without_error() {
     // ideal op amp equals the product of the synthesis' section gains (1e-9), so the gain
     // placement changes nothing overall.
     for link in [
-        "?v=1&title=Audio+band+edge&resp=lp&family=chebyshev&fpass=20k&apass=0.5&fstop=40k&astop=50",
+        "?v=2&title=Audio+band+edge&resp=lp&family=chebyshev&passedge=20k&passloss=0.5&stopedge=40k&stopdepth=50",
         "?v=1&resp=lp&family=chebyshev&fpass=20k&apass=0.5&fstop=40k&astop=50",
         "?v=1&resp=hp&family=chebyshev&ripple=1&order=4&fc=300",
         "?v=1&resp=lp&family=chebyshev&ripple=3&order=2&fc=1k&gain=-6",

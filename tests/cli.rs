@@ -59,7 +59,7 @@ fn design_json_has_the_fields_of_the_brief() {
 
 #[test]
 fn first_order_stage_has_null_q() {
-    let v = json(&["design", "?v=1&order=3&fc=1k", "--format", "json"]);
+    let v = json(&["design", "?v=2&order=3&fc=1k", "--format", "json"]);
     let stages = v["stages"].as_array().expect("stages");
     assert_eq!(
         stages[0]["order"], 1,
@@ -118,7 +118,7 @@ fn ideal_sweep_equals_the_section_cascade() {
 fn built_sweep_differs_from_ideal_where_the_op_amp_runs_out() {
     // Common practice: with a 1 MHz op amp a Sallen-Key low-pass at 20 kHz no longer follows the
     // ideal response far above f0 (its stopband bottoms out).
-    let link = "?v=1&order=2&fc=20k&gbw=1M";
+    let link = "?v=2&order=2&fc=20k&gbw=1M";
     let read = |ideal: bool| -> Vec<f64> {
         let mut args = vec!["sweep", link, "--from", "1M", "--to", "5M", "--points", "3"];
         if ideal {
@@ -143,16 +143,32 @@ fn bad_input_exits_2_with_one_line_naming_the_key() {
     for (args, key) in [
         (vec!["design", "?v=1&fc=abc"], "fc"),
         (vec!["design", "?v=1&order=25"], "order"),
-        (vec!["design", "?v=1&fpass=2k&fstop=1k&astop=40"], "fstop"),
+        // A version-1 link's limits are reported under their version-2 names (README, "Version
+        // 1 links").
+        (
+            vec!["design", "?v=1&fpass=2k&fstop=1k&astop=40"],
+            "stopedge",
+        ),
         (
             vec!["design", "?v=1&fpass=1k&fstop=2k&apass=3&astop=2"],
-            "astop",
+            "stopdepth",
+        ),
+        (
+            vec!["design", "?v=2&passedge=2k&stopedge=1k&stopdepth=40"],
+            "stopedge",
+        ),
+        (
+            vec![
+                "design",
+                "?v=2&passedge=1k&stopedge=2k&passloss=3&stopdepth=2",
+            ],
+            "stopdepth",
         ),
         (vec!["design", "?v=1&set=R1:xyz"], "set"),
         (vec!["design", "?v=1", "--format", "pdf"], "--format"),
         (vec!["sweep", "?v=1", "--points", "1"], "--points"),
         (vec!["spread", "?v=1", "--runs", "0"], "--runs"),
-        (vec!["design", "?v=2"], "v"),
+        (vec!["design", "?v=3"], "v"),
     ] {
         let (code, _out, err) = rolloff(&args);
         assert_eq!(code, 2, "{args:?}: {err}");
@@ -245,7 +261,7 @@ fn design_json_carries_the_analyses_of_the_built_board() {
 
 #[test]
 fn plot_writes_an_svg_for_every_kind_and_refuses_an_unknown_one() {
-    let link = "?v=1&order=4&fc=1k&fpass=800&fstop=4k&astop=30";
+    let link = "?v=2&order=4&fc=1k&passedge=800&stopedge=4k&stopdepth=30";
     for kind in [
         "magnitude",
         "phase",
@@ -279,7 +295,7 @@ fn plot_writes_an_svg_for_every_kind_and_refuses_an_unknown_one() {
 /// the key and the accepted values).
 #[test]
 fn margin_takes_split_pass_or_stop() {
-    let mask = "?v=1&fpass=1k&apass=1&fstop=3k&astop=40";
+    let mask = "?v=2&passedge=1k&passloss=1&stopedge=3k&stopdepth=40";
     for value in ["split", "pass", "stop"] {
         let (code, _out, err) = rolloff(&["design", &format!("{mask}&margin={value}")]);
         assert_eq!(code, 0, "margin={value}: {err}");

@@ -154,7 +154,15 @@ fn nothing_below_the_composer_reads_the_link_or_the_faces() {
         &g,
         CORE,
         &[
-            "link", "pipeline", "app", "export", "plot", "schematic", "cli", "wasm", "canvas",
+            "link",
+            "pipeline",
+            "app",
+            "export",
+            "plot",
+            "schematic",
+            "cli",
+            "wasm",
+            "canvas",
         ],
     );
     assert!(found.is_empty(), "the core reaches up: {found:#?}");
@@ -200,9 +208,8 @@ fn no_import_circles() {
     // A circle between a module and its own children is a module's inside (mod.rs and its
     // files); any other circle means a shared type lives in the wrong place.
     let g = graph();
-    let related = |a: &str, b: &str| {
-        a.starts_with(&format!("{b}::")) || b.starts_with(&format!("{a}::"))
-    };
+    let related =
+        |a: &str, b: &str| a.starts_with(&format!("{b}::")) || b.starts_with(&format!("{a}::"));
     let mut circles = Vec::new();
     for start in g.keys() {
         // Depth-first search for a path back to `start`.

@@ -658,7 +658,7 @@ fn random_masks_are_met_at_minimal_order() {
             let syn = match synthesize(&req, &StageOrder::AscendingQ) {
                 Ok(s) => s,
                 Err(e) => {
-                    assert_eq!(e.key, "astop", "{label}: {e}");
+                    assert_eq!(e.key, "stopdepth", "{label}: {e}");
                     match order::min_order(family, class, &mask) {
                         Err(OrderError::AboveLimit {
                             needed: Some(n), ..

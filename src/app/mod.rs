@@ -532,38 +532,15 @@ pub fn form_of_link(query: &str, form_keys: &[&str]) -> FormFill {
     }
 }
 
-/// The default of every key that has a plain default value, as the form's placeholders show it:
-/// an empty field leaves the key to the core, which uses this value.
+/// The default of every key that has one, as the form's placeholders show it
+/// ([`link::defaults`], the link table's own defaults): an empty field leaves the key to the core,
+/// which uses this value. Keys without a default (`title`, the limits, `set` …) are left out.
 pub fn form_defaults() -> Vec<(String, String)> {
-    let d = LinkState::default();
-    let n = |v: f64| crate::units::format_si(v, 6).replace('µ', "u");
-    let order = match d.requirement.order {
-        crate::spec::OrderChoice::Fixed(k) => k.to_string(),
-        crate::spec::OrderChoice::FromMask => String::new(),
-    };
-    let mut out = vec![
-        ("order", order),
-        ("fc", n(d.requirement.fc_hz.unwrap_or(link::DEFAULT_FC_HZ))),
-        ("gain", n(d.requirement.gain_db)),
-        ("ripple", "0.5".to_string()),
-        ("apass", n(link::DEFAULT_APASS_DB)),
-        ("rtol", n(d.rtol_pct)),
-        ("ctol", n(d.ctol_pct)),
-        ("gbw", n(d.op_amp.gbw_hz)),
-        ("a0", n(d.op_amp.a0_db)),
-        ("rout", n(d.op_amp.rout_ohm)),
-        ("slew", n(d.op_amp.slew_v_per_s)),
-        ("vnoise", n(d.op_amp.en_v_per_rthz)),
-        ("inoise", n(d.op_amp.in_a_per_rthz)),
-        ("vin", n(d.signal.vin_pk)),
-        ("swing", n(d.signal.swing_pk)),
-        ("drift", n(d.signal.drift_pct)),
-        ("runs", d.study.runs.to_string()),
-        ("seed", d.study.seed.to_string()),
-        ("sigmas", n(d.study.sigmas)),
-    ];
-    out.retain(|(_, v)| !v.is_empty());
-    out.into_iter().map(|(k, v)| (k.to_string(), v)).collect()
+    link::defaults()
+        .into_iter()
+        .filter(|(_, text)| !text.is_empty())
+        .map(|(key, text)| (key.to_string(), text))
+        .collect()
 }
 
 mod import;

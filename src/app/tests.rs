@@ -258,13 +258,13 @@ fn the_form_defaults_are_the_readers() {
         defaults.contains(&("fc".to_string(), "1k".to_string())),
         "{defaults:?}"
     );
-    // `apass` alone is a limit without the others (it only has a meaning with them).
+    // `passloss` alone is a limit without the others (it only has a meaning with them).
     let query: Vec<String> = defaults
         .iter()
-        .filter(|(k, _)| k != "apass")
+        .filter(|(k, _)| k != "passloss")
         .map(|(k, v)| format!("{k}={v}"))
         .collect();
-    let report = link::parse(&format!("v=1&{}", query.join("&")));
+    let report = link::parse(&format!("v=2&{}", query.join("&")));
     assert!(report.errors.is_empty(), "{:?}", report.errors);
     // `ripple` and `apass` take effect only with a Chebyshev family and limits; the rest of the
     // state, the requirement included, is the default.

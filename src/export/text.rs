@@ -190,7 +190,7 @@ pub fn spread_text(design: &Design, summary: &Summary) -> String {
         None => {
             let _ = writeln!(
                 out,
-                "Yield: no limits in the link (add fpass, fstop, astop)"
+                "Yield: no limits in the link (add passedge, stopedge, stopdepth)"
             );
         }
     }

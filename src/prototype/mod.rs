@@ -192,8 +192,8 @@ impl Prototype {
     pub fn passband_edge(&self, apass_db: f64) -> Result<f64, InputError> {
         if !(apass_db.is_finite() && apass_db > 0.0) {
             return Err(InputError::new(
-                "apass",
-                format!("apass must be a positive attenuation in dB, got {apass_db}"),
+                "passloss",
+                format!("passloss must be a positive attenuation in dB, got {apass_db}"),
             ));
         }
         let n = self.order as f64;
@@ -212,9 +212,9 @@ impl Prototype {
                     return Err(InputError::new(
                         "ripple",
                         format!(
-                            "ripple {ripple_db} dB is larger than apass {apass_db} dB, so the \
+                            "ripple {ripple_db} dB is larger than passloss {apass_db} dB, so the \
                              passband ripple alone breaks the mask; set ripple between \
-                             {MIN_RIPPLE_DB} dB and apass"
+                             {MIN_RIPPLE_DB} dB and passloss"
                         ),
                     ));
                 }
@@ -493,6 +493,6 @@ mod tests {
         assert_eq!(prototype(nan, 4).unwrap_err().key, "ripple");
         let cheb = prototype(Family::Chebyshev { ripple_db: 1.0 }, 4).unwrap();
         assert_eq!(cheb.passband_edge(0.5).unwrap_err().key, "ripple");
-        assert_eq!(cheb.passband_edge(f64::NAN).unwrap_err().key, "apass");
+        assert_eq!(cheb.passband_edge(f64::NAN).unwrap_err().key, "passloss");
     }
 }

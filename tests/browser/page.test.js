@@ -206,7 +206,7 @@ test('the design JSON download is the command line output, byte for byte', async
 });
 
 test('a link with markup or script in every key executes nothing and inserts no element', async () => {
-  const keys = ['resp', 'family', 'order', 'fc', 'bw', 'ripple', 'fpass', 'apass', 'fstop', 'astop',
+  const keys = ['resp', 'family', 'order', 'fc', 'bw', 'ripple', 'passedge', 'passloss', 'stopedge', 'stopdepth',
     'gain', 'topo', 'rser', 'cser', 'rtol', 'ctol', 'gbw', 'a0', 'rout', 'vnoise', 'inoise', 'slew',
     'rlevel', 'cratio', 'rratio', 'round', 'set', 'tolset', 'stageorder', 'runs', 'seed', 'dist',
     'sigmas', 'vin', 'swing', 'drift', 'noiseband', 'span', 'fsample', 'adcbits', 'fsignal', 'title'];
@@ -218,7 +218,7 @@ test('a link with markup or script in every key executes nothing and inserts no 
   ];
   // `v` stays valid here (a bad `v` refuses the whole link; checked at the end).
   const params = new URLSearchParams();
-  params.append('v', '1');
+  params.append('v', '2');
   keys.forEach((key, i) => params.append(key, payloads[i % payloads.length]));
   params.append('<b onmouseover=window.__pwned=1>key</b>', payloads[0]);
   // Record every element added to the document from the very start.

@@ -9,8 +9,8 @@ use serde_json::{json, Value};
 /// The links compared: the README's demo scenarios and a few more shapes (band-pass, high-pass,
 /// odd order, a part typed over, uniform tolerances).
 pub const LINKS: [&str; 5] = [
-    "v=1&title=Geophone+front+end&fsample=2k&adcbits=24&fsignal=200&family=butterworth&topo=mfb",
-    "v=1&title=Hydrophone+band&resp=bp&family=butterworth&fpass=2k,20k&apass=1&fstop=400,100k&astop=30&topo=mfb",
+    "v=2&title=Geophone+front+end&fsample=2k&adcbits=24&fsignal=200&family=butterworth&topo=mfb",
+    "v=2&title=Hydrophone+band&resp=bp&family=butterworth&passedge=2k,20k&passloss=1&stopedge=400,100k&stopdepth=30&topo=mfb",
     "v=1&title=Strain+gauge+band+limit&resp=lp&family=bessel&order=4&fc=10&gain=20",
     "v=1&resp=hp&family=chebyshev&ripple=1&order=5&fc=300&topo=mfb&set=R2:4k7&dist=uniform",
     "v=1&resp=lp&family=critical&order=3&fc=2k5&gbw=10M&rser=e24&cser=e6",

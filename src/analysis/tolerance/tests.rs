@@ -6,7 +6,7 @@ use crate::analysis::lanes::{self, Isa, Lane8, Plain};
 use crate::analysis::magnitude::{magnitude_squared_into, magnitude_squared_lanes};
 use crate::analysis::roots::split_cubic_lanes;
 use crate::board::{Board, BuildChoices};
-use crate::sections::{Section, SectionKind};
+use crate::section::{Section, SectionKind};
 use crate::spec::{Edge, Mask};
 use rand_core::{RngCore, SeedableRng};
 use std::f64::consts::PI;
