@@ -24,9 +24,9 @@
 //! Inverting stages (multiple feedback) set any gain by a part ratio at no cost, so their gains
 //! are left as the synthesis spread them; the overall gain is unchanged either way.
 
+use crate::choices::Rounding;
 use crate::error::InputError;
 use crate::eseries::{PartClass, Series};
-use crate::choices::Rounding;
 use crate::netlist::{Node, Part, PartKind, StageNetlist};
 use crate::opamp::OpAmp;
 use crate::sections::Section;
