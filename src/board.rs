@@ -24,9 +24,9 @@
 //! Inverting stages (multiple feedback) set any gain by a part ratio at no cost, so their gains
 //! are left as the synthesis spread them; the overall gain is unchanged either way.
 
-use crate::choices::Rounding;
 use crate::error::InputError;
 use crate::eseries::{PartClass, Series};
+use crate::choices::Rounding;
 use crate::netlist::{Node, Part, PartKind, StageNetlist};
 use crate::opamp::OpAmp;
 use crate::sections::Section;
@@ -360,18 +360,7 @@ impl Board {
             .filter(|(_, s)| s.circuit.inverting())
             .map(|(i, _)| (i + 1).to_string())
             .collect();
-        // A band-pass section's gain is its peak at its own f0, so the product of those is not
-        // the board's gain at the centre: only the sign is stated (the analyses measure the
-        // gain on the built board).
-        let band_pass = sections
-            .iter()
-            .any(|s| s.kind == crate::sections::SectionKind::BandPass);
-        if gain < 0.0 && band_pass {
-            self.warnings.push(format!(
-                "the board inverts (inverting stages: {})",
-                inverting.join(", ")
-            ));
-        } else if gain < 0.0 {
+        if gain < 0.0 {
             self.warnings.push(format!(
                 "the board inverts: overall passband gain {gain:.4} V/V (inverting stages: {})",
                 inverting.join(", ")

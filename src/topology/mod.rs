@@ -22,9 +22,9 @@ pub mod mfb;
 pub mod sallen_key;
 pub mod search;
 
-use crate::choices::Rounding;
 use crate::error::InputError;
 use crate::eseries::{PartClass, Series};
+use crate::choices::Rounding;
 use crate::netlist::{Node, Part, StageNetlist};
 use crate::sections::{Section, SectionKind};
 use serde::Serialize;

@@ -16,8 +16,8 @@
 
 use super::divider::pair_choices;
 use super::{Layout, Realization, Target};
-use crate::choices::Rounding;
 use crate::eseries::{PartClass, Series};
+use crate::choices::Rounding;
 
 /// Candidates per free part.
 const FREE_CANDIDATES: usize = 3;
