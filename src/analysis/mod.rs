@@ -1,8 +1,8 @@
 //! Analysis of the board as built: tolerance study, sensitivities, noise, time response, poles,
 //! stage levels and op-amp requirements.
 //!
-//! Leaves that the analyses share: [`circuit`] (the fast assembler and solver), [`lanes`] (the
-//! SIMD lanes of the tolerance study's batches), [`roots`] (root finders of a stage's
+//! Leaves that the analyses share: [`circuit`] (the fast assembler and solver), `lanes` (the
+//! SIMD lanes of the tolerance study's batches), `roots` (root finders of a stage's
 //! denominator), [`magnitude`] (|P(jω)|² as a polynomial in ω²) and [`poly`] (polynomials, the
 //! circle fit of a stage's N and D).
 

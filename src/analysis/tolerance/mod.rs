@@ -50,12 +50,12 @@
 //! `|H|² ≤ G²·10^(−astop/10)`, with G the reference gain (the design's passband gain). Gain above G
 //! in the passband is not a violation: the mask states only the attenuation allowed.
 //!
-//! Layout: this file holds the study type and its settings; [`plan`] builds what is fixed for the
-//! whole study (stages, evaluation grid, mask bounds, instruction set), [`batch`] the per-batch
+//! Layout: this file holds the study type and its settings; `plan.rs` builds what is fixed for the
+//! whole study (stages, evaluation grid, mask bounds, instruction set), `batch.rs` the per-batch
 //! scratch and the steps that fill it (draws, stage polynomials, f0 and Q, recording),
-//! [`kernel`] the lane kernels that evaluate a batch (cascade response, yield, cutoff search),
-//! and [`summary`] the statistics of the runs (percentiles, histograms, yield, `summarize` and
-//! `finish`). The SIMD lanes are [`super::lanes`], the root finders [`super::roots`].
+//! `kernel.rs` the lane kernels that evaluate a batch (cascade response, yield, cutoff search),
+//! and `summary.rs` the statistics of the runs (percentiles, histograms, yield, `summarize` and
+//! `finish`). The SIMD lanes are `lanes.rs` beside this module, the root finders `roots.rs`.
 
 mod batch;
 mod kernel;

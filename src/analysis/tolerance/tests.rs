@@ -2,7 +2,7 @@
 //! compiled path (identities: the lanes must not change any number).
 
 use super::*;
-use crate::analysis::lanes::{self, Isa, Lane8, Plain};
+use crate::analysis::lanes::{Isa, Lane8, Plain};
 use crate::analysis::magnitude::{magnitude_squared_into, magnitude_squared_lanes};
 use crate::analysis::roots::split_cubic_lanes;
 use crate::board::{Board, BuildChoices};
@@ -112,13 +112,13 @@ fn scalar_ops(a: &RunLanes, b: &RunLanes) -> Vec<u64> {
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
 unsafe fn lane_ops_avx2(a: &RunLanes, b: &RunLanes) -> Vec<u64> {
-    lane_ops::<lanes::Avx2>(a, b)
+    lane_ops::<crate::analysis::lanes::Avx2>(a, b)
 }
 
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx512f")]
 unsafe fn lane_ops_avx512(a: &RunLanes, b: &RunLanes) -> Vec<u64> {
-    lane_ops::<lanes::Avx512>(a, b)
+    lane_ops::<crate::analysis::lanes::Avx512>(a, b)
 }
 
 /// Identity: each lane operation equals scalar IEEE arithmetic bit for bit, on the plain path
