@@ -270,3 +270,19 @@ fn the_form_defaults_are_the_readers() {
     // state, the requirement included, is the default.
     assert_eq!(report.state, LinkState::default());
 }
+
+/// The converter helper's limits stay the helper's: the link writer leaves them out, so the form
+/// shows the converter and an edited resolution moves the stopband depth (README: the helper
+/// fills the limits "where those keys are absent").
+#[test]
+fn limits_filled_by_the_converter_are_left_to_it() {
+    let query = "v=2&fsample=2k&adcbits=24&fsignal=200";
+    let written = link::to_query(&link::parse(query).state);
+    assert!(
+        !written.contains("stopdepth") && !written.contains("passedge"),
+        "{written}"
+    );
+    assert_eq!(link::parse(&written).state, link::parse(query).state);
+    let fill = form_of_link(query, &["stopdepth", "passedge", "stopedge", "adcbits"]);
+    assert_eq!(fill.values, vec![("adcbits".to_string(), "24".to_string())]);
+}

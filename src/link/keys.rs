@@ -396,8 +396,14 @@ pub(crate) const TABLE: [Row; 44] = [
         |s| s.requirement.bw_hz.map(number_text),
     )
     .always(),
+    // A limit the converter helper fills is left to it, so the link keeps saying where the limit
+    // comes from (and a changed converter moves it).
     row(Key::PassEdge, "passedge", Parse::Edge, None, |s| {
-        s.requirement.mask.map(|m| edge_text(m.pass))
+        let filled = s.converter.map(|c| Edge::Single(c.signal_band_hz));
+        s.requirement
+            .mask
+            .filter(|m| Some(m.pass) != filled)
+            .map(|m| edge_text(m.pass))
     })
     .v1("fpass")
     .always(),
@@ -412,7 +418,11 @@ pub(crate) const TABLE: [Row; 44] = [
     .always()
     .shown(Shown::Number(DEFAULT_APASS_DB)),
     row(Key::StopEdge, "stopedge", Parse::Edge, None, |s| {
-        s.requirement.mask.map(|m| edge_text(m.stop))
+        let filled = s.converter.map(|c| Edge::Single(c.stop_edge_hz()));
+        s.requirement
+            .mask
+            .filter(|m| Some(m.stop) != filled)
+            .map(|m| edge_text(m.stop))
     })
     .v1("fstop")
     .always(),
@@ -421,7 +431,13 @@ pub(crate) const TABLE: [Row; 44] = [
         "stopdepth",
         num(1e-3, 300.0, "attenuation required in the stopband in dB"),
         None,
-        |s| s.requirement.mask.map(|m| number_text(m.astop_db)),
+        |s| {
+            let filled = s.converter.map(|c| c.stop_depth_db());
+            s.requirement
+                .mask
+                .filter(|m| Some(m.astop_db) != filled)
+                .map(|m| number_text(m.astop_db))
+        },
     )
     .v1("astop")
     .always(),
