@@ -102,10 +102,10 @@ pub fn design_value(design: &Design) -> Value {
         .collect();
     let mask = req.mask.map(|m| {
         json!({
-            "fpass_hz": edge_json(m.pass),
-            "apass_db": m.apass_db,
-            "fstop_hz": edge_json(m.stop),
-            "astop_db": m.astop_db,
+            "passedge_hz": edge_json(m.pass),
+            "passloss_db": m.apass_db,
+            "stopedge_hz": edge_json(m.stop),
+            "stopdepth_db": m.astop_db,
         })
     });
     let family_orders: Option<Vec<Value>> = design.family_orders.as_ref().map(|rows| {
