@@ -4,6 +4,7 @@
 
 use super::{FamilyRow, PartRow, SensitivityRow, StageView, TargetRow, View};
 use crate::design::Synthesis;
+use crate::export::words::ordinal;
 use crate::netlist::PartKind;
 use crate::order;
 use crate::pipeline::{self, Design};
@@ -157,17 +158,6 @@ impl PageWords {
 /// A sensitivity with its sign and two decimals, typographic minus.
 pub(super) fn signed(value: f64) -> String {
     format!("{value:+.2}").replace('-', "−")
-}
-
-fn ordinal(n: usize) -> String {
-    let suffix = match (n % 10, n % 100) {
-        (1, 11) | (2, 12) | (3, 13) => "th",
-        (1, _) => "st",
-        (2, _) => "nd",
-        (3, _) => "rd",
-        _ => "th",
-    };
-    format!("{n}{suffix}")
 }
 
 fn class_words(class: ResponseClass) -> &'static str {

@@ -4,3 +4,4 @@ pub mod bom;
 pub mod json;
 pub mod spice;
 pub mod text;
+pub mod words;

@@ -49,14 +49,7 @@ fn spaced(value: f64) -> String {
 }
 
 fn ordinal(n: usize) -> String {
-    let suffix = match (n % 10, n % 100) {
-        (1, 11) | (2, 12) | (3, 13) => "th",
-        (1, _) => "st",
-        (2, _) => "nd",
-        (3, _) => "rd",
-        _ => "th",
-    };
-    format!("{n}{suffix}-order")
+    format!("{}-order", super::words::ordinal(n))
 }
 
 fn edge_text(edge: Edge) -> String {
