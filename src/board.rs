@@ -27,7 +27,7 @@
 use crate::choices::Rounding;
 use crate::error::InputError;
 use crate::eseries::{PartClass, Series};
-use crate::netlist::{Node, Part, PartKind, StageNetlist};
+use crate::netlist::{BoardNetlist, Part, PartKind, StageNetlist};
 use crate::opamp::OpAmp;
 use crate::section::Section;
 use crate::topology::{self, Circuit, Freedoms, Target, Topology};
@@ -137,18 +137,6 @@ pub struct Board {
     pub c_series: Series,
     /// Board-level notes (overall sign, overrides …).
     pub warnings: Vec<String>,
-}
-
-/// The whole board as one netlist.
-#[derive(Debug, Clone, PartialEq, Serialize)]
-pub struct BoardNetlist {
-    /// Node 0 is `in` (the board input), the last stage's output is named `out`; other nodes are
-    /// `s{k}_{name}` for stage k (1-based).
-    pub netlist: StageNetlist,
-    /// The node of each stage's output, in stage order.
-    pub stage_outputs: Vec<usize>,
-    /// For each part of `netlist.parts`, the index (0-based) of its stage.
-    pub part_stage: Vec<usize>,
 }
 
 fn check_choices(choices: &BuildChoices) -> Result<(), InputError> {
@@ -503,52 +491,13 @@ impl Board {
         board
     }
 
-    /// Merges the stages into one netlist: node 0 is `in`, stage k's input is stage k−1's
-    /// output, the last output is `out`.
-    pub fn netlist(&self) -> BoardNetlist {
-        let mut node_names = vec!["in".to_string()];
-        let mut parts = Vec::new();
-        let mut part_stage = Vec::new();
-        let mut stage_outputs = Vec::with_capacity(self.stages.len());
-        let mut previous_output = 0usize;
-        let last = self.stages.len().saturating_sub(1);
-        for (k, stage) in self.stages.iter().enumerate() {
-            let net = &stage.netlist;
-            let mut map = vec![0usize; net.n_nodes];
-            for (local, slot) in map.iter_mut().enumerate() {
-                if local == net.input {
-                    *slot = previous_output;
-                    continue;
-                }
-                let local_name = net.node_names.get(local).map_or("n", String::as_str);
-                let name = if local == net.output && k == last {
-                    "out".to_string()
-                } else {
-                    format!("s{}_{}", k + 1, local_name)
-                };
-                *slot = node_names.len();
-                node_names.push(name);
-            }
-            let remap = |n: &Node| n.and_then(|i| map.get(i).copied());
-            for part in &net.parts {
-                let mut p = part.clone();
-                p.nodes = part.nodes.iter().map(remap).collect();
-                parts.push(p);
-                part_stage.push(k);
-            }
-            previous_output = map.get(net.output).copied().unwrap_or(0);
-            stage_outputs.push(previous_output);
-        }
-        BoardNetlist {
-            netlist: StageNetlist {
-                n_nodes: node_names.len(),
-                input: 0,
-                output: previous_output,
-                node_names,
-                parts,
-            },
-            stage_outputs,
-            part_stage,
-        }
+    /// Merges the stages into one netlist ([`crate::netlist::merge`]): node 0 is `in`, stage k's
+    /// input is stage k−1's output, the last output is `out`.
+    ///
+    /// # Errors
+    /// A message when a stage's netlist breaks the netlist invariants (never for a built board).
+    pub fn netlist(&self) -> Result<BoardNetlist, String> {
+        let nets: Vec<&StageNetlist> = self.stages.iter().map(|s| &s.netlist).collect();
+        crate::netlist::merge(&nets)
     }
 }

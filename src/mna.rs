@@ -12,11 +12,11 @@
 //! (1/A(s))·V(x) − V+ + V− = 0, so the ideal op amp (1/A = 0, a nullor) is the exact limit rather
 //! than a large number.
 
-use crate::board::{Board, BoardNetlist};
+use crate::board::Board;
+use crate::netlist::BoardNetlist;
 use crate::netlist::{Node, PartKind, StageNetlist};
 use crate::opamp::OpAmp;
 use num_complex::Complex64;
-use std::f64::consts::PI;
 use std::fmt;
 
 /// A failed analysis: a sentence that names the likely cause.
@@ -116,21 +116,6 @@ pub struct OpAmpUnknowns {
     pub branch: usize,
     /// Index of the node behind Rout, or `None` when Rout = 0 (the source drives the output).
     pub internal: Option<usize>,
-}
-
-/// 1/A(s) = 1/A0 + s/(2π·GBW) of the op-amp model (0 for the ideal op amp).
-pub fn inverse_gain(op: &OpAmp, s: Complex64) -> Complex64 {
-    let dc = if op.a0_db.is_finite() {
-        Complex64::new(1.0 / op.a0(), 0.0)
-    } else {
-        Complex64::new(0.0, 0.0)
-    };
-    let pole = if op.gbw_hz.is_finite() {
-        s / (2.0 * PI * op.gbw_hz)
-    } else {
-        Complex64::new(0.0, 0.0)
-    };
-    dc + pole
 }
 
 /// The op-amp stamp: source current into the internal node (or the output), branch row
@@ -264,7 +249,7 @@ fn solve_all(
         )));
     }
     let unknowns = layout(net, op);
-    let inv_a = inverse_gain(op, s);
+    let inv_a = op.inverse_gain(s);
     let zero = Complex64::new(0.0, 0.0);
     let mut stamps: Vec<Stamp> = Vec::with_capacity(net.parts.len() + 2);
     let mut opamp_no = 0;
@@ -584,7 +569,8 @@ pub fn board_response(
     board: &Board,
     s: Complex64,
 ) -> Result<(Complex64, Vec<Complex64>), MnaError> {
-    netlist_response(&board.netlist(), &board.op_amp, s)
+    let merged = board.netlist().map_err(MnaError::new)?;
+    netlist_response(&merged, &board.op_amp, s)
 }
 
 /// [`board_response`] on an already merged board netlist ([`Board::netlist`]), for sweeps that

@@ -123,3 +123,93 @@ impl StageNetlist {
         self.parts.iter().find(|p| p.reference == reference)
     }
 }
+
+/// The whole board as one netlist: stage k's input node is stage k−1's output node, so each stage
+/// loads the one before it.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct BoardNetlist {
+    /// Node 0 is `in` (the board input), the last stage's output is named `out`; other nodes are
+    /// `s{k}_{name}` for stage k (1-based).
+    pub netlist: StageNetlist,
+    /// The node of each stage's output, in stage order.
+    pub stage_outputs: Vec<usize>,
+    /// For each part of `netlist.parts`, its stage (0-based) and its index in that stage's parts.
+    pub part_origin: Vec<(usize, usize)>,
+}
+
+/// Merges stage netlists (in signal order) into one board netlist: the one board merger, used by
+/// the analyses, the SPICE export and the dense reference analysis alike.
+///
+/// # Errors
+/// A message when there are no stages or a stage's nodes are out of range.
+pub fn merge(stages: &[&StageNetlist]) -> Result<BoardNetlist, String> {
+    if stages.is_empty() {
+        return Err("the board has no stages".into());
+    }
+    let mut node_names = vec!["in".to_string()];
+    let mut parts = Vec::new();
+    let mut part_origin = Vec::new();
+    let mut stage_outputs = Vec::with_capacity(stages.len());
+    let mut previous_output = 0usize;
+    let last = stages.len() - 1;
+    for (k, net) in stages.iter().enumerate() {
+        if net.input >= net.n_nodes || net.output >= net.n_nodes {
+            return Err(format!(
+                "stage {}: input or output node outside 0..{}",
+                k + 1,
+                net.n_nodes
+            ));
+        }
+        let mut map = vec![0usize; net.n_nodes];
+        for (local, slot) in map.iter_mut().enumerate() {
+            if local == net.input {
+                *slot = previous_output;
+                continue;
+            }
+            let local_name = net.node_names.get(local).map_or("n", String::as_str);
+            let name = if local == net.output && k == last {
+                "out".to_string()
+            } else {
+                format!("s{}_{}", k + 1, local_name)
+            };
+            *slot = node_names.len();
+            node_names.push(name);
+        }
+        for (part_idx, part) in net.parts.iter().enumerate() {
+            let mut p = part.clone();
+            let mut nodes = Vec::with_capacity(part.nodes.len());
+            for node in &part.nodes {
+                match node {
+                    None => nodes.push(None),
+                    Some(i) => match map.get(*i) {
+                        Some(&m) => nodes.push(Some(m)),
+                        None => {
+                            return Err(format!(
+                                "stage {}: {} uses node {i} outside 0..{}",
+                                k + 1,
+                                part.reference,
+                                net.n_nodes
+                            ))
+                        }
+                    },
+                }
+            }
+            p.nodes = nodes;
+            parts.push(p);
+            part_origin.push((k, part_idx));
+        }
+        previous_output = map[net.output];
+        stage_outputs.push(previous_output);
+    }
+    Ok(BoardNetlist {
+        netlist: StageNetlist {
+            n_nodes: node_names.len(),
+            input: 0,
+            output: previous_output,
+            node_names,
+            parts,
+        },
+        stage_outputs,
+        part_origin,
+    })
+}

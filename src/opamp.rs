@@ -55,3 +55,29 @@ impl OpAmp {
         10f64.powf(self.a0_db / 20.0)
     }
 }
+
+impl OpAmp {
+    /// The coefficients of the model's `1/A(s) = a + b·s`: `a = 1/A0` (0 when A0 is infinite),
+    /// `b = 1/(2π·GBW)` in s (0 when GBW is infinite or not positive). The one formula of the op
+    /// amp's gain: the banded solver stamps these coefficients, the dense reference evaluates
+    /// [`OpAmp::inverse_gain`] from them.
+    pub fn inverse_gain_coefficients(&self) -> (f64, f64) {
+        let a = if self.a0_db.is_finite() {
+            1.0 / self.a0()
+        } else {
+            0.0
+        };
+        let b = if self.gbw_hz.is_finite() && self.gbw_hz > 0.0 {
+            1.0 / (2.0 * std::f64::consts::PI * self.gbw_hz)
+        } else {
+            0.0
+        };
+        (a, b)
+    }
+
+    /// `1/A(s) = 1/A0 + s/(2π·GBW)` at complex frequency `s` (rad/s); 0 for the ideal op amp.
+    pub fn inverse_gain(&self, s: num_complex::Complex64) -> num_complex::Complex64 {
+        let (a, b) = self.inverse_gain_coefficients();
+        num_complex::Complex64::new(a, 0.0) + s * b
+    }
+}

@@ -946,7 +946,7 @@ fn board_response_is_the_product_of_stages_with_an_ideal_op_amp_and_loaded_other
                 .map(|s| mna::transfer(&s.netlist, &board.op_amp, jw(f)).unwrap())
                 .product();
             assert_eq!(outs.len(), 2);
-            let merged = board.netlist();
+            let merged = board.netlist().unwrap_or_else(|e| panic!("{e}"));
             let (h2, _) = mna::netlist_response(&merged, &board.op_amp, jw(f)).unwrap();
             assert_eq!(h, h2);
             assert!(rel_err(outs[1], h) == 0.0);

@@ -19,7 +19,7 @@
 //! against the other.
 
 use crate::error::InputError;
-use crate::netlist::{Node, PartKind, StageNetlist};
+use crate::netlist::{BoardNetlist, Node, PartKind, StageNetlist};
 use crate::opamp::OpAmp;
 use num_complex::Complex64;
 use std::fmt;
@@ -55,22 +55,6 @@ impl From<InputError> for AnalysisError {
     fn from(e: InputError) -> Self {
         AnalysisError::Input(e)
     }
-}
-
-/// The op-amp coefficients of `1/A(s) = a + b·s`: `a = 1/A0` (0 when A0 is infinite),
-/// `b = 1/(2π·GBW)` in s (0 when GBW is infinite).
-pub fn inverse_gain_coefficients(op: &OpAmp) -> (f64, f64) {
-    let a = if op.a0_db.is_finite() {
-        1.0 / op.a0()
-    } else {
-        0.0
-    };
-    let b = if op.gbw_hz.is_finite() && op.gbw_hz > 0.0 {
-        1.0 / (2.0 * std::f64::consts::PI * op.gbw_hz)
-    } else {
-        0.0
-    };
-    (a, b)
 }
 
 /// Where one stamp of a part value lands.
@@ -162,7 +146,7 @@ impl Compiled {
                 "input and output are the same node".into(),
             ));
         }
-        let (inv_a, inv_b) = inverse_gain_coefficients(op);
+        let (inv_a, inv_b) = op.inverse_gain_coefficients();
         let rout = if op.rout_ohm.is_finite() && op.rout_ohm > 0.0 {
             op.rout_ohm
         } else {
@@ -559,101 +543,13 @@ pub fn input_drive(a: &Assembled, s: Complex64, v_in: Complex64, out: &mut [Comp
     }
 }
 
-/// A whole board merged into one netlist: stage k's input node is stage k−1's output node.
-#[derive(Debug, Clone, PartialEq)]
-pub struct MergedBoard {
-    /// The merged netlist (input = the first stage's input, output = the last stage's output).
-    pub netlist: StageNetlist,
-    /// Merged node index of each stage's output, in signal order.
-    pub stage_outputs: Vec<usize>,
-    /// For each merged part, the stage it came from and its index in that stage's parts.
-    pub part_origin: Vec<(usize, usize)>,
-}
-
-/// Merges stage netlists (in signal order) into one board netlist.
+/// Merges stage netlists (in signal order) into one board netlist with
+/// [`crate::netlist::merge`], the one board merger.
 ///
 /// # Errors
 /// [`AnalysisError::BadNetlist`] when there are no stages or a stage's nodes are out of range.
-pub fn merge_stages(stages: &[&StageNetlist]) -> Result<MergedBoard, AnalysisError> {
-    let first = stages
-        .first()
-        .ok_or_else(|| AnalysisError::BadNetlist("the board has no stages".into()))?;
-    let mut n_nodes = 0usize;
-    let mut node_names = Vec::new();
-    let mut parts = Vec::new();
-    let mut stage_outputs = Vec::with_capacity(stages.len());
-    let mut part_origin = Vec::new();
-    let mut prev_output: Option<usize> = None;
-    let mut board_input = 0;
-    for (stage_idx, net) in stages.iter().enumerate() {
-        if net.input >= net.n_nodes || net.output >= net.n_nodes {
-            return Err(AnalysisError::BadNetlist(format!(
-                "stage {}: input or output node outside 0..{}",
-                stage_idx + 1,
-                net.n_nodes
-            )));
-        }
-        let mut map = vec![0usize; net.n_nodes];
-        for (i, slot) in map.iter_mut().enumerate() {
-            if i == net.input {
-                if let Some(p) = prev_output {
-                    *slot = p;
-                    continue;
-                }
-            }
-            *slot = n_nodes;
-            node_names.push(format!(
-                "s{}_{}",
-                stage_idx + 1,
-                net.node_names
-                    .get(i)
-                    .cloned()
-                    .unwrap_or_else(|| i.to_string())
-            ));
-            n_nodes += 1;
-        }
-        if stage_idx == 0 {
-            board_input = map[first.input];
-        }
-        for (part_idx, p) in net.parts.iter().enumerate() {
-            let mut q = p.clone();
-            let mut nodes = Vec::with_capacity(p.nodes.len());
-            for &node in &p.nodes {
-                match node {
-                    None => nodes.push(None),
-                    Some(i) => match map.get(i) {
-                        Some(&m) => nodes.push(Some(m)),
-                        None => {
-                            return Err(AnalysisError::BadNetlist(format!(
-                                "stage {}: {} uses node {i} outside 0..{}",
-                                stage_idx + 1,
-                                p.reference,
-                                net.n_nodes
-                            )))
-                        }
-                    },
-                }
-            }
-            q.nodes = nodes;
-            parts.push(q);
-            part_origin.push((stage_idx, part_idx));
-        }
-        let out = map[net.output];
-        stage_outputs.push(out);
-        prev_output = Some(out);
-    }
-    let output = *stage_outputs.last().unwrap_or(&0);
-    Ok(MergedBoard {
-        netlist: StageNetlist {
-            n_nodes,
-            input: board_input,
-            output,
-            node_names,
-            parts,
-        },
-        stage_outputs,
-        part_origin,
-    })
+pub fn merge_stages(stages: &[&StageNetlist]) -> Result<BoardNetlist, AnalysisError> {
+    crate::netlist::merge(stages).map_err(AnalysisError::BadNetlist)
 }
 
 /// The transfer `V(output)/V(input)` of a compiled netlist at complex frequency `s` (rad/s).

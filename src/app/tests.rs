@@ -116,7 +116,7 @@ fn the_fast_board_sweep_equals_the_plain_nodal_solution() {
             }
             // The input impedance from the same solve equals the general nodal analysis'
             // source current.
-            let merged = board.netlist();
+            let merged = board.netlist().unwrap_or_else(|e| panic!("{e}"));
             let z = crate::mna::input_impedance(&merged.netlist, &board.op_amp, s)
                 .unwrap_or_else(|e| panic!("{}", e.message))
                 .norm();

@@ -79,7 +79,9 @@ pub fn netlist(board: &Board, sweep: &AcSweep) -> Result<String, InputError> {
             ),
         ));
     }
-    let merged = board.netlist();
+    let merged = board
+        .netlist()
+        .map_err(|e| InputError::new("topo", format!("the board cannot be written: {e}")))?;
     let net = &merged.netlist;
     let name = |n: &Node| match n {
         None => "0".to_string(),
@@ -113,7 +115,7 @@ pub fn netlist(board: &Board, sweep: &AcSweep) -> Result<String, InputError> {
     }
     let _ = writeln!(out, "V1 in 0 DC 0 AC 1");
     let mut last_stage = usize::MAX;
-    for (part, &stage_idx) in net.parts.iter().zip(&merged.part_stage) {
+    for (part, &(stage_idx, _)) in net.parts.iter().zip(&merged.part_origin) {
         if stage_idx != last_stage {
             let _ = writeln!(out, "* stage {}", stage_idx + 1);
             last_stage = stage_idx;
