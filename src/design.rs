@@ -1,6 +1,7 @@
-//! The composer: requirement → response → sections → stages → standard values → board.
+//! The synthesis: requirement → response → sections (the composer, [`crate::pipeline`], takes it
+//! on to stages, standard values, the board and its analyses).
 //!
-//! This file holds the synthesis half, [`synthesize`]: requirement → order → prototype →
+//! [`synthesize`]: requirement → order → prototype →
 //! transform → sections. It reads like the pipeline:
 //!
 //! 1. the prototype order: the fixed `order`, or the minimum for the mask ([`crate::order`]);
