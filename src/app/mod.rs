@@ -458,6 +458,10 @@ pub fn compose_timed(state: &LinkState, watch: &mut Stopwatch) -> Result<PageMod
     };
     let mut view = text_view(&design, &data);
     words.fill(&mut view);
+    if let Some(v) = &analyses.as_built {
+        view.summary.push_str(" · ");
+        view.summary.push_str(&crate::export::words::verdict(v));
+    }
     watch.lap("text view");
     Ok(PageModel {
         design,

@@ -117,6 +117,7 @@ pub fn design_value(design: &Design) -> Value {
             .collect()
     });
     let op = &design.board.op_amp;
+    let analyses = crate::pipeline::analyses(design);
     json!({
         "format": FORMAT_VERSION,
         "link": crate::link::to_query(&design.state),
@@ -146,7 +147,8 @@ pub fn design_value(design: &Design) -> Value {
         "stages": stages,
         "parts": parts,
         "warnings": design.warnings,
-        "analysis": crate::pipeline::analyses(design),
+        "as_built": analyses.as_built,
+        "analysis": analyses,
     })
 }
 

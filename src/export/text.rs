@@ -77,9 +77,9 @@ pub fn design_text(design: &Design) -> String {
             let _ = writeln!(
                 out,
                 "\nLimits ({how}): at most {} dB loss up to {}, at least {} dB from {}",
-                format_si(m.apass_db, 5),
+                m.apass_db,
                 edge_text(m.pass),
-                format_si(m.astop_db, 5),
+                m.astop_db,
                 edge_text(m.stop)
             );
         }
@@ -234,6 +234,9 @@ pub fn spread_text(design: &Design, summary: &Summary) -> String {
 fn analysis_text(out: &mut String, design: &Design) {
     let a = crate::pipeline::analyses(design);
     let _ = writeln!(out, "\nThe board as built:");
+    if let Some(v) = &a.as_built {
+        let _ = writeln!(out, "  {}", super::words::verdict(v));
+    }
     if let Some(g) = a.passband_gain_db {
         let at = if a.passband_ref_hz > 0.0 {
             format!("at {}Hz", spaced(a.passband_ref_hz))

@@ -134,6 +134,9 @@ pub struct Analyses {
     pub passband_ref_hz: f64,
     /// The signal band: noise band and slew band, Hz.
     pub signal_band_hz: (f64, f64),
+    /// The verdict on the board as built (the design JSON writes it at the top level, `as_built`).
+    #[serde(skip)]
+    pub as_built: Option<super::verdict::AsBuilt>,
     /// Normalized sensitivities of each stage's f0 and Q to every part.
     pub sensitivities: Option<Vec<StageSensitivity>>,
     /// Noise summary over the signal band.
@@ -315,6 +318,17 @@ pub fn analyses(design: &Design) -> Analyses {
         }
         _ => None,
     };
+    let as_built = match (solver.as_mut(), gain) {
+        (Some(solver), Some(gain)) => Some(super::verdict::as_built(
+            design,
+            solver,
+            20.0 * gain.log10(),
+        )),
+        _ => None,
+    };
+    if let Some(verdict) = &as_built {
+        warnings.extend(super::verdict::departures(design, verdict));
+    }
     let sensitivities = keep(
         &mut errors,
         board,
@@ -326,6 +340,7 @@ pub fn analyses(design: &Design) -> Analyses {
         passband_gain_db: gain.map(|g| 20.0 * g.log10()),
         passband_ref_hz: ref_hz,
         signal_band_hz: band,
+        as_built,
         sensitivities,
         noise,
         step: step_response.as_ref().map(|r| r.figures),

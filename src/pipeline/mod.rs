@@ -22,6 +22,7 @@ use crate::spec::{Edge, Family, Mask, ResponseClass};
 use num_complex::Complex64;
 
 mod analyses;
+pub mod verdict;
 
 pub use analyses::{
     analyses, passband_ref_hz, plot_grid, signal_band_hz, Analyses, LevelSummary, NoiseShare,
@@ -91,6 +92,25 @@ pub fn compose(state: &LinkState) -> Result<Design, InputError> {
         family_comparison(state.requirement.class, mask, ripple)
     });
     let mut warnings = synthesis.warnings.clone();
+    if let (Family::Chebyshev { ripple_db }, Some(mask)) =
+        (state.requirement.family, state.requirement.mask)
+    {
+        let margin = mask.apass_db - ripple_db;
+        if margin > 0.0 {
+            warnings.push(format!(
+                "the ripple ({ripple_db} dB) leaves {} dB of the {} dB loss allowed at the pass \
+                 edge as margin for part tolerances and the op amp",
+                (margin * 1e6).round() / 1e6,
+                mask.apass_db
+            ));
+        } else {
+            warnings.push(format!(
+                "the ripple ({ripple_db} dB) uses all of the {} dB loss allowed at the pass edge: \
+                 no margin is left for part tolerances and the op amp; a smaller ripple keeps some",
+                mask.apass_db
+            ));
+        }
+    }
     warnings.extend(board.warnings.iter().cloned());
     for stage in &board.stages {
         // Stage warnings already name their stage.
