@@ -97,6 +97,33 @@
     }
     writeAddress();
   }
+  /* A reload asked for in the same moment as an edit loads the address as it was when the reload
+   * was asked for, before the page could write the edit's link. So when the page is left, the
+   * link written last is kept for this tab (sessionStorage, keys prefixed: every file:// page
+   * shares one store) beside the address it replaced; a reload that finds that older address
+   * opens the kept link instead. */
+  var RELOAD_KEY = 'rolloff.reload';
+  function leave() {
+    var before = window.location.search;
+    flush();
+    try {
+      if (window.location.search !== before) {
+        window.sessionStorage.setItem(RELOAD_KEY, JSON.stringify({ from: before, to: window.location.search }));
+      } else window.sessionStorage.removeItem(RELOAD_KEY);
+    } catch (e) { /* storage refused (private mode): the address alone is kept */ }
+  }
+  /* The link to open at start: the address, or the link kept by `leave` when this is a reload
+   * that found the address the edit replaced. */
+  function startLink() {
+    var search = window.location.search;
+    try {
+      var kept = JSON.parse(window.sessionStorage.getItem(RELOAD_KEY) || 'null');
+      window.sessionStorage.removeItem(RELOAD_KEY);
+      var nav = performance.getEntriesByType ? performance.getEntriesByType('navigation')[0] : null;
+      if (kept && nav && nav.type === 'reload' && kept.from === search && typeof kept.to === 'string') return kept.to;
+    } catch (e) { /* storage refused or unreadable: the address is the link */ }
+    return search;
+  }
 
   /* Opens a link: loads what is valid; a value that was refused shows the default the design
    * uses, and the refusal is listed in the notice. A link from a newer version changes nothing:
@@ -234,7 +261,7 @@
     $('#print').addEventListener('click', function () { window.print(); });
     window.addEventListener('beforeprint', function () { flush(); R.preparePrint(); });
     window.addEventListener('afterprint', R.afterPrint);
-    window.addEventListener('pagehide', flush);
+    window.addEventListener('pagehide', leave);
     window.addEventListener('popstate', function () { openQuery(window.location.search, false); });
     document.addEventListener('visibilitychange', flush);
     $('#notice-close').addEventListener('click', function () { $('#notice').hidden = true; });
@@ -243,5 +270,6 @@
 
   R.schedule = schedule;
   R.openQuery = openQuery;
+  R.startLink = startLink;
   R.wire = wire;
 })(window.Rolloff);

@@ -8,7 +8,7 @@
     R.showDefaults();
     R.wire();
     if (typeof rolloffOpening !== 'undefined') rolloffOpening.started = performance.now();
-    R.openQuery(window.location.search);
+    R.openQuery(R.startLink());
     R.showLink();
     // Time from the start of navigation to the first drawn plot (for the benchmark).
     document.body.setAttribute('data-first-draw-ms', performance.now().toFixed(1));
