@@ -6,14 +6,15 @@
   var $ = R.$, $$ = R.$$, state = R.state;
 
   /* The address bar carries the link the core wrote for the design on screen. It is written at
-   * once after each edit, so a reload, however soon after an edit, finds the latest link. Chromium
+   * once after each edit, so a reload finds the latest link (see `leave` for one asked for in the
+   * same moment as the edit). Chromium
    * ignores history changes that come faster than about 200 in 10 s, so past ADDRESS_BUDGET writes
    * in ADDRESS_WINDOW_MS (a key held down) the page waits and then writes only the latest link;
    * leaving the page, copying the link or printing writes a pending one at once. Opening an
    * example or a file adds a history entry, so the previous design is one Back away. */
   var ADDRESS_BUDGET = 100;
   var ADDRESS_WINDOW_MS = 10000;
-  var address = { timer: 0, query: null, writes: [] };
+  var address = { timer: 0, query: null, replaced: null, writes: [] };
   function keepAddress(query) {
     address.query = query;
     if (address.timer) return;
@@ -29,9 +30,11 @@
     var query = address.query;
     address.query = null;
     var url = window.location.pathname + query + window.location.hash;
+    var replaced = window.location.search;
     if (push === true) window.history.pushState(null, '', url);
     else if (window.location.search !== query) window.history.replaceState(null, '', url);
     else return;
+    address.replaced = replaced;
     address.writes.push(performance.now());
     R.showLink();
   }
@@ -98,17 +101,16 @@
     writeAddress();
   }
   /* A reload asked for in the same moment as an edit loads the address as it was when the reload
-   * was asked for, before the page could write the edit's link. So when the page is left, the
-   * link written last is kept for this tab (sessionStorage, keys prefixed: every file:// page
-   * shares one store) beside the address it replaced; a reload that finds that older address
-   * opens the kept link instead. */
+   * was asked for, which may be before the page wrote the edit's link. So when the page is left,
+   * the address is kept for this tab (sessionStorage, key prefixed: every file:// page shares one
+   * store) beside the address its last write replaced; a reload that finds that older address
+   * opens the kept one instead. */
   var RELOAD_KEY = 'rolloff.reload';
   function leave() {
-    var before = window.location.search;
     flush();
     try {
-      if (window.location.search !== before) {
-        window.sessionStorage.setItem(RELOAD_KEY, JSON.stringify({ from: before, to: window.location.search }));
+      if (address.replaced !== null && address.replaced !== window.location.search) {
+        window.sessionStorage.setItem(RELOAD_KEY, JSON.stringify({ from: address.replaced, to: window.location.search }));
       } else window.sessionStorage.removeItem(RELOAD_KEY);
     } catch (e) { /* storage refused (private mode): the address alone is kept */ }
   }
