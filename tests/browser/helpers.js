@@ -14,8 +14,12 @@ const PAGE_URL = pathToFileURL(path.join(WWW, 'index.html')).href;
 const OUT = path.join(__dirname, 'out');
 const CHROMIUM = process.env.CHROMIUM || '/usr/bin/chromium';
 
-// The files the page may load: itself, its stylesheet and its two scripts. Nothing else.
-const OWN_FILES = ['index.html', 'style.css', 'rolloff-wasm.js', 'app.js'].map(
+// The page's classic scripts, in the order index.html loads them: the wasm core first, then the
+// form (which makes the shared namespace), drawing, the study, the live loop and the start.
+const SCRIPTS = ['rolloff-wasm.js', 'form.js', 'render.js', 'study.js', 'live.js', 'main.js'];
+
+// The files the page may load: itself, its stylesheet and its scripts. Nothing else.
+const OWN_FILES = ['index.html', 'style.css'].concat(SCRIPTS).map(
   (name) => pathToFileURL(path.join(WWW, name)).href,
 );
 
@@ -123,6 +127,6 @@ async function waitForStudy(page, previous) {
 }
 
 module.exports = {
-  ROOT, WWW, OUT, PAGE_URL, launch, openPage, foreignRequests, cli, parseEng, canvasPixels,
+  ROOT, WWW, OUT, PAGE_URL, SCRIPTS, launch, openPage, foreignRequests, cli, parseEng, canvasPixels,
   waitForStudy,
 };
