@@ -267,11 +267,12 @@ fn step_response_matches_ngspice() {
                 "set wr_singlescale\noption numdgt=12\noption reltol=1e-6 abstol=1e-14 vntol=1e-9\ntran 1e-7 {t_end:e} 0 1e-6\nwrdata DATA v(out)"
             ),
         );
-        // A 6 dB low-pass settles to 10^(6/20) times the step (its DC gain; the finite A0 of
-        // the generic op amp moves it by far less than 0.1 %).
+        // A 6 dB low-pass settles near 10^(6/20) times the step (its DC gain): the gain network's
+        // resistors are rounded to the series, which moves it by a few per cent (mfb-bessel3 has
+        // 1.960, −1.8 %), so a step that never rose would fail here rather than pass as "close".
         let dc_gain = 10f64.powf(6.0 / 20.0);
         assert!(
-            (height / dc_gain - 1.0).abs() < 1e-3,
+            (height / dc_gain - 1.0).abs() < 0.05,
             "{name}: final value {height} of a 6 dB low-pass"
         );
         let mut worst = 0.0f64;
