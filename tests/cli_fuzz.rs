@@ -4,9 +4,12 @@
 //! hostile values (markup, huge and tiny numbers, NaN spellings, separators), truncations and
 //! percent-escapes. Each goes through `rolloff::cli::run` in-process; a panic fails the test with
 //! the offending link. Fuzzed version-1 links (with the limits' v1 names) must read and design
-//! exactly like their version-2 rewrites (README, "Version 1 links").
+//! exactly like their version-2 rewrites (README, "Version 1 links"). The page's path
+//! (`rolloff::app::evaluate`, every figure and every download of a composed model) and
+//! `rolloff plot` take fuzzed links too: no panic, and `plot` exits 0, 1 or 2 only.
 
 use rolloff::cli;
+use rolloff::plot::PlotKind;
 use std::panic;
 
 /// A small deterministic generator (SplitMix64) so failures reproduce from the printed link.
@@ -329,6 +332,154 @@ fn markup_in_every_key_is_refused_or_ignored_never_echoed_as_markup() {
         .join("&");
     let (code, _out, err) = run(&["design".to_string(), format!("?{link}")]);
     assert_eq!(code, 2, "{err}");
+    // Standard error is plain text: one line that names the key it refused.
+    let lines: Vec<&str> = err.lines().filter(|l| !l.contains("warning:")).collect();
+    assert_eq!(lines.len(), 1, "{err}");
+    assert!(
+        keys()
+            .iter()
+            .any(|k| lines[0].starts_with(&format!("rolloff: {k}: "))),
+        "the message names a key: {err}"
+    );
+    // The one key that takes free text, `title`, is accepted; no figure may carry it as markup.
+    let titled = "?v=2&title=%3Cscript%3Ealert(1)%3C%2Fscript%3E";
+    for kind in PlotKind::ALL {
+        let (code, out, err) = run(&[
+            "plot".to_string(),
+            titled.to_string(),
+            "--kind".into(),
+            kind.key().into(),
+        ]);
+        assert_eq!(code, 0, "{kind:?}: {err}");
+        assert!(out.contains("<svg"), "{kind:?}: not an SVG");
+        assert!(
+            !out.contains("<script"),
+            "{kind:?}: the title is markup in the SVG"
+        );
+    }
+}
+
+/// The page's path on a fuzzed link: `app::evaluate`, and for a composed model every figure
+/// and every download. Returns whether a model was composed.
+fn through_the_page(link: &str) -> bool {
+    let evaluation = rolloff::app::evaluate(link);
+    let Some(model) = evaluation.model else {
+        assert!(
+            evaluation.refused || !evaluation.view.errors.is_empty(),
+            "{link}: no model, yet no error and not refused"
+        );
+        return false;
+    };
+    for kind in PlotKind::ALL {
+        let _ = model.figure(kind);
+    }
+    for download in ["json", "bom", "spice"] {
+        // A download may refuse a board (an error value), but never panics; the JSON and the
+        // parts list always come out.
+        let result = model.export(download);
+        if download != "spice" {
+            let text = result.unwrap_or_else(|e| panic!("{link}: {download}: {e}"));
+            assert!(!text.is_empty(), "{link}: empty {download}");
+        }
+    }
+    true
+}
+
+#[test]
+fn fuzzed_links_through_the_page_never_panic() {
+    // Half the links from the hostile generator, half version-2 links of a few keys (which
+    // compose more often), so both the error views and the figures are exercised. The page
+    // falls back to the default for a bad key, so most links compose.
+    let mut g = Gen(0x9A6E_2026);
+    let names = rolloff::link::KEYS.to_vec();
+    let (mut n_models, mut n_without) = (0, 0);
+    for i in 0..240 {
+        let link = if i % 2 == 0 {
+            random_link(&mut g)
+        } else {
+            keyed_link(&mut g, "?v=2", &names)
+        };
+        let outcome = panic::catch_unwind(|| through_the_page(&link));
+        match outcome {
+            Ok(true) => n_models += 1,
+            Ok(false) => n_without += 1,
+            Err(_) => panic!("panic on the page's path for {link:?}"),
+        }
+    }
+    assert!(
+        n_models > 100 && n_without > 5,
+        "models {n_models}, without {n_without}"
+    );
+}
+
+#[test]
+fn fuzzed_plots_exit_0_1_or_2_and_never_panic() {
+    let mut g = Gen(0x0B10_7777);
+    let kinds: Vec<&str> = PlotKind::ALL
+        .iter()
+        .map(|k| k.key())
+        .chain(["", "<svg>", "Magnitude", "poles,step"])
+        .collect();
+    let out_dir = std::env::temp_dir().join(format!("rolloff-fuzz-plot-{}", std::process::id()));
+    std::fs::create_dir_all(&out_dir).expect("temp dir");
+    let good_path = out_dir.join("plot.svg").display().to_string();
+    let bad_path = out_dir
+        .join("no-such-dir")
+        .join("plot.svg")
+        .display()
+        .to_string();
+    let names = rolloff::link::KEYS.to_vec();
+    let mut counts = [0usize; 3];
+    for i in 0..150 {
+        let link = if i % 2 == 0 {
+            random_link(&mut g)
+        } else {
+            keyed_link(&mut g, "?v=2", &names)
+        };
+        let mut args = vec!["plot".to_string(), link.clone()];
+        if g.below(4) != 0 {
+            args.extend(["--kind".to_string(), g.pick(&kinds).to_string()]);
+        }
+        let to_file = match g.below(6) {
+            0 => Some(good_path.clone()),
+            1 => Some(bad_path.clone()),
+            _ => None,
+        };
+        if let Some(path) = &to_file {
+            args.extend(["--out".to_string(), path.clone()]);
+        }
+        let _ = std::fs::remove_file(&good_path);
+        let (code, out, err) =
+            panic::catch_unwind(|| run(&args)).unwrap_or_else(|_| panic!("panic on {args:?}"));
+        match code {
+            0 => {
+                let svg = match &to_file {
+                    Some(path) => std::fs::read_to_string(path)
+                        .unwrap_or_else(|e| panic!("exit 0 but no {path} ({e}) for {args:?}")),
+                    None => out,
+                };
+                assert!(
+                    svg.starts_with("<svg") || svg.starts_with("<?xml"),
+                    "exit 0 without an SVG for {args:?}"
+                );
+            }
+            1 | 2 => {
+                let lines: Vec<&str> = err.lines().filter(|l| !l.contains("warning:")).collect();
+                assert!(
+                    lines.len() == 1 && lines[0].starts_with("rolloff: "),
+                    "exit {code} must give one line on stderr for {args:?}: {err:?}"
+                );
+            }
+            other => panic!("exit {other} for {args:?}: {err}"),
+        }
+        counts[code as usize] += 1;
+    }
+    let _ = std::fs::remove_dir_all(&out_dir);
+    // Exit 1 comes from the unwritable --out path (when the link itself is good).
+    assert!(
+        counts[0] > 20 && counts[1] > 0 && counts[2] > 20,
+        "exits 0/1/2: {counts:?}"
+    );
 }
 
 #[test]

@@ -3,8 +3,9 @@
 //! Source: ngspice (the Debian package `ngspice`, version 39 on the build machine) in batch mode,
 //! on the netlist of `rolloff::export::spice` with its `.ac` card replaced by a `.control` block
 //! that runs `noise` (output noise density) or `tran` (step response) and writes the vectors with
-//! `wrdata`. Tolerances: noise density within 0.5 dB; step response within 1 % of the step
-//! height. When ngspice is missing the tests fail and say what to install.
+//! `wrdata`. Tolerances (just above the worst measured on ngspice 39, see [`NOISE_TOL_DB`] and
+//! [`STEP_TOL`]): noise density within 5e-6 dB; step response within 2.5e-5 of the step height.
+//! When ngspice is missing the tests fail and say what to install.
 //!
 //! ngspice's op-amp subcircuit has no input noise sources, so these comparisons set the op amp's
 //! `en` and `in` to zero and its `Rout` to zero (ngspice would count the thermal noise of the
@@ -32,6 +33,17 @@ fn require_ngspice() {
         ),
     }
 }
+
+/// Noise density tolerance, dB. Source: ngspice 39 `.noise` on our own export (12 digits), 41
+/// points from 10 Hz to 100 kHz on the three boards below: the worst difference measured was
+/// 2.35e-6 dB (mfb-bp4), about what the A0 Ω gain resistor of ngspice's op-amp subcircuit adds
+/// (see the module docs); the bound leaves a factor of two.
+const NOISE_TOL_DB: f64 = 5e-6;
+/// Step response tolerance, fraction of the step height. Source: ngspice 39 `.tran` on our own
+/// export (reltol 1e-6, at most 1 µs steps) against our 50,001-point response interpolated
+/// linearly: the worst difference measured was 1.11e-5 (sk-lp4; mfb-bessel3 9.0e-6), most of it
+/// the interpolation between our points; the bound leaves a factor of about two.
+const STEP_TOL: f64 = 2.5e-5;
 
 fn quiet_opamp() -> OpAmp {
     OpAmp {
@@ -129,7 +141,7 @@ fn run(board: &Board, name: &str, source: Option<&str>, control: &str) -> Vec<Ve
     rows
 }
 
-/// Output noise density of multi-stage boards vs ngspice `.noise`: within 0.5 dB from 10 Hz to
+/// Output noise density of multi-stage boards vs ngspice `.noise`: within [`NOISE_TOL_DB`] from 10 Hz to
 /// 100 kHz (4th-order Sallen-Key low-pass, 5th-order MFB low-pass, 4th-order MFB band-pass).
 #[test]
 fn noise_density_matches_ngspice() {
@@ -183,12 +195,19 @@ fn noise_density_matches_ngspice() {
             },
         )
         .unwrap();
+        // ngspice writes 10 points a decade over four decades, ends included.
+        assert_eq!(rows.len(), 41, "{name}: ngspice rows");
+        assert_eq!(
+            ours.output_density_v_per_rthz.len(),
+            rows.len(),
+            "{name}: one density of ours per ngspice frequency"
+        );
         let mut worst = 0.0f64;
         for (row, &mine) in rows.iter().zip(&ours.output_density_v_per_rthz) {
             let theirs = row[1];
             let d_db = 20.0 * (mine / theirs).log10();
             assert!(
-                d_db.abs() < 0.5,
+                theirs > 0.0 && d_db.abs() < NOISE_TOL_DB,
                 "{name} at {} Hz: ours {mine:e}, ngspice {theirs:e} V/√Hz ({d_db:.3} dB)",
                 row[0]
             );
@@ -202,7 +221,7 @@ fn noise_density_matches_ngspice() {
 }
 
 /// Step response vs ngspice `.tran` of the whole exported board (a 1 V step with 1 ns rise):
-/// within 1 % of the step height at every ngspice time point. Boards: 4th-order Butterworth
+/// within [`STEP_TOL`] of the step height at every ngspice time point. Boards: 4th-order Butterworth
 /// Sallen-Key low-pass with the generic op amp, 3rd-order Bessel MFB low-pass.
 #[test]
 fn step_response_matches_ngspice() {
@@ -248,7 +267,16 @@ fn step_response_matches_ngspice() {
                 "set wr_singlescale\noption numdgt=12\noption reltol=1e-6 abstol=1e-14 vntol=1e-9\ntran 1e-7 {t_end:e} 0 1e-6\nwrdata DATA v(out)"
             ),
         );
+        // A 6 dB low-pass settles near 10^(6/20) times the step (its DC gain): the gain network's
+        // resistors are rounded to the series, which moves it by a few per cent (mfb-bessel3 has
+        // 1.960, −1.8 %), so a step that never rose would fail here rather than pass as "close".
+        let dc_gain = 10f64.powf(6.0 / 20.0);
+        assert!(
+            (height / dc_gain - 1.0).abs() < 0.05,
+            "{name}: final value {height} of a 6 dB low-pass"
+        );
         let mut worst = 0.0f64;
+        let mut n_compared = 0;
         let dt = ours.t_s[1] - ours.t_s[0];
         for row in &rows {
             let (t, theirs) = (row[0], row[1]);
@@ -260,12 +288,17 @@ fn step_response_matches_ngspice() {
             let frac = pos - i as f64;
             let mine = ours.step[i] * (1.0 - frac) + ours.step[i + 1] * frac;
             let d = (mine - theirs).abs() / height;
+            n_compared += 1;
             assert!(
-                d < 0.01,
+                d < STEP_TOL,
                 "{name} at t = {t:e} s: ours {mine}, ngspice {theirs} (step height {height})"
             );
             worst = worst.max(d);
         }
+        assert!(
+            n_compared > 1000,
+            "{name}: only {n_compared} ngspice points inside the window"
+        );
         eprintln!(
             "{name}: worst step difference {:.3e} of the step height over {} points",
             worst,

@@ -116,9 +116,14 @@ pub fn compose(state: &LinkState) -> Result<Design, InputError> {
         // Stage warnings already name their stage.
         warnings.extend(stage.warnings.iter().cloned());
     }
-    let span_hz = state
-        .span_hz
-        .unwrap_or_else(|| auto_span(&synthesis, state.requirement.mask.as_ref()));
+    let span_hz = match state.span_hz {
+        Some(asked) => {
+            let (span, note) = clamp_span(asked);
+            warnings.extend(note);
+            span
+        }
+        None => auto_span(&synthesis, state.requirement.mask.as_ref()),
+    };
     Ok(Design {
         state: state.clone(),
         synthesis,
@@ -150,6 +155,41 @@ fn family_comparison(class: ResponseClass, mask: &Mask, ripple: Option<f64>) -> 
     })
 }
 
+/// The widest plot span, Hz: the automatic span stops here, and a `span` from the link is
+/// narrowed to it. Below 1e-4 Hz and above 1e11 Hz the analyses' powers of ω underflow or
+/// overflow (a span from 1e-300 Hz made the whole tolerance study NaN).
+const SPAN_BOUNDS_HZ: (f64, f64) = (1e-4, 1e11);
+
+/// A span the link asked for, narrowed to [`SPAN_BOUNDS_HZ`], with a warning that says so and
+/// to what when anything changed. A span wholly outside the bounds becomes the decade at the
+/// bound it lies beyond.
+fn clamp_span(asked: (f64, f64)) -> ((f64, f64), Option<String>) {
+    let (min_hz, max_hz) = SPAN_BOUNDS_HZ;
+    let (lo, hi) = asked;
+    let mut span = (lo.clamp(min_hz, max_hz), hi.clamp(min_hz, max_hz));
+    // Also false for a NaN bound, which then takes the top decade rather than staying NaN.
+    let ordered = span.0 < span.1;
+    if !ordered {
+        span = if hi <= min_hz {
+            (min_hz, 10.0 * min_hz)
+        } else {
+            (max_hz / 10.0, max_hz)
+        };
+    }
+    if span == asked {
+        return (span, None);
+    }
+    let hz = |f: f64| crate::units::format_si_unit(f, 4, "Hz");
+    let note = format!(
+        "span: {} … {} was narrowed to {} … {}, the widest span the analyses cover",
+        hz(lo),
+        hz(hi),
+        hz(span.0),
+        hz(span.1)
+    );
+    (span, Some(note))
+}
+
 /// The plot span: two decades below and above the frequencies that matter, on decade bounds.
 fn auto_span(synthesis: &Synthesis, mask: Option<&Mask>) -> (f64, f64) {
     let mut key = vec![synthesis.fc_hz];
@@ -170,7 +210,7 @@ fn auto_span(synthesis: &Synthesis, mask: Option<&Mask>) -> (f64, f64) {
     // A small allowance keeps 999.9999… Hz on the decade of 1 kHz.
     let lo = 10f64.powf(((lo / 100.0).log10() + 1e-9).floor());
     let hi = 10f64.powf(((hi * 100.0).log10() - 1e-9).ceil());
-    (lo.max(1e-4), hi.min(1e11))
+    (lo.max(SPAN_BOUNDS_HZ.0), hi.min(SPAN_BOUNDS_HZ.1))
 }
 
 /// The board with exact (unrounded) part values and an ideal op amp: the design as synthesized.
