@@ -1642,7 +1642,8 @@ fn even_order_chebyshev_with_sallen_key_builds_and_is_ripple_below_the_maximum_a
     // DC gain |k / ∏(−p)| for the design's order at 0.5 dB ripple, which for even orders is
     // 10^(−0.5/20) = −0.5 dB (the scipy gain constant; from memory and common practice). With
     // exact parts and an ideal op amp the board's DC gain must be that within 0.01 dB.
-    let link = "?v=1&resp=lp&family=chebyshev&fpass=20k&apass=0.5&fstop=40k&astop=50";
+    // The ripple is given: from limits alone it would take half the allowed loss.
+    let link = "?v=1&resp=lp&family=chebyshev&ripple=0.5&fpass=20k&apass=0.5&fstop=40k&astop=50";
     let design = compose(link);
     assert_eq!(
         design.state.topology,

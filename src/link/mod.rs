@@ -312,9 +312,10 @@ mod tests {
             |r| {
                 assert!(r.errors.is_empty(), "{:?}", r.errors);
                 assert_eq!(r.state.requirement.order, OrderChoice::FromMask);
+                // The ripple takes half the allowed loss, leaving the rest as margin (README).
                 assert_eq!(
                     r.state.requirement.family,
-                    Family::Chebyshev { ripple_db: 0.5 }
+                    Family::Chebyshev { ripple_db: 0.25 }
                 );
                 assert_eq!(r.state.requirement.fc_hz, None);
             },

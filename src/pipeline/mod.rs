@@ -92,6 +92,7 @@ pub fn compose(state: &LinkState) -> Result<Design, InputError> {
         family_comparison(state.requirement.class, mask, ripple)
     });
     let mut warnings = synthesis.warnings.clone();
+    warnings.extend(realism_warnings(state, &board));
     if let (Family::Chebyshev { ripple_db }, Some(mask)) =
         (state.requirement.family, state.requirement.mask)
     {
@@ -132,6 +133,81 @@ pub fn compose(state: &LinkState) -> Result<Design, InputError> {
         family_orders,
         warnings,
     })
+}
+
+/// Stopband depth a board achieves in practice, dB: beyond about 100–120 dB, layout coupling,
+/// supply rejection and the op amp's own feed-through set the floor (common practice).
+pub const PRACTICAL_DEPTH_DB: f64 = 120.0;
+
+/// Capacitance above which a part comes only as electrolytic, tantalum or high-K ceramic, whose
+/// voltage and temperature coefficients and loss move f0 and Q (common practice: stable C0G/NP0
+/// ceramics and film parts for frequency-setting capacitors reach about 1 µF).
+pub const STABLE_CAPACITOR_MAX_F: f64 = 1e-6;
+
+/// Ratio of a stage's two capacitors beyond which the stage is hard to build well (one part
+/// near the board's stray capacitance or the other impractically large), common practice.
+pub const CAPACITOR_SPREAD_MAX: f64 = 100.0;
+
+/// Q above which a second-order stage's f0 and Q hang on part tolerances and the op amp more than
+/// any E-series rounding can hold (common practice: single op-amp stages are used to Q ≈ 20–30).
+pub const PRACTICAL_Q_MAX: f64 = 30.0;
+
+/// Warnings about a requirement or a board that no real board achieves as drawn, each with its
+/// number and a suggestion.
+fn realism_warnings(state: &LinkState, board: &Board) -> Vec<String> {
+    let mut out = Vec::new();
+    if let Some(mask) = state.requirement.mask {
+        if mask.astop_db > PRACTICAL_DEPTH_DB {
+            out.push(format!(
+                "a stopband depth of {} dB is beyond what a board achieves in practice (about \
+                 {PRACTICAL_DEPTH_DB} dB: layout coupling, supply rejection and op-amp \
+                 feed-through set the floor); measure the prototype's floor, or lower stopdepth",
+                (mask.astop_db * 100.0).round() / 100.0
+            ));
+        }
+    }
+    for (k, stage) in board.stages.iter().enumerate() {
+        let caps: Vec<&crate::netlist::Part> = stage
+            .netlist
+            .parts
+            .iter()
+            .filter(|p| p.kind == crate::netlist::PartKind::Capacitor)
+            .collect();
+        for c in &caps {
+            if c.value > STABLE_CAPACITOR_MAX_F {
+                out.push(format!(
+                    "stage {}: {} = {} is larger than stable capacitors come (about 1 µF): an \
+                     electrolytic or high-K part drifts with voltage and temperature; raise the \
+                     impedance level (rlevel) to make it smaller",
+                    k + 1,
+                    c.reference,
+                    crate::units::format_si_unit(c.value, 3, "F")
+                ));
+            }
+        }
+        if caps.len() >= 2 {
+            let max = caps.iter().map(|c| c.value).fold(0.0, f64::max);
+            let min = caps.iter().map(|c| c.value).fold(f64::INFINITY, f64::min);
+            if min > 0.0 && max / min > CAPACITOR_SPREAD_MAX {
+                out.push(format!(
+                    "stage {}: its capacitors spread {:.0}:1 (more than {CAPACITOR_SPREAD_MAX}:1); \
+                     the small one is near the board's stray capacitance; try a resistor ratio \
+                     (rratio) or the other topology",
+                    k + 1,
+                    max / min
+                ));
+            }
+        }
+        if let Some(q) = stage.section.q.filter(|q| *q > PRACTICAL_Q_MAX) {
+            out.push(format!(
+                "stage {}: Q = {q:.1} is beyond what one op-amp stage holds in practice (about \
+                 {PRACTICAL_Q_MAX}); its f0 and Q follow every part's tolerance; use tighter parts, \
+                 or split the band",
+                k + 1
+            ));
+        }
+    }
+    out
 }
 
 /// The family comparison for a mask, remembered for the last mask asked about: the page
