@@ -4,7 +4,7 @@
 
 use super::{FamilyRow, PartRow, SensitivityRow, StageView, TargetRow, View};
 use crate::design::Synthesis;
-use crate::export::words::ordinal;
+use crate::export::words::{self, ordinal};
 use crate::netlist::PartKind;
 use crate::order;
 use crate::pipeline::{self, Design};
@@ -31,60 +31,24 @@ impl PageWords {
         let state = &design.state;
         let mut problems = analyses.warnings.clone();
         problems.extend(analyses.errors.iter().cloned());
+        // The sentences are the report's own (`export::words`), so the text report and the
+        // page say each figure the same way.
         let noise_line = analyses
             .noise
             .as_ref()
-            .map(|noise| {
-                let mut line = format!(
-                    "output noise {} rms over the signal band {} … {}",
-                    engineering_unit(noise.rms_v, 3, "V"),
-                    engineering_unit(noise.band_hz.0, 3, "Hz"),
-                    engineering_unit(noise.band_hz.1, 3, "Hz")
-                );
-                if let Some(snr) = noise.snr_db {
-                    line.push_str(&format!(" · SNR {snr:.1} dB"));
-                }
-                line
-            })
+            .map(words::noise_line)
             .unwrap_or_default();
         let headroom = analyses
             .levels
             .iter()
             .flatten()
-            .map(|stage| {
-                format!(
-                    "peak {} out at {} ({} headroom)",
-                    engineering_unit(stage.peak_out_v, 3, "V"),
-                    engineering_unit(stage.peak_hz, 3, "Hz"),
-                    format!("{:+.1} dB", stage.headroom_db).replace('-', "−")
-                )
-            })
+            .map(words::headroom_line)
             .collect();
         let needs = analyses
             .opamp_needs
             .iter()
             .flat_map(|report| report.stages.iter())
-            .map(|need| {
-                let gbw = match need.min_gbw_hz {
-                    Some(g) => format!(
-                        "GBW ≥ {} for {} % drift",
-                        engineering_unit(g, 3, "Hz"),
-                        state.signal.drift_pct
-                    ),
-                    None => "more GBW than any op amp has to keep the drift in bounds".to_string(),
-                };
-                let verdict = if need.board_opamp_ok {
-                    "the chosen op amp does"
-                } else {
-                    "the chosen op amp falls short"
-                };
-                format!(
-                    "Needs {gbw} and slew ≥ {} ({} peak at {}); {verdict}.",
-                    engineering_unit(need.slew_v_per_s, 3, "V/s"),
-                    engineering_unit(need.out_pk_v, 3, "V"),
-                    engineering_unit(need.slew_at_hz, 3, "Hz")
-                )
-            })
+            .map(|need| words::needs_sentence(need, state.signal.drift_pct))
             .collect();
         let sensitivities = analyses
             .sensitivities

@@ -261,12 +261,6 @@ fn analysis_text(out: &mut String, design: &Design) {
         );
     }
     if let Some(noise) = &a.noise {
-        let snr = noise.snr_db.map_or(String::new(), |s| {
-            format!(
-                ", SNR {s:.1} dB for vin = {} V peak",
-                design.state.signal.vin_pk
-            )
-        });
         let top: Vec<String> = noise
             .sources
             .iter()
@@ -283,10 +277,9 @@ fn analysis_text(out: &mut String, design: &Design) {
             .collect();
         let _ = writeln!(
             out,
-            "  noise: {}V rms over {}Hz … {}Hz{snr}; largest: {}",
-            spaced(noise.rms_v),
-            spaced(noise.band_hz.0),
-            spaced(noise.band_hz.1),
+            "  {} for vin = {} V peak; largest: {}",
+            super::words::noise_line(noise),
+            design.state.signal.vin_pk,
             top.join(", ")
         );
     }
@@ -294,31 +287,19 @@ fn analysis_text(out: &mut String, design: &Design) {
         for l in levels {
             let _ = writeln!(
                 out,
-                "  stage {} level: peaks {:+.2} dB at {}Hz ({}V peak), headroom {:.1} dB",
+                "  stage {} level: {}",
                 l.stage,
-                l.peak_db,
-                spaced(l.peak_hz),
-                spaced(l.peak_out_v),
-                l.headroom_db
+                super::words::headroom_line(l)
             );
         }
     }
     if let Some(needs) = &a.opamp_needs {
         for n in &needs.stages {
-            let gbw = n
-                .min_gbw_hz
-                .map_or("-".into(), |g| format!("{}Hz", spaced(g)));
             let _ = writeln!(
                 out,
-                "  stage {} op amp: GBW ≥ {gbw} for {} % drift, slew ≥ {}V/s{}",
+                "  stage {} op amp: {}",
                 n.stage,
-                needs.drift_limit_pct,
-                spaced(n.slew_v_per_s),
-                if n.board_opamp_ok {
-                    ""
-                } else {
-                    " (the chosen op amp falls short)"
-                }
+                super::words::needs_sentence(n, needs.drift_limit_pct)
             );
         }
     }

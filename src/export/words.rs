@@ -35,6 +35,54 @@ pub fn verdict(v: &crate::pipeline::verdict::AsBuilt) -> String {
     format!("as built: {}", parts.join(", "))
 }
 
+/// A value with three significant digits and its unit, typographic minus (text read by people).
+fn eng(value: f64, unit: &str) -> String {
+    crate::units::format_si_unit_with(value, 3, unit, crate::units::Minus::Typographic)
+}
+
+/// The noise in one line: RMS over the signal band and the SNR.
+pub fn noise_line(noise: &crate::pipeline::NoiseSummary) -> String {
+    let mut line = format!(
+        "output noise {} rms over the signal band {} … {}",
+        eng(noise.rms_v, "V"),
+        eng(noise.band_hz.0, "Hz"),
+        eng(noise.band_hz.1, "Hz")
+    );
+    if let Some(snr) = noise.snr_db {
+        line.push_str(&format!(" · SNR {snr:.1} dB"));
+    }
+    line
+}
+
+/// A stage's peak output level and headroom in words.
+pub fn headroom_line(level: &crate::pipeline::LevelSummary) -> String {
+    format!(
+        "peak {} out at {} ({} headroom)",
+        eng(level.peak_out_v, "V"),
+        eng(level.peak_hz, "Hz"),
+        format!("{:+.1} dB", level.headroom_db).replace('-', "−")
+    )
+}
+
+/// What a stage asks of its op amp, and whether the chosen one gives it.
+pub fn needs_sentence(need: &crate::analysis::opamp_need::StageNeed, drift_pct: f64) -> String {
+    let gbw = match need.min_gbw_hz {
+        Some(g) => format!("GBW ≥ {} for {drift_pct} % drift", eng(g, "Hz")),
+        None => "more GBW than any op amp has to keep the drift in bounds".to_string(),
+    };
+    let verdict = if need.board_opamp_ok {
+        "the chosen op amp does"
+    } else {
+        "the chosen op amp falls short"
+    };
+    format!(
+        "Needs {gbw} and slew ≥ {} ({} peak at {}); {verdict}.",
+        eng(need.slew_v_per_s, "V/s"),
+        eng(need.out_pk_v, "V"),
+        eng(need.slew_at_hz, "Hz")
+    )
+}
+
 #[cfg(test)]
 mod tests {
     #[test]
