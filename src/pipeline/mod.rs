@@ -383,12 +383,9 @@ const TWO_PI: f64 = 2.0 * std::f64::consts::PI;
 /// How the tolerance study reads a run's cutoff for this family: the ripple-band edge for
 /// Chebyshev, −6.02 dB for Linkwitz-Riley, −3.01 dB otherwise.
 pub fn cutoff_definition(family: Family) -> CutoffDefinition {
-    let db = match family {
-        Family::Chebyshev { ripple_db } => ripple_db,
-        Family::LinkwitzRiley => 20.0 * 2f64.log10(),
-        _ => 10.0 * 2f64.log10(),
-    };
-    CutoffDefinition::Attenuation { db }
+    CutoffDefinition::Attenuation {
+        db: verdict::cutoff_level_db(family),
+    }
 }
 
 /// The settings of the tolerance study the link asks for, over `n_points` frequencies.

@@ -80,18 +80,9 @@ pub fn crossings(solver: &mut BoardSolver, grid: &[f64], level_db: f64) -> Vec<f
     out
 }
 
-fn in_bands(mask: &Mask, f: f64) -> (bool, bool) {
-    match (mask.pass, mask.stop) {
-        (Edge::Single(fp), Edge::Single(fs)) if fp <= fs => (f <= fp, f >= fs),
-        (Edge::Single(fp), Edge::Single(fs)) => (f >= fp, f <= fs),
-        (Edge::Pair(pl, ph), Edge::Pair(sl, sh)) => (f >= pl && f <= ph, f <= sl || f >= sh),
-        _ => (false, false),
-    }
-}
-
 /// The margin of the built board to `mask` at `f`, dB (`None` outside both bands).
 fn margin_at(solver: &mut BoardSolver, mask: &Mask, gain_req_db: f64, f: f64) -> Option<f64> {
-    let (pass, stop) = in_bands(mask, f);
+    let (pass, stop) = crate::analysis::tolerance::bands(mask, f);
     let g = gain_db(solver, f);
     if pass {
         Some(g - (gain_req_db - mask.apass_db))
@@ -206,11 +197,16 @@ pub fn departures(design: &Design, built: &AsBuilt) -> Vec<String> {
     let Some(ideal) = verdict_of(&ideal_board(board)) else {
         return out;
     };
-    let mut parts_only = board.clone();
-    parts_only.op_amp = crate::opamp::OpAmp::ideal();
-    let parts_only = verdict_of(&parts_only);
+    // The board with its parts but an ideal op amp tells the op amp's share apart; it is only
+    // built when there is a departure to explain.
+    let parts_only = std::cell::OnceCell::new();
     let cause = |off: &dyn Fn(&AsBuilt) -> bool| -> &'static str {
-        match &parts_only {
+        let parts_only = parts_only.get_or_init(|| {
+            let mut b = board.clone();
+            b.op_amp = crate::opamp::OpAmp::ideal();
+            verdict_of(&b)
+        });
+        match parts_only {
             Some(p) if !off(p) => "the op amp's finite GBW, gain and output resistance",
             _ if !design.state.overrides.is_empty() => "the parts typed over and the rounding",
             _ => "the rounding to standard values",

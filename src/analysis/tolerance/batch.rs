@@ -1,6 +1,6 @@
 //! The per-batch scratch of a tolerance study ([`Batch`]: eight runs side by side, one per lane)
 //! and the steps that fill it and empty it: the draws, each stage's N and D with the dominant
-//! factor's f0 and Q and the |N|², |D|² table of the kernel, and the recording of the finished
+//! factor's f0 and Q and the |N|², |D|² table of the kernel, and the storing of the finished
 //! runs into the study's results.
 
 use super::{MonteCarlo, PartDistribution, SAMPLE_BLOCK};

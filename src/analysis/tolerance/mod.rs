@@ -52,7 +52,7 @@
 //!
 //! Layout: this file holds the study type and its settings; `plan.rs` builds what is fixed for the
 //! whole study (stages, evaluation grid, mask bounds, instruction set), `batch.rs` the per-batch
-//! scratch and the steps that fill it (draws, stage polynomials, f0 and Q, recording),
+//! scratch and the steps that fill it (draws, stage polynomials, f0 and Q, storing),
 //! `kernel.rs` the lane kernels that evaluate a batch (cascade response, yield, cutoff search),
 //! and `summary.rs` the statistics of the runs (percentiles, histograms, yield, `summarize` and
 //! `finish`). The SIMD lanes are `lanes.rs` beside this module, the root finders `roots.rs`.
@@ -65,6 +65,7 @@ mod summary;
 mod tests;
 
 pub use self::kernel::cascade_kernel_lanes;
+pub use self::plan::bands;
 pub use self::summary::{
     percentile_sorted, percentiles_by_selection, percentiles_f32_by_histogram, spread_of,
     CutoffSide, CutoffSpread, Envelope, Histogram, PercentileCurve, PercentileValue, Spread,

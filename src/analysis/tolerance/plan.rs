@@ -136,8 +136,9 @@ fn validate(settings: &MonteCarloSettings) -> Result<(), AnalysisError> {
     Ok(())
 }
 
-/// In-band test of one frequency against a mask: `(in passband, in stopband)`.
-fn bands(mask: &Mask, f: f64) -> (bool, bool) {
+/// In-band test of one frequency against a mask: `(in passband, in stopband)`. The one rule of
+/// which band a frequency is in, shared by the study's yield and the as-built verdict.
+pub fn bands(mask: &Mask, f: f64) -> (bool, bool) {
     match (mask.pass, mask.stop) {
         (Edge::Single(fp), Edge::Single(fs)) => {
             if fp <= fs {
