@@ -243,6 +243,7 @@ fn least_gbw_for_the_drift_limit_matches_the_closed_form() {
                     f_hz: f0_hz,
                     out_pk_v: 1.0,
                 }],
+                (f0_hz / 10.0, f0_hz),
                 f0_hz,
                 1.0,
             )

@@ -1,13 +1,24 @@
-//! What the op amp must do for each stage: the gain-bandwidth below which the stage's f0 or Q
-//! drifts past a chosen limit, and the slew rate a chosen output amplitude needs at the highest
-//! passband frequency.
+//! What the op amp must do: the gain-bandwidth the whole built board needs to keep its response
+//! within a chosen limit of the same board on an ideal op amp, each stage's own share of it, and
+//! the slew rate a full-scale input needs at each stage's output.
 //!
-//! GBW: the stage is analysed with the op-amp model (the board's A0 and Rout, GBW varied) and
-//! its f0 and Q (dominant poles, [`super::poles::stage_factor`]) are compared with the same stage
-//! on an ideal op amp. The drift `max(|f0/f0_ideal − 1|, |Q/Q_ideal − 1|)` falls as GBW rises;
-//! the least GBW that keeps it within the limit is found by bisection on log(GBW) between 1 Hz
-//! and 1 THz, to 0.1 % — no rule of thumb. A stage that has lost its pole pair (or turned
-//! unstable) at a trial GBW counts as drifted.
+//! Board GBW (the headline): the whole built board (rounded parts, every stage loading the one
+//! before it, the board's A0 and Rout; the GBW of every op amp varied together) is solved on a
+//! grid over the band the signal occupies and compared with the same board on an ideal op amp.
+//! The deviation `max_f | |H_gbw(f)| / |H_ideal(f)| − 1 |` is what a user sees on a response plot
+//! and what the limits check; it is magnitude only, because the mask checks magnitude and the
+//! phase an op amp adds is a group-delay concern the step response already shows. The grid has
+//! 40 points a decade plus the band's edges, and the worst grid point is refined between its
+//! neighbours ([`built::refine_max`]), so a narrow peak of the deviation is not missed. The least
+//! GBW that keeps it within the limit is found on ln(GBW) between 1 Hz and 1 THz, to 0.1 %.
+//!
+//! Stage GBW (secondary): each stage is analysed alone with the op-amp model and its f0 and Q
+//! (dominant poles, [`super::poles::stage_factor`]) are compared with the same stage on an ideal
+//! op amp; the drift `max(|f0/f0_ideal − 1|, |Q/Q_ideal − 1|)` falls as GBW rises and the least
+//! GBW that keeps it within the limit is found the same way. A stage that has lost its pole pair
+//! (or turned unstable) at a trial GBW counts as drifted. It says which stage asks the most; it
+//! is not the board's need (a first-order stage at 10 kHz keeps its f0 within 1 % on a 10 kHz op
+//! amp, while the board's −3 dB point has moved to about 6.4 kHz).
 //!
 //! Slew rate: a sine of peak amplitude V at frequency f needs `2π·f·V` V/s. The caller gives each
 //! stage's worst point over the signal band, from the same per-stage levels of the whole loaded
@@ -34,8 +45,9 @@ pub struct StageNeed {
     pub ideal: StageFactor,
     /// Drift of f0 or Q with the board's op amp, fraction (0.01 = 1 %).
     pub drift_with_board_opamp: f64,
-    /// Least GBW that keeps the drift within the limit, Hz; `None` when even 1 THz does not
-    /// (A0 or Rout alone drift it past the limit).
+    /// Least GBW that keeps this stage's own f0 and Q drift within the limit, Hz (the stage alone,
+    /// secondary to the board's [`OpAmpNeeds::min_gbw_hz`]); `None` when even 1 THz does not (A0
+    /// or Rout alone drift it past the limit).
     pub min_gbw_hz: Option<f64>,
     /// Where over the signal band the stage needs the most slew rate, Hz.
     pub slew_at_hz: f64,
@@ -43,7 +55,8 @@ pub struct StageNeed {
     pub out_pk_v: f64,
     /// Slew rate that amplitude needs, V/s: 2π·f·V.
     pub slew_v_per_s: f64,
-    /// Whether the board's op amp meets both (GBW at or above `min_gbw_hz`, slew at or above).
+    /// Whether the board's op amp meets both: the board's GBW need ([`OpAmpNeeds::min_gbw_hz`],
+    /// not this stage's own) and this stage's slew need.
     pub board_opamp_ok: bool,
 }
 
@@ -57,6 +70,18 @@ pub struct OpAmpNeeds {
     /// The board's output amplitude in the passband for a full-scale input, V peak (the input
     /// amplitude times the built board's measured passband gain).
     pub vout_pk: f64,
+    /// Least GBW, Hz, at which the whole built board stays within `drift_limit_pct` of the same
+    /// board on an ideal op amp over `gbw_band_hz` (magnitude); `None` when even 1 THz does not
+    /// (the board's A0 or Rout alone take it past the limit).
+    pub min_gbw_hz: Option<f64>,
+    /// The band over which the board's deviation was checked, Hz.
+    pub gbw_band_hz: (f64, f64),
+    /// The board's deviation over that band with its own op amp, fraction (0.01 = 1 %).
+    pub deviation_with_board_opamp: f64,
+    /// Where over the band that deviation is largest, Hz.
+    pub deviation_at_hz: f64,
+    /// Whether the board's op amp meets the board's GBW need and every stage's slew need.
+    pub board_opamp_ok: bool,
     /// One entry per stage.
     pub stages: Vec<StageNeed>,
 }
@@ -91,13 +116,13 @@ const GBW_TOLERANCE_LN: f64 = 1e-3;
 /// two, and closes the bracket by the Illinois variant of regula falsi on `ln drift − ln limit`
 /// over `ln GBW`, which is nearly linear there.
 fn least_gbw(
-    drift: impl Fn(f64) -> f64,
+    mut drift: impl FnMut(f64) -> f64,
     limit: f64,
     board_gbw_hz: f64,
     board_drift: f64,
 ) -> Option<f64> {
     let (lo_hz, hi_hz) = GBW_RANGE_HZ;
-    let excess = |u: f64| {
+    let mut excess = |u: f64| {
         let d = drift(u.exp());
         if d.is_nan() {
             f64::INFINITY
@@ -168,6 +193,98 @@ fn least_gbw(
     Some(b.exp())
 }
 
+/// Points a decade of the grid on which the board's deviation is sought.
+const DEVIATION_POINTS_PER_DECADE: f64 = 40.0;
+
+/// The board's deviation from its ideal-op-amp self over a band: the grid and the ideal board's
+/// magnitude on it, computed once and reused at every trial GBW.
+struct Deviation<'a> {
+    stages: &'a [&'a StageNetlist],
+    ideal: BoardSolver,
+    grid_hz: Vec<f64>,
+    ideal_mag: Vec<f64>,
+}
+
+impl<'a> Deviation<'a> {
+    /// The grid over `band_hz` (both ends included) and the ideal-op-amp board on it.
+    fn new(stages: &'a [&'a StageNetlist], band_hz: (f64, f64)) -> Result<Self, AnalysisError> {
+        let (lo, hi) = band_hz;
+        let n = ((hi / lo).log10() * DEVIATION_POINTS_PER_DECADE)
+            .ceil()
+            .clamp(1.0, 4000.0) as usize;
+        let grid_hz: Vec<f64> = (0..=n)
+            .map(|i| lo * (hi / lo).powf(i as f64 / n as f64))
+            .collect();
+        let mut ideal = BoardSolver::new(stages, &OpAmp::ideal())?;
+        let ideal_mag = grid_hz
+            .iter()
+            .map(|&f| ideal.solve_at(f).map(|h| h.norm()))
+            .collect::<Result<Vec<f64>, _>>()?;
+        Ok(Deviation {
+            stages,
+            ideal,
+            grid_hz,
+            ideal_mag,
+        })
+    }
+
+    /// `(max deviation, where)` of the board on op amp `op`: the worst grid point, refined
+    /// between its neighbours. A board that cannot be solved counts as infinitely far.
+    fn worst(&mut self, op: &OpAmp) -> (f64, f64) {
+        let Ok(mut solver) = BoardSolver::new(self.stages, op) else {
+            return (f64::INFINITY, self.grid_hz[0]);
+        };
+        let one = |h: Result<num_complex::Complex64, AnalysisError>, ideal: f64| match h {
+            Ok(h) if ideal > 0.0 => (h.norm() / ideal - 1.0).abs(),
+            _ => f64::INFINITY,
+        };
+        let values: Vec<f64> = self
+            .grid_hz
+            .iter()
+            .zip(&self.ideal_mag)
+            .map(|(&f, &m)| one(solver.solve_at(f), m))
+            .collect();
+        let i_best = values
+            .iter()
+            .enumerate()
+            .max_by(|a, b| a.1.total_cmp(b.1))
+            .map_or(0, |(i, _)| i);
+        if !values[i_best].is_finite() {
+            return (f64::INFINITY, self.grid_hz[i_best]);
+        }
+        let from = self.grid_hz[i_best.saturating_sub(1)];
+        let to = self.grid_hz[(i_best + 1).min(self.grid_hz.len() - 1)];
+        let ideal = &mut self.ideal;
+        let (f, v) = refine_max(&mut solver, from, to, |solver, f| {
+            let m = ideal.solve_at(f).map_or(f64::NAN, |h| h.norm());
+            one(solver.solve_at(f), m)
+        });
+        if v >= values[i_best] {
+            (v, f)
+        } else {
+            (values[i_best], self.grid_hz[i_best])
+        }
+    }
+}
+
+/// The board's GBW need: `(least GBW, deviation with the board's op amp, where)`.
+fn board_gbw(
+    stages: &[&StageNetlist],
+    op: &OpAmp,
+    limit: f64,
+    band_hz: (f64, f64),
+) -> Result<(Option<f64>, f64, f64), AnalysisError> {
+    let mut deviation = Deviation::new(stages, band_hz)?;
+    let (board_dev, board_at) = deviation.worst(op);
+    let least = least_gbw(
+        |gbw_hz| deviation.worst(&OpAmp { gbw_hz, ..*op }).0,
+        limit,
+        op.gbw_hz,
+        board_dev,
+    );
+    Ok((least, board_dev, board_at))
+}
+
 /// Where a stage needs the most slew rate and its output amplitude there.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct SlewPoint {
@@ -177,22 +294,32 @@ pub struct SlewPoint {
     pub out_pk_v: f64,
 }
 
-/// The requirements for the board of `stages` with op amp `op`; `slew[k]` is stage k's worst
-/// slew point over the signal band, whose top is `slew_freq_hz`, and `vout_pk` the board's
-/// passband output amplitude (both recorded as given).
+/// The requirements for the board of `stages` with op amp `op`: the board's GBW need over
+/// `gbw_band_hz` (see the module docs), each stage's own f0/Q need, and the slew needs; `slew[k]`
+/// is stage k's worst slew point over the signal band, whose top is `slew_freq_hz`, and `vout_pk`
+/// the board's passband output amplitude (both recorded as given).
 ///
 /// # Errors
 /// `drift` when the limit is not within 0.001–50 %; `vin` when a stage amplitude is negative or
-/// not finite; `points` when `slew` does not have one point per stage; [`AnalysisError`] when a
-/// stage cannot be analysed on an ideal op amp.
+/// not finite; `points` when `slew` does not have one point per stage; `noiseband` for a GBW band
+/// that is not `0 < lo < hi`; [`AnalysisError`] when the board cannot be analysed on an ideal op
+/// amp.
 pub fn stages_needs(
     stages: &[&StageNetlist],
     op: &OpAmp,
     drift_limit_pct: f64,
     slew: &[SlewPoint],
+    gbw_band_hz: (f64, f64),
     slew_freq_hz: f64,
     vout_pk: f64,
 ) -> Result<OpAmpNeeds, AnalysisError> {
+    let (band_lo, band_hi) = gbw_band_hz;
+    if !(band_lo > 0.0 && band_hi > band_lo && band_hi.is_finite()) {
+        return Err(AnalysisError::Input(InputError::new(
+            "noiseband",
+            format!("GBW band {band_lo} … {band_hi} Hz; accepted 0 < lo < hi"),
+        )));
+    }
     if !(drift_limit_pct.is_finite() && (0.001..=50.0).contains(&drift_limit_pct)) {
         return Err(AnalysisError::Input(InputError::new(
             "drift",
@@ -219,6 +346,8 @@ pub fn stages_needs(
         )));
     }
     let limit = drift_limit_pct / 100.0;
+    let (min_gbw_hz, deviation, deviation_at_hz) = board_gbw(stages, op, limit, gbw_band_hz)?;
+    let gbw_ok = min_gbw_hz.is_some_and(|g| op.gbw_hz >= g);
     let mut out = Vec::with_capacity(stages.len());
     for (k, (net, point)) in stages.iter().zip(slew).enumerate() {
         let ideal = stage_factor(net, &OpAmp::ideal())?;
@@ -235,8 +364,7 @@ pub fn stages_needs(
             stage: k + 1,
             ideal,
             drift_with_board_opamp: board_drift,
-            board_opamp_ok: min_gbw_hz.is_some_and(|g| op.gbw_hz >= g)
-                && op.slew_v_per_s >= slew_v_per_s,
+            board_opamp_ok: gbw_ok && op.slew_v_per_s >= slew_v_per_s,
             min_gbw_hz,
             slew_at_hz: point.f_hz,
             out_pk_v: point.out_pk_v,
@@ -247,6 +375,11 @@ pub fn stages_needs(
         drift_limit_pct,
         slew_freq_hz,
         vout_pk,
+        min_gbw_hz,
+        gbw_band_hz,
+        deviation_with_board_opamp: deviation,
+        deviation_at_hz,
+        board_opamp_ok: gbw_ok && out.iter().all(|s| s.board_opamp_ok),
         stages: out,
     })
 }
@@ -295,7 +428,8 @@ pub fn slew_points(
 
 /// The requirements for `board` over the signal band `band_hz` for a full-scale input `vin_pk`:
 /// the stage levels on 40 points a decade over the band, then [`slew_points`] and
-/// [`stages_needs`]; the board's passband amplitude is `vin_pk·|gain|`.
+/// [`stages_needs`] (the GBW need checked over the same band); the board's passband amplitude is
+/// `vin_pk·|gain|`.
 ///
 /// # Errors
 /// As [`stages_needs`]; `noiseband` for a band that is not `0 < lo < hi`.
@@ -326,6 +460,7 @@ pub fn board_needs(
         &board.op_amp,
         drift_limit_pct,
         &slew,
+        band_hz,
         hi,
         vin_pk * gain.abs(),
     )

@@ -37,7 +37,15 @@ impl PageWords {
             .noise
             .as_ref()
             .map(words::noise_line)
-            .unwrap_or_default();
+            .into_iter()
+            .chain(
+                analyses
+                    .opamp_needs
+                    .as_ref()
+                    .map(|needs| words::board_gbw_sentence(needs, design.board.op_amp.gbw_hz)),
+            )
+            .collect::<Vec<String>>()
+            .join(" · ");
         let headroom = analyses
             .levels
             .iter()
@@ -179,7 +187,7 @@ pub(super) fn text_view(design: &Design, data: &PlotData) -> View {
     if state.requirement.gain_db != 0.0 {
         summary.push_str(&format!(
             " · gain {} dB",
-            format_si(state.requirement.gain_db, 3)
+            crate::export::words::decibels(state.requirement.gain_db)
         ));
     }
     if let OrderChoice::FromMask = state.requirement.order {

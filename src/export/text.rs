@@ -294,6 +294,11 @@ fn analysis_text(out: &mut String, design: &Design) {
         }
     }
     if let Some(needs) = &a.opamp_needs {
+        let _ = writeln!(
+            out,
+            "  op amp: {}",
+            super::words::board_gbw_sentence(needs, design.board.op_amp.gbw_hz)
+        );
         for n in &needs.stages {
             let _ = writeln!(
                 out,

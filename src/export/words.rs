@@ -35,6 +35,18 @@ pub fn verdict(v: &crate::pipeline::verdict::AsBuilt) -> String {
     format!("as built: {}", parts.join(", "))
 }
 
+/// A figure in dB with plain decimals (never an SI prefix: "0.5", not "500m"), typographic minus,
+/// up to three decimals and no trailing zeros.
+pub fn decibels(db: f64) -> String {
+    let text = format!("{db:.3}");
+    let text = if text.contains('.') {
+        text.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        text
+    };
+    text.replace('-', "−")
+}
+
 /// A value with three significant digits and its unit, typographic minus (text read by people).
 fn eng(value: f64, unit: &str) -> String {
     crate::units::format_si_unit_with(value, 3, unit, crate::units::Minus::Typographic)
@@ -64,11 +76,65 @@ pub fn headroom_line(level: &crate::pipeline::LevelSummary) -> String {
     )
 }
 
-/// What a stage asks of its op amp, and whether the chosen one gives it.
+/// The board's GBW need in one sentence, with the band it holds over and whether the chosen op
+/// amp gives it: "GBW ≥ 2.1 MHz keeps the built board within 1 % of its ideal-op-amp response
+/// from 20 Hz to 20 kHz; the chosen op amp (10 MHz) does."
+pub fn board_gbw_sentence(needs: &crate::analysis::opamp_need::OpAmpNeeds, gbw_hz: f64) -> String {
+    let (lo, hi) = needs.gbw_band_hz;
+    let pct = needs.drift_limit_pct;
+    let band = format!("from {} to {}", eng(lo, "Hz"), eng(hi, "Hz"));
+    match needs.min_gbw_hz {
+        Some(need) => {
+            let verdict = if gbw_hz >= need {
+                "does"
+            } else {
+                "falls short"
+            };
+            format!(
+                "GBW ≥ {} keeps the built board within {pct} % of its ideal-op-amp response {band}; \
+                 the chosen op amp ({}) {verdict}.",
+                eng(need, "Hz"),
+                eng(gbw_hz, "Hz")
+            )
+        }
+        None => format!(
+            "No GBW up to 1 THz keeps the built board within {pct} % of its ideal-op-amp response \
+             {band}: the op amp's DC gain or output resistance alone keeps it beyond that (with \
+             the chosen op amp it is {} off at {}); a larger drift allowance, less gain per stage \
+             or an op amp with more DC gain is needed.",
+            percent(needs.deviation_with_board_opamp),
+            eng(needs.deviation_at_hz, "Hz")
+        ),
+    }
+}
+
+/// A fraction as a percentage with three significant digits.
+fn percent(fraction: f64) -> String {
+    if fraction.is_finite() {
+        let pct = fraction * 100.0;
+        let decimals = if pct >= 100.0 {
+            0
+        } else if pct >= 10.0 {
+            1
+        } else {
+            2
+        };
+        format!("{pct:.decimals$} %")
+    } else {
+        "without bound".to_string()
+    }
+}
+
+/// What a stage asks of its op amp: its slew need, and the GBW at which the stage alone keeps its
+/// f0 and Q within the drift allowance (its share of the board's need); and whether the chosen op
+/// amp gives the board's GBW need and this slew.
 pub fn needs_sentence(need: &crate::analysis::opamp_need::StageNeed, drift_pct: f64) -> String {
-    let gbw = match need.min_gbw_hz {
-        Some(g) => format!("GBW ≥ {} for {drift_pct} % drift", eng(g, "Hz")),
-        None => "more GBW than any op amp has to keep the drift in bounds".to_string(),
+    let share = match need.min_gbw_hz {
+        Some(g) => format!(
+            "alone it keeps f0 and Q within {drift_pct} % from GBW ≥ {}",
+            eng(g, "Hz")
+        ),
+        None => format!("alone no GBW up to 1 THz keeps its f0 and Q within {drift_pct} %"),
     };
     let verdict = if need.board_opamp_ok {
         "the chosen op amp does"
@@ -76,7 +142,7 @@ pub fn needs_sentence(need: &crate::analysis::opamp_need::StageNeed, drift_pct: 
         "the chosen op amp falls short"
     };
     format!(
-        "Needs {gbw} and slew ≥ {} ({} peak at {}); {verdict}.",
+        "Needs slew ≥ {} ({} peak at {}); {share}; {verdict}.",
         eng(need.slew_v_per_s, "V/s"),
         eng(need.out_pk_v, "V"),
         eng(need.slew_at_hz, "Hz")

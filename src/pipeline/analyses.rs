@@ -48,6 +48,11 @@ pub const STEP_POINTS: usize = 600;
 /// `noiseband` does not say.
 pub const HIGH_PASS_TOP: f64 = 100.0;
 
+/// The least |Z| a source is expected to drive, Ω: a typical op-amp or sensor output drives
+/// 1–2 kΩ and more (common practice; below that its output stage current-limits or loses
+/// linearity). A board whose input impedance falls below this over the signal band is warned of.
+pub const SOURCE_LOAD_MIN_OHM: f64 = 1e3;
+
 /// The frequency at which the passband gain is read: DC for a low-pass, the centre for a
 /// band-pass, a decade above the cutoff for a high-pass (in the passband, and well below where
 /// the op amp's gain-bandwidth takes gain away). The tolerance study reads its runs' gain here too.
@@ -70,14 +75,42 @@ pub fn signal_band_hz(design: &Design) -> (f64, f64) {
     match (syn.class, pass) {
         (ResponseClass::LowPass, Some(Edge::Single(f))) => (span_lo.min(f / 10.0), f),
         (ResponseClass::LowPass, _) => (span_lo.min(syn.fc_hz / 10.0), syn.fc_hz),
-        (ResponseClass::BandPass, Some(Edge::Pair(lo, hi))) => (lo, hi),
-        (ResponseClass::BandPass, _) => {
-            let bw = syn.bw_hz.unwrap_or(syn.fc_hz);
-            let hi = bw / 2.0 + (bw * bw / 4.0 + syn.fc_hz * syn.fc_hz).sqrt();
-            (syn.fc_hz * syn.fc_hz / hi, hi)
-        }
+        (ResponseClass::BandPass, _) => band_pass_edges_hz(design),
         (ResponseClass::HighPass, Some(Edge::Single(f))) => (f, f * HIGH_PASS_TOP),
         (ResponseClass::HighPass, _) => (syn.fc_hz, syn.fc_hz * HIGH_PASS_TOP),
+    }
+}
+
+/// A band-pass's pass edges, Hz: the limits' when given, else the edges `f0²/hi` and
+/// `hi = bw/2 + √(bw²/4 + f0²)` of its bandwidth around its centre (geometric symmetry).
+fn band_pass_edges_hz(design: &Design) -> (f64, f64) {
+    let syn = &design.synthesis;
+    if let Some(Edge::Pair(lo, hi)) = design.state.requirement.mask.map(|m| m.pass) {
+        return (lo, hi);
+    }
+    let bw = syn.bw_hz.unwrap_or(syn.fc_hz);
+    let hi = bw / 2.0 + (bw * bw / 4.0 + syn.fc_hz * syn.fc_hz).sqrt();
+    (syn.fc_hz * syn.fc_hz / hi, hi)
+}
+
+/// The band over which the board's GBW need is checked, Hz: the passband as the signal uses it.
+/// Low-pass: from the bottom of the signal band to the pass edge (the cutoff without limits);
+/// band-pass: between its pass edges; high-pass: from its pass edge (the cutoff) to the top of the
+/// signal band. A signal band that does not reach past the edge falls back to a decade below the
+/// low-pass edge, or [`HIGH_PASS_TOP`] times the high-pass edge.
+pub fn gbw_band_hz(design: &Design) -> (f64, f64) {
+    let syn = &design.synthesis;
+    let (signal_lo, signal_hi) = signal_band_hz(design);
+    let edge = match design.state.requirement.mask.map(|m| m.pass) {
+        Some(Edge::Single(f)) => f,
+        _ => syn.fc_hz,
+    };
+    match syn.class {
+        ResponseClass::LowPass if signal_lo < edge => (signal_lo, edge),
+        ResponseClass::LowPass => (edge / 10.0, edge),
+        ResponseClass::BandPass => band_pass_edges_hz(design),
+        ResponseClass::HighPass if signal_hi > edge => (edge, signal_hi),
+        ResponseClass::HighPass => (edge, edge * HIGH_PASS_TOP),
     }
 }
 
@@ -145,7 +178,8 @@ pub struct Analyses {
     pub step: Option<StepFigures>,
     /// Step response figures of the ideal design (exact parts, ideal op amp).
     pub step_ideal: Option<StepFigures>,
-    /// Op-amp requirements per stage (GBW for the drift limit, slew rate).
+    /// Op-amp requirements: the board's GBW need over [`gbw_band_hz`], each stage's own GBW share
+    /// and slew rate.
     pub opamp_needs: Option<opamp_need::OpAmpNeeds>,
     /// Each stage's peak level and headroom.
     pub levels: Option<Vec<LevelSummary>>,
@@ -298,6 +332,9 @@ pub fn analyses(design: &Design) -> Analyses {
     if let Some(l) = &levels {
         warnings.extend(l.warnings.iter().cloned());
     }
+    if let Some(solver) = solver.as_mut() {
+        warnings.extend(input_impedance_warning(solver, &freqs, band));
+    }
     let opamp_needs = match (solver.as_mut(), sweep.as_ref(), gain) {
         (Some(solver), Some(sweep), Some(gain)) => {
             let slew = opamp_need::slew_points(solver, sweep, band, signal.vin_pk);
@@ -311,6 +348,7 @@ pub fn analyses(design: &Design) -> Analyses {
                     &board.op_amp,
                     signal.drift_pct,
                     &slew,
+                    gbw_band_hz(design),
                     band.1,
                     signal.vin_pk * gain,
                 ),
@@ -394,4 +432,43 @@ fn refined_levels(
     }
     levels.recheck();
     Ok(levels)
+}
+
+/// The board's least input impedance over the signal band `band_hz` — the plot grid's points
+/// inside it and its ends, refined between the neighbours of the least — and a warning when it is
+/// below [`SOURCE_LOAD_MIN_OHM`], with the value, where, and what raises it.
+fn input_impedance_warning(
+    solver: &mut BoardSolver,
+    grid_hz: &[f64],
+    band_hz: (f64, f64),
+) -> Option<String> {
+    let (lo, hi) = band_hz;
+    let mut points = vec![lo];
+    points.extend(grid_hz.iter().copied().filter(|&f| f > lo && f < hi));
+    points.push(hi);
+    let neg_z = |solver: &mut BoardSolver, f: f64| match solver.solve_at(f) {
+        Ok(_) => -solver.input_impedance_ohm(),
+        Err(_) => f64::NAN,
+    };
+    let values: Vec<f64> = points.iter().map(|&f| neg_z(solver, f)).collect();
+    let i_best = values
+        .iter()
+        .enumerate()
+        .filter(|(_, v)| v.is_finite())
+        .max_by(|a, b| a.1.total_cmp(b.1))
+        .map(|(i, _)| i)?;
+    let from = points[i_best.saturating_sub(1)];
+    let to = points[(i_best + 1).min(points.len() - 1)];
+    let (f, v) = refine_max(solver, from, to, neg_z);
+    let z_min = -v;
+    (z_min.is_finite() && z_min < SOURCE_LOAD_MIN_OHM).then(|| {
+        format!(
+            "the board's input impedance falls to {} at {}, below the {} a typical op-amp or \
+             sensor output drives; raise the impedance level (rlevel) or put a buffer before the \
+             filter",
+            crate::units::format_si_unit(z_min, 3, "Ω"),
+            crate::units::format_si_unit(f, 4, "Hz"),
+            crate::units::format_si_unit(SOURCE_LOAD_MIN_OHM, 3, "Ω")
+        )
+    })
 }
