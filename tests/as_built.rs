@@ -193,3 +193,78 @@ fn the_verdict_agrees_with_ngspice_on_every_demo_and_our_masks() {
         "{n_pass} passing and {n_fail} failing cases"
     );
 }
+
+/// `margin` moves the band for a Chebyshev with limits: all spare selectivity to the stopband
+/// (`pass`), shared (`split`) or all to the passband edge (`stop`) give three cutoffs in that
+/// order. Source: the definition of the three placements (design::band_from_mask's docs) — a
+/// low-pass's cutoff is `fpass / u` with `u` falling from `w_p` (pass) to `w_s/Ω` (stop), so the
+/// cutoff rises strictly from pass to split to stop. With the ripple set by the limits
+/// (passloss/2), the design says the margin it left as a number (0.25 dB of the 0.5 dB allowed).
+#[test]
+fn margin_moves_the_chebyshev_band_and_the_ripple_margin_is_stated() {
+    let base =
+        "?v=2&resp=lp&family=chebyshev&passedge=20k&passloss=0.5&stopedge=40k&stopdepth=50&gbw=10M";
+    let fc: Vec<f64> = ["pass", "split", "stop"]
+        .iter()
+        .map(|m| compose(&format!("{base}&margin={m}")).synthesis.fc_hz)
+        .collect();
+    eprintln!("fc pass/split/stop: {fc:?}");
+    assert!(
+        fc[0] < fc[1] && fc[1] < fc[2],
+        "cutoffs for margin=pass, split, stop: {fc:?}"
+    );
+    // Each differs from the next by more than the 1e-6 relative width the bisection resolves.
+    assert!(
+        fc[1] / fc[0] - 1.0 > 1e-4 && fc[2] / fc[1] - 1.0 > 1e-4,
+        "{fc:?}"
+    );
+    let design = compose(base);
+    assert!(
+        design
+            .warnings
+            .iter()
+            .any(|w| w.contains("ripple (0.25 dB) leaves 0.25 dB of the 0.5 dB")),
+        "the ripple margin note: {:?}",
+        design.warnings
+    );
+}
+
+/// Realism warnings carry their number. Sources: common practice as stated beside each rule in
+/// pipeline (a board's stopband floor is about 120 dB; one op-amp stage holds Q to about 30) and
+/// pipeline::analyses (a source drives 1 kΩ or more); the headroom is the levels analysis's own
+/// figure (swing over peak, dB). The 146 dB stopband is the README geophone demo's (24-bit
+/// converter: 6.02·24 + 1.76 dB); Q = 144.0 is the highest section Q of a 20th-order 3 dB
+/// Chebyshev (scipy.signal.cheb1ap(20, 3): 1/(2·cos of the pole angle) = 144.0); the 0 dB
+/// headroom design is a 20 dB gain stage with a 1 V input into a 10 V swing.
+#[test]
+fn realism_warnings_state_their_numbers() {
+    let cases: [(&str, &[&str]); 4] = [
+        (
+            "?v=2&fsample=2k&adcbits=24&fsignal=200&family=butterworth&topo=mfb",
+            &["146.24 dB", "120 dB"],
+        ),
+        (
+            "?v=2&resp=lp&family=chebyshev&ripple=3&order=20&fc=1k",
+            &["Q = 144.0"],
+        ),
+        (
+            "?v=2&order=2&fc=1k&gain=20&vin=1&swing=10",
+            &["headroom -0.1 dB", "10 V swing"],
+        ),
+        (
+            "?v=2&resp=hp&family=chebyshev&ripple=1&order=4&fc=300&topo=mfb",
+            &["input impedance falls to 192 Ω at 30 kHz", "1 kΩ", "rlevel"],
+        ),
+    ];
+    for (link, numbers) in cases {
+        let design = compose(link);
+        let analyses = rolloff::pipeline::analyses(&design);
+        let all: Vec<&String> = design.warnings.iter().chain(&analyses.warnings).collect();
+        for number in numbers {
+            assert!(
+                all.iter().any(|w| w.contains(number)),
+                "{link}: no warning says {number:?}: {all:?}"
+            );
+        }
+    }
+}
