@@ -465,3 +465,52 @@ pub fn board_needs(
         vin_pk * gain.abs(),
     )
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::pipeline::{analyses, compose};
+
+    fn design(link: &str) -> crate::pipeline::Design {
+        let report = crate::link::parse(link);
+        assert!(report.errors.is_empty(), "{link}: {:?}", report.errors);
+        compose(&report.state).unwrap_or_else(|e| panic!("{link}: {e}"))
+    }
+
+    /// A first-order RC behind a unity-gain follower: the follower's closed-loop gain on a
+    /// single-pole op amp is `1/(1 + jf/GBW)` (physics, to first order in 1/A0; A0 = 100 dB adds
+    /// 1e-5), so the board stays within 1 % of its ideal-op-amp self up to the 10 kHz edge from
+    /// `GBW = f/√(1/0.99² − 1)` = 70.18 kHz — not the 9.87 kHz at which the stage's own f0 stays
+    /// within 1 %. Tolerance 0.2 % (the search's 0.1 % bracket plus A0's share).
+    #[test]
+    fn first_order_board_need_is_the_follower_closed_form() {
+        let d = design("?v=2&order=1&fc=10k");
+        let a = analyses(&d);
+        let needs = a.opamp_needs.expect("needs");
+        let edge = needs.gbw_band_hz.1;
+        assert_eq!(edge, 10e3, "the band ends at the cutoff");
+        let expect = edge / (1.0 / 0.99f64.powi(2) - 1.0).sqrt();
+        let got = needs.min_gbw_hz.expect("a need");
+        assert!(
+            (got / expect - 1.0).abs() < 2e-3,
+            "board need {got} Hz, follower closed form {expect} Hz"
+        );
+        let stage = needs.stages[0].min_gbw_hz.expect("a stage need");
+        assert!(stage < 0.2 * got, "stage share {stage} Hz, board {got} Hz");
+    }
+
+    /// A board whose op amp's DC gain alone breaks the allowance has no GBW need, and says so in
+    /// words. Source: a 60 dB stage on A0 = 100 dB has a loop gain of 40 dB, so its closed-loop
+    /// gain is 1/(1 + 10⁻²) of the ideal's (0.99 % low), and the Sallen-Key's Q hangs on that gain;
+    /// ngspice on the export puts the board 18 % off even at GBW = 1 THz (tests/ngspice_figures.rs).
+    #[test]
+    fn no_gbw_suffices_when_the_dc_gain_alone_breaks_it() {
+        let d = design("?v=2&order=2&fc=10k&gain=60");
+        let a = analyses(&d);
+        let needs = a.opamp_needs.expect("needs");
+        assert_eq!(needs.min_gbw_hz, None);
+        assert!(!needs.board_opamp_ok);
+        let words = crate::export::words::board_gbw_sentence(&needs, d.board.op_amp.gbw_hz);
+        assert!(words.starts_with("No GBW up to 1 THz"), "{words}");
+        assert!(!words.contains("GBW ≥ -"), "{words}");
+    }
+}

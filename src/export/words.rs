@@ -152,6 +152,17 @@ pub fn needs_sentence(need: &crate::analysis::opamp_need::StageNeed, drift_pct: 
 #[cfg(test)]
 mod tests {
     #[test]
+    fn decibels_are_plain_decimals() {
+        // Common practice (dB figures are written in decimals; an SI prefix on a logarithmic
+        // unit, "500m dB", is not read by anyone).
+        let got: Vec<String> = [0.5, -0.25, 3.0, 60.0, 0.001, -12.5]
+            .iter()
+            .map(|&db| super::decibels(db))
+            .collect();
+        assert_eq!(got, ["0.5", "−0.25", "3", "60", "0.001", "−12.5"]);
+    }
+
+    #[test]
     fn ordinals_follow_english() {
         // Common practice (English ordinal suffixes).
         let got: Vec<String> = [1, 2, 3, 4, 11, 12, 13, 21, 22, 101, 111]
