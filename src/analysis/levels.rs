@@ -12,6 +12,7 @@ use crate::board::Board;
 use crate::error::InputError;
 use crate::netlist::StageNetlist;
 use crate::opamp::OpAmp;
+use crate::units::format_si_unit;
 use num_complex::Complex64;
 use serde::Serialize;
 use std::f64::consts::PI;
@@ -193,9 +194,14 @@ impl Levels {
                     "within 1 dB of"
                 };
                 format!(
-                    "stage {} reaches {:.3} V peak at {:.4e} Hz for {} V in, {what} the {} V swing \
+                    "stage {} reaches {} peak at {} for {} in, {what} the {} swing \
                      (headroom {:.1} dB); lower the input or the gain of the stages before it",
-                    st.stage, st.peak_out_v, st.peak_hz, self.vin_pk, self.swing_pk, st.headroom_db
+                    st.stage,
+                    format_si_unit(st.peak_out_v, 4, "V"),
+                    format_si_unit(st.peak_hz, 4, "Hz"),
+                    format_si_unit(self.vin_pk, 4, "V"),
+                    format_si_unit(self.swing_pk, 4, "V"),
+                    st.headroom_db
                 )
             })
             .collect();

@@ -183,6 +183,8 @@ pub struct Analyses {
     pub opamp_needs: Option<opamp_need::OpAmpNeeds>,
     /// Each stage's peak level and headroom.
     pub levels: Option<Vec<LevelSummary>>,
+    /// The board's least input impedance over the signal band and where.
+    pub input_impedance: Option<InputImpedance>,
     /// Target and achieved poles per stage.
     pub poles: Option<Vec<StagePoles>>,
     /// Soft problems found by the analyses (a stage that clips, …).
@@ -332,9 +334,10 @@ pub fn analyses(design: &Design) -> Analyses {
     if let Some(l) = &levels {
         warnings.extend(l.warnings.iter().cloned());
     }
-    if let Some(solver) = solver.as_mut() {
-        warnings.extend(input_impedance_warning(solver, &freqs, band));
-    }
+    let input_impedance = solver
+        .as_mut()
+        .and_then(|solver| least_input_impedance(solver, &freqs, band));
+    warnings.extend(input_impedance.as_ref().and_then(input_impedance_warning));
     let opamp_needs = match (solver.as_mut(), sweep.as_ref(), gain) {
         (Some(solver), Some(sweep), Some(gain)) => {
             let slew = opamp_need::slew_points(solver, sweep, band, signal.vin_pk);
@@ -396,6 +399,7 @@ pub fn analyses(design: &Design) -> Analyses {
                 })
                 .collect()
         }),
+        input_impedance,
         poles,
         warnings,
         errors,
@@ -434,14 +438,23 @@ fn refined_levels(
     Ok(levels)
 }
 
-/// The board's least input impedance over the signal band `band_hz` — the plot grid's points
-/// inside it and its ends, refined between the neighbours of the least — and a warning when it is
-/// below [`SOURCE_LOAD_MIN_OHM`], with the value, where, and what raises it.
-fn input_impedance_warning(
+/// The board's least input impedance over the signal band.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct InputImpedance {
+    /// The least |Z_in| over the signal band, Ω.
+    pub min_ohm: f64,
+    /// Where it is least, Hz.
+    pub at_hz: f64,
+}
+
+/// The board's least input impedance over the signal band `band_hz`: the plot grid's points
+/// inside it and its ends, refined between the neighbours of the least; `None` when the board
+/// cannot be solved anywhere in the band.
+fn least_input_impedance(
     solver: &mut BoardSolver,
     grid_hz: &[f64],
     band_hz: (f64, f64),
-) -> Option<String> {
+) -> Option<InputImpedance> {
     let (lo, hi) = band_hz;
     let mut points = vec![lo];
     points.extend(grid_hz.iter().copied().filter(|&f| f > lo && f < hi));
@@ -460,14 +473,22 @@ fn input_impedance_warning(
     let from = points[i_best.saturating_sub(1)];
     let to = points[(i_best + 1).min(points.len() - 1)];
     let (f, v) = refine_max(solver, from, to, neg_z);
-    let z_min = -v;
-    (z_min.is_finite() && z_min < SOURCE_LOAD_MIN_OHM).then(|| {
+    (v.is_finite()).then_some(InputImpedance {
+        min_ohm: -v,
+        at_hz: f,
+    })
+}
+
+/// A warning when the board's least input impedance is below [`SOURCE_LOAD_MIN_OHM`], with the
+/// value, where, and what raises it.
+fn input_impedance_warning(z: &InputImpedance) -> Option<String> {
+    (z.min_ohm < SOURCE_LOAD_MIN_OHM).then(|| {
         format!(
             "the board's input impedance falls to {} at {}, below the {} a typical op-amp or \
              sensor output drives; raise the impedance level (rlevel) or put a buffer before the \
              filter",
-            crate::units::format_si_unit(z_min, 3, "Ω"),
-            crate::units::format_si_unit(f, 4, "Hz"),
+            crate::units::format_si_unit(z.min_ohm, 3, "Ω"),
+            crate::units::format_si_unit(z.at_hz, 4, "Hz"),
             crate::units::format_si_unit(SOURCE_LOAD_MIN_OHM, 3, "Ω")
         )
     })
