@@ -20,6 +20,7 @@ use super::circuit::AnalysisError;
 use super::poles::{stage_factor, StageFactor};
 use crate::board::Board;
 use crate::error::InputError;
+use crate::fmath;
 use crate::netlist::StageNetlist;
 use crate::opamp::OpAmp;
 use serde::Serialize;
@@ -98,16 +99,16 @@ fn least_gbw(
 ) -> Option<f64> {
     let (lo_hz, hi_hz) = GBW_RANGE_HZ;
     let excess = |u: f64| {
-        let d = drift(u.exp());
+        let d = drift(fmath::exp(u));
         if d.is_nan() {
             f64::INFINITY
         } else {
-            d.ln() - limit.ln()
+            fmath::ln(d) - fmath::ln(limit)
         }
     };
-    let (u_min, u_max) = (lo_hz.ln(), hi_hz.ln());
+    let (u_min, u_max) = (fmath::ln(lo_hz), fmath::ln(hi_hz));
     let guess = if board_gbw_hz.is_finite() && board_drift.is_finite() && board_drift > 0.0 {
-        (board_gbw_hz.ln() + board_drift.ln() - limit.ln()).clamp(u_min, u_max)
+        (fmath::ln(board_gbw_hz) + fmath::ln(board_drift) - fmath::ln(limit)).clamp(u_min, u_max)
     } else {
         0.5 * (u_min + u_max)
     };
@@ -165,7 +166,7 @@ fn least_gbw(
             side = -1;
         }
     }
-    Some(b.exp())
+    Some(fmath::exp(b))
 }
 
 /// Where a stage needs the most slew rate and its output amplitude there.
@@ -268,7 +269,7 @@ pub fn slew_points(
     (0..solver.n_stages())
         .map(|k| {
             let metric = |solver: &mut BoardSolver, f: f64| match solver.solve_at(f) {
-                Ok(_) => f * solver.stage_output(k).norm(),
+                Ok(_) => f * fmath::cnorm(solver.stage_output(k)),
                 Err(_) => f64::NAN,
             };
             let values: Vec<f64> = grid.iter().map(|&f| metric(solver, f)).collect();
@@ -313,9 +314,9 @@ pub fn board_needs(
             format!("signal band {lo} … {hi} Hz; accepted 0 < lo < hi"),
         )));
     }
-    let n = ((hi / lo).log10() * 40.0).ceil().clamp(2.0, 4000.0) as usize;
+    let n = (fmath::log10(hi / lo) * 40.0).ceil().clamp(2.0, 4000.0) as usize;
     let freqs: Vec<f64> = (0..n)
-        .map(|i| lo * (hi / lo).powf(i as f64 / (n - 1) as f64))
+        .map(|i| lo * fmath::powf(hi / lo, i as f64 / (n - 1) as f64))
         .collect();
     let mut solver = BoardSolver::of_board(board)?;
     let sweep = built::sweep(&mut solver, &freqs)?;
