@@ -13,7 +13,7 @@
 //! The names are the std method names, so `x.ln()` reads `fmath::ln(x)` and `x.powf(y)` reads
 //! `fmath::powf(x, y)`. The complex functions follow num-complex 0.4's formulas (its
 //! `norm`, `arg`, `exp`, `ln`, `sqrt`, `powf`, `from_polar`, `cis`) with libm underneath, so their
-//! results are today's to the last bit or two. `clippy.toml` and `tests/layering.rs` keep the std
+//! results are today's to the last bit or two. `clippy.toml` and `tests/one_float.rs` keep the std
 //! and num-complex forms out of `src/`.
 
 use num_complex::Complex64;
