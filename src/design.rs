@@ -12,6 +12,7 @@
 //! 4. the transform ([`crate::transform`]) and the sections ([`crate::sections`]), with the overall
 //!    gain split evenly in dB and the chosen stage order.
 
+use crate::fmath;
 use num_complex::Complex64;
 
 use crate::error::InputError;
@@ -350,7 +351,10 @@ fn split_edge(proto: &Prototype, mask: &Mask, selectivity: f64, w_pass: f64) -> 
     let spare_stop = m_stop(w_pass);
     // A mask met with nothing to spare on either side leaves nothing to share.
     let tiny = 1e-12;
-    if spare_pass.abs() <= tiny || spare_stop.abs() <= tiny || (u_lo / w_pass).ln().abs() <= tiny {
+    if spare_pass.abs() <= tiny
+        || spare_stop.abs() <= tiny
+        || fmath::ln(u_lo / w_pass).abs() <= tiny
+    {
         return w_pass;
     }
     // g runs from −1 at w_pass to about +1 at u_lo and is monotone between them.

@@ -12,6 +12,7 @@
 //! over any decade. The boundary between two neighbours is their geometric mean: in E24, 9.54
 //! goes to 10 (above √(9.1·10) = 9.539) although it is arithmetically nearer 9.1.
 
+use crate::fmath;
 use serde::Serialize;
 
 /// A preferred-number series, or exact values.
@@ -187,7 +188,7 @@ impl Series {
         if !(-40..=40).contains(&exponent) {
             return None;
         }
-        let scale = 10f64.powi(exponent.unsigned_abs() as i32);
+        let scale = fmath::powi(10f64, exponent.unsigned_abs() as i32);
         Some(if exponent >= 0 {
             hundredths * scale
         } else {
@@ -202,7 +203,7 @@ impl Series {
         if n == 0 || !(value.is_finite() && value > 0.0) {
             return None;
         }
-        let decade = value.log10().floor() as i64;
+        let decade = fmath::log10(value).floor() as i64;
         // Look one entry either side of the decade, so that values within rounding of a decade
         // boundary (log10 slightly off) still find their true nearest.
         let first = decade * n - 1;
@@ -234,7 +235,7 @@ impl Series {
             let Some(candidate) = self.value_at(idx) else {
                 continue;
             };
-            let distance = (value / candidate).ln().abs();
+            let distance = fmath::ln(value / candidate).abs();
             if best.map_or(true, |(_, d)| distance < d) {
                 best = Some((idx, distance));
             }
@@ -357,7 +358,7 @@ mod tests {
     fn nearest_is_idempotent_over_decades() {
         for series in Series::ALL {
             for k in 0..400 {
-                let x = 10f64.powf(-12.0 + k as f64 * 0.047);
+                let x = fmath::powf(10f64, -12.0 + k as f64 * 0.047);
                 let once = series.nearest(x);
                 assert_eq!(series.nearest(once), once, "{series:?} at {x}");
                 assert!(series.contains(once));
@@ -388,7 +389,7 @@ mod tests {
                 ]);
             }
             for x in values {
-                let decade = x.log10().floor() as i64;
+                let decade = fmath::log10(x).floor() as i64;
                 let scan = series.nearest_among(x, decade * n - 1..=decade * n + n + 1);
                 assert_eq!(series.nearest_index(x), scan, "{series:?} at {x:e}");
             }

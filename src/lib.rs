@@ -21,6 +21,7 @@ pub mod design;
 pub mod error;
 pub mod eseries;
 pub mod export;
+pub mod fmath;
 pub mod link;
 pub mod mna;
 pub mod netlist;

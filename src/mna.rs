@@ -13,6 +13,7 @@
 //! than a large number.
 
 use crate::board::Board;
+use crate::fmath;
 use crate::netlist::BoardNetlist;
 use crate::netlist::{Node, PartKind, StageNetlist};
 use crate::opamp::OpAmp;
@@ -371,7 +372,9 @@ pub fn solve_dense(
         b.len()
     );
     for r in 0..n {
-        let scale = (0..n).map(|c| a[r * n + c].norm()).fold(0.0, f64::max);
+        let scale = (0..n)
+            .map(|c| fmath::cnorm(a[r * n + c]))
+            .fold(0.0, f64::max);
         if scale == 0.0 || !scale.is_finite() {
             return Err(Singular { column: r });
         }
@@ -383,7 +386,7 @@ pub fn solve_dense(
     for k in 0..n {
         let (pivot_row, pivot_norm) =
             (k..n)
-                .map(|r| (r, a[r * n + k].norm()))
+                .map(|r| (r, fmath::cnorm(a[r * n + k])))
                 .fold(
                     (k, -1.0),
                     |best, cur| if cur.1 > best.1 { cur } else { best },
@@ -431,7 +434,7 @@ fn diagnose(net: &StageNetlist, s: Complex64) -> String {
             .cloned()
             .unwrap_or_else(|| format!("{i}"))
     };
-    let dc = s.norm() == 0.0;
+    let dc = fmath::cnorm(s) == 0.0;
     // Adjacency through parts that conduct at this s (capacitors are open at DC), ground excluded.
     let mut touches = vec![0usize; net.n_nodes];
     let mut adjacency: Vec<Vec<usize>> = vec![Vec::new(); net.n_nodes];
@@ -552,7 +555,7 @@ pub fn input_impedance(
 ) -> Result<Complex64, MnaError> {
     let (x, unknowns) = solve_all(net, op, s, &Drive::Input(Complex64::new(1.0, 0.0)))?;
     let current = x[unknowns.source_branch];
-    if current.norm() == 0.0 {
+    if fmath::cnorm(current) == 0.0 {
         return Err(MnaError::new(format!(
             "the input draws no current at s = {s}: its impedance is infinite"
         )));

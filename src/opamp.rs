@@ -1,5 +1,6 @@
 //! The op-amp model shared by the nodal analysis, the SPICE export and the noise analysis.
 
+use crate::fmath;
 use serde::Serialize;
 
 /// A voltage-feedback op amp: open-loop gain A(s) = A0 / (1 + s/wp) with wp = 2π·GBW/A0 (one pole,
@@ -52,7 +53,7 @@ impl OpAmp {
 
     /// Open-loop DC gain as a ratio, V/V.
     pub fn a0(&self) -> f64 {
-        10f64.powf(self.a0_db / 20.0)
+        fmath::powf(10f64, self.a0_db / 20.0)
     }
 }
 

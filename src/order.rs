@@ -23,6 +23,7 @@
 //! of its prototype, so its prototype order is at most 10.
 
 use crate::error::InputError;
+use crate::fmath;
 use crate::prototype::{self, MAX_ORDER};
 use crate::spec::{Edge, Family, Mask, ResponseClass};
 
@@ -280,18 +281,19 @@ pub fn min_order(
         }
     };
     // Same expressions as scipy so that the rounding up agrees to the last bit.
-    let g_stop = 10f64.powf(0.1 * mask.astop_db);
-    let g_pass = 10f64.powf(0.1 * mask.apass_db);
+    let g_stop = fmath::powf(10f64, 0.1 * mask.astop_db);
+    let g_pass = fmath::powf(10f64, 0.1 * mask.apass_db);
     match family {
         Family::Butterworth => {
-            let real = ((g_stop - 1.0) / (g_pass - 1.0)).log10() / (2.0 * nu.log10());
+            let real = fmath::log10((g_stop - 1.0) / (g_pass - 1.0)) / (2.0 * fmath::log10(nu));
             accept(closed_form_order(real))
         }
         Family::Chebyshev { ripple_db } => {
             prototype::validate(family, 1)?;
             let same = (ripple_db - mask.apass_db).abs() <= 1e-9 * ripple_db.max(1.0);
             if same {
-                let real = ((g_stop - 1.0) / (g_pass - 1.0)).sqrt().acosh() / nu.acosh();
+                let real =
+                    fmath::acosh(((g_stop - 1.0) / (g_pass - 1.0)).sqrt()) / fmath::acosh(nu);
                 accept(closed_form_order(real))
             } else if ripple_db > mask.apass_db {
                 Err(OrderError::Input(InputError::new(

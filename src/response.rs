@@ -14,6 +14,7 @@
 //!   `w0 / (w0² + ω²)` for first order. This equals `Σ −Re p / |jω − p|²` over the section's
 //!   poles (the zeros at the origin and at infinity add none).
 
+use crate::fmath;
 use num_complex::Complex64;
 
 use crate::error::InputError;
@@ -28,7 +29,7 @@ pub fn cascade_response(sections: &[Section], f_hz: f64) -> Complex64 {
 
 /// Gain of the cascade at `f_hz`, dB: `20·log10|H(jω)|` (−∞ where `H` is 0).
 pub fn gain_db(sections: &[Section], f_hz: f64) -> f64 {
-    20.0 * cascade_response(sections, f_hz).norm().log10()
+    20.0 * fmath::log10(fmath::cnorm(cascade_response(sections, f_hz)))
 }
 
 /// Unwrapped phase of the cascade at `f_hz`, degrees (the sum of the section phases).
@@ -92,13 +93,13 @@ pub fn log_frequencies(from_hz: f64, to_hz: f64, n_points: usize) -> Result<Vec<
             format!("a sweep needs 2–100000 points, got {n_points}"),
         ));
     }
-    let (a, b) = (from_hz.ln(), to_hz.ln());
+    let (a, b) = (fmath::ln(from_hz), fmath::ln(to_hz));
     let last = (n_points - 1) as f64;
     Ok((0..n_points)
         .map(|i| match i {
             0 => from_hz,
             _ if i == n_points - 1 => to_hz,
-            _ => (a + (b - a) * i as f64 / last).exp(),
+            _ => fmath::exp(a + (b - a) * i as f64 / last),
         })
         .collect())
 }
@@ -128,7 +129,7 @@ pub fn point(sections: &[Section], f_hz: f64) -> ResponsePoint {
     ResponsePoint {
         freq_hz: f_hz,
         h,
-        gain_db: 20.0 * h.norm().log10(),
+        gain_db: 20.0 * fmath::log10(fmath::cnorm(h)),
         phase_deg: phase_deg(sections, f_hz),
         delay_s: group_delay_s(sections, f_hz),
     }

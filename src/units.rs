@@ -14,6 +14,8 @@
 //! readouts call them too): NaN is `–`, infinities `∞`, prefixes run from f to T, and the minus
 //! sign follows one rule, [`Minus`] (ASCII in text that is read back, U+2212 on figures).
 
+use crate::fmath;
+
 /// The SI prefixes we read and write, with their powers of ten.
 const PREFIXES: [(char, i32); 10] = [
     ('f', -15),
@@ -97,7 +99,7 @@ fn parse_body(body: &str) -> Option<f64> {
     // A space may separate the number from its prefix (`100 nF`), not a code's digits (`4 k7`).
     let head = body[..pos].trim_end();
     let tail = &body[pos + letter.len_utf8()..];
-    let scale = 10f64.powi(exponent);
+    let scale = fmath::powi(10f64, exponent);
     if tail.is_empty() {
         // Suffix form: 2.2k, 10n, 5R (= 5 Ω).
         return parse_plain(head).map(|v| v * scale);
@@ -193,7 +195,7 @@ fn format_si_ascii(value: f64, digits: usize) -> String {
     let rounded: f64 = format!("{:.*e}", digits - 1, magnitude)
         .parse()
         .unwrap_or(magnitude);
-    let decade = rounded.log10().floor() as i32;
+    let decade = fmath::log10(rounded).floor() as i32;
     let engineering = decade.div_euclid(3) * 3;
     let sign = if value < 0.0 { "-" } else { "" };
     if !(-15..=12).contains(&engineering) {
@@ -202,7 +204,7 @@ fn format_si_ascii(value: f64, digits: usize) -> String {
             trim_zeros(&format!("{:.*e}", digits - 1, rounded))
         );
     }
-    let mantissa = rounded / 10f64.powi(engineering);
+    let mantissa = rounded / fmath::powi(10f64, engineering);
     let decimals = (digits as i32 - 1 - (decade - engineering)).max(0) as usize;
     let prefix = match engineering {
         0 => String::new(),
@@ -379,7 +381,7 @@ mod tests {
             for digits in [3, 6, 12] {
                 let text = format_si(x, digits);
                 let back = parse_si(&text).unwrap_or_else(|e| panic!("{text}: {e}"));
-                let tolerance = 0.6 * 10f64.powi(1 - digits as i32);
+                let tolerance = 0.6 * fmath::powi(10f64, 1 - digits as i32);
                 assert!(((back - x) / x).abs() < tolerance, "{x} → {text} → {back}");
             }
             x *= 3.7;

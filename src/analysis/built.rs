@@ -10,6 +10,7 @@
 
 use super::circuit::{merge_stages, transfer_at, AnalysisError, Assembled, Compiled, Solver};
 use crate::board::Board;
+use crate::fmath;
 use crate::netlist::{PartKind, StageNetlist};
 use crate::opamp::OpAmp;
 use num_complex::Complex64;
@@ -124,8 +125,8 @@ impl BoardSolver {
                 y * (Complex64::new(1.0, 0.0) - v_other)
             })
             .sum();
-        if current.norm() > 0.0 {
-            1.0 / current.norm()
+        if fmath::cnorm(current) > 0.0 {
+            1.0 / fmath::cnorm(current)
         } else {
             f64::NAN
         }
@@ -162,7 +163,7 @@ pub fn sweep(solver: &mut BoardSolver, freqs_hz: &[f64]) -> Result<BuiltSweep, A
         out.h.push(h);
         out.z_in_ohm.push(solver.input_impedance_ohm());
         for (k, level) in out.levels_db.iter_mut().enumerate() {
-            level.push(20.0 * solver.stage_output(k).norm().log10());
+            level.push(20.0 * fmath::log10(fmath::cnorm(solver.stage_output(k))));
         }
     }
     Ok(out)
@@ -186,7 +187,7 @@ pub fn refine_max(
             v
         }
     };
-    let (mut a, mut b) = (lo_hz.ln(), hi_hz.ln());
+    let (mut a, mut b) = (fmath::ln(lo_hz), fmath::ln(hi_hz));
     let mut best = (lo_hz, eval(solver, lo_hz));
     let at_hi = eval(solver, hi_hz);
     if at_hi > best.1 {
@@ -198,8 +199,8 @@ pub fn refine_max(
     let ratio = (5f64.sqrt() - 1.0) / 2.0;
     let mut c = b - ratio * (b - a);
     let mut d = a + ratio * (b - a);
-    let mut fc = eval(solver, c.exp());
-    let mut fd = eval(solver, d.exp());
+    let mut fc = eval(solver, fmath::exp(c));
+    let mut fd = eval(solver, fmath::exp(d));
     for _ in 0..60 {
         if b - a < 1e-6 {
             break;
@@ -209,17 +210,17 @@ pub fn refine_max(
             d = c;
             fd = fc;
             c = b - ratio * (b - a);
-            fc = eval(solver, c.exp());
+            fc = eval(solver, fmath::exp(c));
         } else {
             a = c;
             c = d;
             fc = fd;
             d = a + ratio * (b - a);
-            fd = eval(solver, d.exp());
+            fd = eval(solver, fmath::exp(d));
         }
         for (x, v) in [(c, fc), (d, fd)] {
             if v > best.1 {
-                best = (x.exp(), v);
+                best = (fmath::exp(x), v);
             }
         }
     }

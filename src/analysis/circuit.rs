@@ -19,6 +19,7 @@
 //! against the other.
 
 use crate::error::InputError;
+use crate::fmath;
 use crate::netlist::{BoardNetlist, Node, PartKind, StageNetlist};
 use crate::opamp::OpAmp;
 use num_complex::Complex64;
@@ -276,10 +277,10 @@ impl Compiled {
             }
             if is_capacitor {
                 n_c += 1;
-                log_c += p.value.ln();
+                log_c += fmath::ln(p.value);
             } else {
                 n_r += 1;
-                log_r += p.value.ln();
+                log_r += fmath::ln(p.value);
             }
             let (a, b) = (p.nodes[0], p.nodes[1]);
             let mut slots = Vec::with_capacity(4);
@@ -311,7 +312,7 @@ impl Compiled {
             log_rate_sum = -(log_r / n_r as f64 + log_c / n_c as f64);
         }
         let scale_rad_s = if n_r > 0 && n_c > 0 {
-            log_rate_sum.exp()
+            fmath::exp(log_rate_sum)
         } else {
             1.0
         };

@@ -11,6 +11,7 @@
 //! the Cramer numerator is `±Π u_ii (i < n) · y_n` of the LU factors and needs no division.
 
 use super::circuit::{Assembled, Compiled};
+use crate::fmath;
 
 /// One stage prepared for repeated real-point fits.
 #[derive(Debug, Clone)]
@@ -101,7 +102,7 @@ impl FastFit {
                 if k == 1 {
                     1.0
                 } else {
-                    4f64.powf(-1.0 + 2.0 * i as f64 / (k - 1) as f64)
+                    fmath::powf(4f64, -1.0 + 2.0 * i as f64 / (k - 1) as f64)
                 }
             })
             .collect();
@@ -148,7 +149,7 @@ impl FastFit {
             den_samples: vec![0.0; k],
             num_u: vec![0.0; k],
             den_u: vec![0.0; k],
-            to_z: (0..k).map(|j| ratio.powi(-(j as i32))).collect(),
+            to_z: (0..k).map(|j| fmath::powi(ratio, -(j as i32))).collect(),
         }
     }
 

@@ -10,6 +10,7 @@
 use super::circuit::{merge_stages, transfer_at, AnalysisError, Compiled, Solver};
 use crate::board::Board;
 use crate::error::InputError;
+use crate::fmath;
 use crate::netlist::StageNetlist;
 use crate::opamp::OpAmp;
 use crate::units::format_si_unit;
@@ -100,7 +101,7 @@ pub fn stages_levels(
         )?;
         let x = solver.solution();
         for (curve, &c) in curves.iter_mut().zip(&cols) {
-            curve.push(20.0 * x[c].norm().log10());
+            curve.push(20.0 * fmath::log10(fmath::cnorm(x[c])));
         }
     }
     from_curves(freqs_hz, curves, vin_pk, swing_pk)
@@ -174,8 +175,8 @@ impl StageLevel {
     pub fn set_peak(&mut self, peak_hz: f64, peak_db: f64, vin_pk: f64, swing_pk: f64) {
         self.peak_hz = peak_hz;
         self.peak_db = peak_db;
-        self.peak_out_v = vin_pk * 10f64.powf(peak_db / 20.0);
-        self.headroom_db = 20.0 * (swing_pk / self.peak_out_v).log10();
+        self.peak_out_v = vin_pk * fmath::powf(10f64, peak_db / 20.0);
+        self.headroom_db = 20.0 * fmath::log10(swing_pk / self.peak_out_v);
     }
 }
 

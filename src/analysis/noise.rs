@@ -21,6 +21,7 @@
 use super::circuit::{input_drive, merge_stages, AnalysisError, Compiled, Solver};
 use crate::board::Board;
 use crate::error::InputError;
+use crate::fmath;
 use crate::netlist::{PartKind, StageNetlist};
 use crate::opamp::OpAmp;
 use num_complex::Complex64;
@@ -218,7 +219,7 @@ pub fn stages_noise(
         solver.load_transposed(&assembled, s);
         solver.rhs_mut()[compiled.output_col] = Complex64::new(1.0, 0.0);
         let det = solver.solve();
-        if det.norm() == 0.0 {
+        if fmath::cnorm(det) == 0.0 {
             return Err(AnalysisError::Singular(format!(
                 "board equations at {f} Hz: a node without a DC path or an op amp without feedback"
             )));
@@ -230,7 +231,7 @@ pub fn stages_noise(
             out.push(z.norm_sqr() * src.psd);
         }
         let gain: Complex64 = y.iter().zip(&drive).map(|(a, b)| a * b).sum();
-        Ok(gain.norm())
+        Ok(fmath::cnorm(gain))
     };
     // Curves.
     let n_f = settings.freqs_hz.len();
@@ -297,7 +298,7 @@ pub fn stages_noise(
     let snr_db = settings
         .signal_v_rms
         .filter(|_| rms_v > 0.0)
-        .map(|v| 20.0 * (v / rms_v).log10());
+        .map(|v| 20.0 * fmath::log10(v / rms_v));
     Ok(NoiseReport {
         freqs_hz: settings.freqs_hz.clone(),
         output_density_v_per_rthz: total,
@@ -380,11 +381,16 @@ pub(crate) fn integrate_log_f<E>(
     n: usize,
     mut eval: impl FnMut(f64, &mut [f64]) -> Result<(), E>,
 ) -> Result<Vec<f64>, E> {
-    let (ua, ub) = (lo.ln(), hi.ln());
+    let (ua, ub) = (fmath::ln(lo), fmath::ln(hi));
     let n0 = ((ub - ua) / std::f64::consts::LN_10).ceil().max(2.0) as usize;
     let mut edges: Vec<f64> = (0..=n0)
         .map(|i| ua + (ub - ua) * i as f64 / n0 as f64)
-        .chain(breaks.iter().map(|f| f.ln()).filter(|u| *u > ua && *u < ub))
+        .chain(
+            breaks
+                .iter()
+                .map(|f| fmath::ln(*f))
+                .filter(|u| *u > ua && *u < ub),
+        )
         .collect();
     edges.sort_by(f64::total_cmp);
     edges.dedup_by(|x, y| (*x - *y).abs() <= 1e-12 * (ub - ua));
@@ -396,7 +402,7 @@ pub(crate) fn integrate_log_f<E>(
         for (j, (&x, &w)) in KRONROD_NODES.iter().zip(&KRONROD_WEIGHTS).enumerate() {
             let points: &[f64] = if x == 0.0 { &[0.0] } else { &[-x, x] };
             for &t in points {
-                let f = (c + h * t).exp();
+                let f = fmath::exp(c + h * t);
                 eval(f, &mut value)?;
                 let mut sum = 0.0;
                 for (k, v) in kronrod.iter_mut().zip(&value) {
@@ -473,7 +479,7 @@ mod tests {
                         0.0
                     }
                 } else {
-                    2.0 * x.powi(m)
+                    2.0 * fmath::powi(x, m)
                 };
                 kronrod += w * both;
                 if j % 2 == 1 {

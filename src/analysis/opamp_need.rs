@@ -31,6 +31,7 @@ use super::circuit::AnalysisError;
 use super::poles::{stage_factor, StageFactor};
 use crate::board::Board;
 use crate::error::InputError;
+use crate::fmath;
 use crate::netlist::StageNetlist;
 use crate::opamp::OpAmp;
 use serde::Serialize;
@@ -123,16 +124,16 @@ fn least_gbw(
 ) -> Option<f64> {
     let (lo_hz, hi_hz) = GBW_RANGE_HZ;
     let mut excess = |u: f64| {
-        let d = drift(u.exp());
+        let d = drift(fmath::exp(u));
         if d.is_nan() {
             f64::INFINITY
         } else {
-            d.ln() - limit.ln()
+            fmath::ln(d) - fmath::ln(limit)
         }
     };
-    let (u_min, u_max) = (lo_hz.ln(), hi_hz.ln());
+    let (u_min, u_max) = (fmath::ln(lo_hz), fmath::ln(hi_hz));
     let guess = if board_gbw_hz.is_finite() && board_drift.is_finite() && board_drift > 0.0 {
-        (board_gbw_hz.ln() + board_drift.ln() - limit.ln()).clamp(u_min, u_max)
+        (fmath::ln(board_gbw_hz) + fmath::ln(board_drift) - fmath::ln(limit)).clamp(u_min, u_max)
     } else {
         0.5 * (u_min + u_max)
     };
@@ -190,7 +191,7 @@ fn least_gbw(
             side = -1;
         }
     }
-    Some(b.exp())
+    Some(fmath::exp(b))
 }
 
 /// Points a decade of the grid on which the board's deviation is sought.
@@ -209,16 +210,16 @@ impl<'a> Deviation<'a> {
     /// The grid over `band_hz` (both ends included) and the ideal-op-amp board on it.
     fn new(stages: &'a [&'a StageNetlist], band_hz: (f64, f64)) -> Result<Self, AnalysisError> {
         let (lo, hi) = band_hz;
-        let n = ((hi / lo).log10() * DEVIATION_POINTS_PER_DECADE)
+        let n = (fmath::log10(hi / lo) * DEVIATION_POINTS_PER_DECADE)
             .ceil()
             .clamp(1.0, 4000.0) as usize;
         let grid_hz: Vec<f64> = (0..=n)
-            .map(|i| lo * (hi / lo).powf(i as f64 / n as f64))
+            .map(|i| lo * fmath::powf(hi / lo, i as f64 / n as f64))
             .collect();
         let mut ideal = BoardSolver::new(stages, &OpAmp::ideal())?;
         let ideal_mag = grid_hz
             .iter()
-            .map(|&f| ideal.solve_at(f).map(|h| h.norm()))
+            .map(|&f| ideal.solve_at(f).map(fmath::cnorm))
             .collect::<Result<Vec<f64>, _>>()?;
         Ok(Deviation {
             stages,
@@ -235,7 +236,7 @@ impl<'a> Deviation<'a> {
             return (f64::INFINITY, self.grid_hz[0]);
         };
         let one = |h: Result<num_complex::Complex64, AnalysisError>, ideal: f64| match h {
-            Ok(h) if ideal > 0.0 => (h.norm() / ideal - 1.0).abs(),
+            Ok(h) if ideal > 0.0 => (fmath::cnorm(h) / ideal - 1.0).abs(),
             _ => f64::INFINITY,
         };
         let values: Vec<f64> = self
@@ -256,7 +257,7 @@ impl<'a> Deviation<'a> {
         let to = self.grid_hz[(i_best + 1).min(self.grid_hz.len() - 1)];
         let ideal = &mut self.ideal;
         let (f, v) = refine_max(&mut solver, from, to, |solver, f| {
-            let m = ideal.solve_at(f).map_or(f64::NAN, |h| h.norm());
+            let m = ideal.solve_at(f).map_or(f64::NAN, fmath::cnorm);
             one(solver.solve_at(f), m)
         });
         if v >= values[i_best] {
@@ -401,7 +402,7 @@ pub fn slew_points(
     (0..solver.n_stages())
         .map(|k| {
             let metric = |solver: &mut BoardSolver, f: f64| match solver.solve_at(f) {
-                Ok(_) => f * solver.stage_output(k).norm(),
+                Ok(_) => f * fmath::cnorm(solver.stage_output(k)),
                 Err(_) => f64::NAN,
             };
             let values: Vec<f64> = grid.iter().map(|&f| metric(solver, f)).collect();
@@ -447,9 +448,9 @@ pub fn board_needs(
             format!("signal band {lo} … {hi} Hz; accepted 0 < lo < hi"),
         )));
     }
-    let n = ((hi / lo).log10() * 40.0).ceil().clamp(2.0, 4000.0) as usize;
+    let n = (fmath::log10(hi / lo) * 40.0).ceil().clamp(2.0, 4000.0) as usize;
     let freqs: Vec<f64> = (0..n)
-        .map(|i| lo * (hi / lo).powf(i as f64 / (n - 1) as f64))
+        .map(|i| lo * fmath::powf(hi / lo, i as f64 / (n - 1) as f64))
         .collect();
     let mut solver = BoardSolver::of_board(board)?;
     let sweep = built::sweep(&mut solver, &freqs)?;
@@ -488,7 +489,7 @@ mod tests {
         let needs = a.opamp_needs.expect("needs");
         let edge = needs.gbw_band_hz.1;
         assert_eq!(edge, 10e3, "the band ends at the cutoff");
-        let expect = edge / (1.0 / 0.99f64.powi(2) - 1.0).sqrt();
+        let expect = edge / (1.0 / (0.99f64 * 0.99) - 1.0).sqrt();
         let got = needs.min_gbw_hz.expect("a need");
         assert!(
             (got / expect - 1.0).abs() < 2e-3,

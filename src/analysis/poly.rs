@@ -16,6 +16,7 @@
 //! orders of 12 and more.
 
 use super::circuit::{AnalysisError, Assembled, Compiled, Solver};
+use crate::fmath;
 use crate::netlist::StageNetlist;
 use crate::opamp::OpAmp;
 use num_complex::Complex64;
@@ -164,7 +165,7 @@ fn initial_guesses(c: &[f64]) -> Vec<Complex64> {
         .iter()
         .enumerate()
         .filter(|(_, &v)| v != 0.0)
-        .map(|(k, &v)| (k, v.abs().ln()))
+        .map(|(k, &v)| (k, fmath::ln(v.abs())))
         .collect();
     let mut hull: Vec<(usize, f64)> = Vec::new();
     for &p in &pts {
@@ -188,10 +189,10 @@ fn initial_guesses(c: &[f64]) -> Vec<Complex64> {
         let (i, li) = w[0];
         let (j, lj) = w[1];
         let m = j - i;
-        let r = ((li - lj) / m as f64).exp();
+        let r = fmath::exp((li - lj) / m as f64);
         for k in 0..m {
             let ang = 2.0 * PI * k as f64 / m as f64 + offset;
-            guesses.push(Complex64::from_polar(r, ang));
+            guesses.push(fmath::from_polar(r, ang));
         }
         offset += 0.7;
     }
@@ -250,7 +251,7 @@ pub fn roots(c: &[f64]) -> Result<Vec<Complex64>, AnalysisError> {
         return Ok(sorted(out));
     }
     // Scale the variable so the extreme roots' geometric mean is 1.
-    let scale = (c[0].abs() / c[n].abs()).powf(1.0 / n as f64);
+    let scale = fmath::powf(c[0].abs() / c[n].abs(), 1.0 / n as f64);
     let cs: Vec<f64> = {
         let mut f = 1.0;
         let raw: Vec<f64> = c
@@ -285,7 +286,7 @@ pub fn roots(c: &[f64]) -> Result<Vec<Complex64>, AnalysisError> {
             if step.is_finite() {
                 z[i] -= step;
             }
-            if step.norm() <= 4.0 * f64::EPSILON * z[i].norm() || !step.is_finite() {
+            if fmath::cnorm(step) <= 4.0 * f64::EPSILON * fmath::cnorm(z[i]) || !step.is_finite() {
                 done[i] = true;
             } else {
                 all_done = false;
@@ -304,7 +305,7 @@ pub fn roots(c: &[f64]) -> Result<Vec<Complex64>, AnalysisError> {
     let mut found: Vec<Complex64> = z.iter().map(|v| v * scale).collect();
     merge_clusters(&mut found);
     for r in found.iter_mut() {
-        if r.im.abs() <= 1e-12 * r.norm() {
+        if r.im.abs() <= 1e-12 * fmath::cnorm(*r) {
             r.im = 0.0;
         }
     }
@@ -321,7 +322,8 @@ fn merge_clusters(z: &mut [Complex64]) {
         }
         group[i] = i;
         for j in (i + 1)..n {
-            if group[j] == usize::MAX && (z[i] - z[j]).norm() <= 1e-6 * z[i].norm().max(z[j].norm())
+            if group[j] == usize::MAX
+                && fmath::cnorm(z[i] - z[j]) <= 1e-6 * fmath::cnorm(z[i]).max(fmath::cnorm(z[j]))
             {
                 group[j] = i;
             }
@@ -340,8 +342,8 @@ fn merge_clusters(z: &mut [Complex64]) {
 
 fn sorted(mut v: Vec<Complex64>) -> Vec<Complex64> {
     v.sort_by(|a, b| {
-        a.norm()
-            .partial_cmp(&b.norm())
+        fmath::cnorm(*a)
+            .partial_cmp(&fmath::cnorm(*b))
             .unwrap_or(std::cmp::Ordering::Equal)
             .then(a.im.partial_cmp(&b.im).unwrap_or(std::cmp::Ordering::Equal))
     });
@@ -450,10 +452,10 @@ impl FitWork {
     pub fn new(compiled: &Compiled) -> FitWork {
         let k = compiled.degree_bound + 1;
         let unit_points = (0..k)
-            .map(|i| Complex64::from_polar(1.0, PI * (2 * i + 1) as f64 / k as f64))
+            .map(|i| fmath::from_polar(1.0, PI * (2 * i + 1) as f64 / k as f64))
             .collect();
         let twiddles = (0..2 * k)
-            .map(|m| Complex64::from_polar(1.0, -PI * m as f64 / k as f64))
+            .map(|m| fmath::from_polar(1.0, -PI * m as f64 / k as f64))
             .collect();
         FitWork {
             solver: Solver::new(compiled.n),
@@ -541,7 +543,7 @@ pub fn fitted_rational(
     let d = &first.den.c;
     let n = first.den.degree();
     if n >= 1 && d[0] != 0.0 {
-        let ratio = (d[0].abs() / d[n].abs()).powf(1.0 / n as f64);
+        let ratio = fmath::powf(d[0].abs() / d[n].abs(), 1.0 / n as f64);
         if ratio.is_finite() && !(0.5..=2.0).contains(&ratio) {
             if let Ok(second) =
                 fit_at_some_radius(compiled, assembled, work, first.scale_rad_s * ratio)

@@ -8,6 +8,7 @@
 //! sensitivities share these without importing each other.
 
 use super::lanes::{RunLanes, RUN_LANES};
+use crate::fmath;
 use num_complex::Complex64;
 
 /// The dominant quadratic factor `z² + u·z + v` of `d` (ascending coefficients) by Bairstow's
@@ -89,8 +90,8 @@ pub(crate) fn newton_real(d: &[f64], mut z: f64) -> Option<f64> {
 pub(crate) fn dominant_w0_q(poles: &[Complex64], order: usize) -> Option<(f64, f64)> {
     let mut p: Vec<Complex64> = poles.to_vec();
     p.sort_by(|a, b| {
-        a.norm()
-            .partial_cmp(&b.norm())
+        fmath::cnorm(*a)
+            .partial_cmp(&fmath::cnorm(*b))
             .unwrap_or(std::cmp::Ordering::Equal)
     });
     match order {

@@ -18,6 +18,7 @@ use super::poles::stage_order;
 use super::poly::{FitWork, Poly, FIT_TRIM_REL};
 use super::roots::{bairstow, dominant_w0_q};
 use crate::board::Board;
+use crate::fmath;
 use crate::netlist::{PartKind, StageNetlist};
 use crate::opamp::OpAmp;
 use serde::Serialize;
@@ -93,8 +94,8 @@ pub fn stage_sensitivities(
     // The dominant poles themselves (in z = s/ρ).
     let mut sorted = roots.clone();
     sorted.sort_by(|a, b| {
-        a.norm()
-            .partial_cmp(&b.norm())
+        fmath::cnorm(*a)
+            .partial_cmp(&fmath::cnorm(*b))
             .unwrap_or(std::cmp::Ordering::Equal)
     });
     let d_trim = d0p.trimmed(FIT_TRIM_REL);

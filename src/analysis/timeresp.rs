@@ -20,6 +20,7 @@ use super::circuit::AnalysisError;
 use super::poly::{stage_transfer, Rational};
 use crate::board::Board;
 use crate::error::InputError;
+use crate::fmath;
 use crate::netlist::StageNetlist;
 use crate::opamp::OpAmp;
 use num_complex::Complex64;
@@ -246,7 +247,7 @@ pub fn cascade_response(
                 )));
             }
             slowest_decay = slowest_decay.min(-p.re);
-            lowest_mag = lowest_mag.min(p.norm());
+            lowest_mag = lowest_mag.min(fmath::cnorm(p));
         }
     }
     if !slowest_decay.is_finite() {

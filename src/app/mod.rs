@@ -7,6 +7,7 @@
 //! facade only keeps the last good model and converts values at the boundary; the same functions
 //! run in native tests, so the page shows exactly what the core computes.
 
+use crate::fmath;
 use num_complex::Complex64;
 use serde::Serialize;
 use std::f64::consts::PI;
@@ -360,12 +361,20 @@ pub fn compose_timed(state: &LinkState, watch: &mut Stopwatch) -> Result<PageMod
     let synthesis = &design.synthesis;
     let freqs = built.freq_hz.clone();
     let ideal = ideal_sweep(synthesis, &freqs);
-    let mut phase_deg: Vec<f64> = built.h.iter().map(|h| h.arg().to_degrees()).collect();
+    let mut phase_deg: Vec<f64> = built
+        .h
+        .iter()
+        .map(|h| fmath::carg(*h).to_degrees())
+        .collect();
     unwrap_deg(&mut phase_deg);
     let delay_s = delay_of(&freqs, &phase_deg);
     let built_curve = Sweep {
         freq_hz: freqs.clone(),
-        gain_db: built.h.iter().map(|h| 20.0 * h.norm().log10()).collect(),
+        gain_db: built
+            .h
+            .iter()
+            .map(|h| 20.0 * fmath::log10(fmath::cnorm(*h)))
+            .collect(),
         phase_deg,
         delay_s,
     };
@@ -452,7 +461,7 @@ pub fn compose_timed(state: &LinkState, watch: &mut Stopwatch) -> Result<PageMod
                 y: y.clone(),
             })
             .collect(),
-        level_limit_db: Some(20.0 * (state.signal.swing_pk / state.signal.vin_pk).log10()),
+        level_limit_db: Some(20.0 * fmath::log10(state.signal.swing_pk / state.signal.vin_pk)),
         hist_cutoff: None,
         hist_gain: None,
     };

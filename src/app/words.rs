@@ -5,6 +5,7 @@
 use super::{FamilyRow, PartRow, SensitivityRow, StageView, TargetRow, View};
 use crate::design::Synthesis;
 use crate::export::words::{self, ordinal};
+use crate::fmath;
 use crate::netlist::PartKind;
 use crate::order;
 use crate::pipeline::{self, Design};
@@ -333,7 +334,9 @@ pub fn level_crossings(sweep: &Sweep, level_db: f64) -> Vec<f64> {
                 return None;
             }
             let t = a / (a - b);
-            Some((f[0].ln() + t * (f[1].ln() - f[0].ln())).exp())
+            Some(fmath::exp(
+                fmath::ln(f[0]) + t * (fmath::ln(f[1]) - fmath::ln(f[0])),
+            ))
         })
         .collect()
 }
@@ -352,7 +355,7 @@ fn figures_line(data: &PlotData) -> String {
         .fold(f64::NEG_INFINITY, f64::max);
     let mut parts = Vec::new();
     let reference = data.gain_db;
-    let crossings = level_crossings(built, reference - 10.0 * 2f64.log10());
+    let crossings = level_crossings(built, reference - 10.0 * fmath::log10(2f64));
     if !crossings.is_empty() {
         let list: Vec<String> = crossings
             .iter()

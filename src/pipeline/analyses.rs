@@ -28,6 +28,7 @@ use crate::analysis::sensitivity::{self, StageSensitivity};
 use crate::analysis::timeresp::{self, StepFigures, TimeResponse, TimeSettings};
 use crate::analysis::{levels, opamp_need};
 use crate::board::Board;
+use crate::fmath;
 use crate::netlist::StageNetlist;
 use crate::spec::{Edge, ResponseClass};
 use serde::Serialize;
@@ -263,7 +264,7 @@ pub fn analyses(design: &Design) -> Analyses {
             &mut errors,
             board,
             "passband gain",
-            solver.solve_at(ref_hz).map(|h| h.norm()),
+            solver.solve_at(ref_hz).map(fmath::cnorm),
         )
     });
 
@@ -363,7 +364,7 @@ pub fn analyses(design: &Design) -> Analyses {
         (Some(solver), Some(gain)) => Some(super::verdict::as_built(
             design,
             solver,
-            20.0 * gain.log10(),
+            20.0 * fmath::log10(gain),
         )),
         _ => None,
     };
@@ -378,7 +379,7 @@ pub fn analyses(design: &Design) -> Analyses {
     );
     let poles = keep(&mut errors, board, "poles", poles::board_poles(board));
     Analyses {
-        passband_gain_db: gain.map(|g| 20.0 * g.log10()),
+        passband_gain_db: gain.map(|g| 20.0 * fmath::log10(g)),
         passband_ref_hz: ref_hz,
         signal_band_hz: band,
         as_built,
@@ -427,7 +428,7 @@ fn refined_levels(
         let from = freqs[i.saturating_sub(1)];
         let to = freqs[(i + 1).min(freqs.len() - 1)];
         let (f, db) = refine_max(solver, from, to, |solver, f| match solver.solve_at(f) {
-            Ok(_) => 20.0 * solver.stage_output(k).norm().log10(),
+            Ok(_) => 20.0 * fmath::log10(fmath::cnorm(solver.stage_output(k))),
             Err(_) => f64::NAN,
         });
         if db > stage.peak_db {

@@ -14,6 +14,7 @@ use crate::analysis::tolerance::{
 use crate::board::{Board, BuildChoices, ImpedanceLevel};
 use crate::design::{self, Synthesis};
 use crate::error::InputError;
+use crate::fmath;
 use crate::link::{Distribution, LinkState};
 use crate::mna;
 use crate::opamp::OpAmp;
@@ -284,8 +285,8 @@ fn auto_span(synthesis: &Synthesis, mask: Option<&Mask>) -> (f64, f64) {
     let lo = key.iter().cloned().fold(f64::INFINITY, f64::min);
     let hi = key.iter().cloned().fold(0.0, f64::max);
     // A small allowance keeps 999.9999… Hz on the decade of 1 kHz.
-    let lo = 10f64.powf(((lo / 100.0).log10() + 1e-9).floor());
-    let hi = 10f64.powf(((hi * 100.0).log10() - 1e-9).ceil());
+    let lo = fmath::powf(10f64, (fmath::log10(lo / 100.0) + 1e-9).floor());
+    let hi = fmath::powf(10f64, (fmath::log10(hi * 100.0) - 1e-9).ceil());
     (lo.max(SPAN_BOUNDS_HZ.0), hi.min(SPAN_BOUNDS_HZ.1))
 }
 
@@ -339,29 +340,29 @@ pub fn sweep(
         let step = 1e-4;
         let ratio = solver.solve_at(f * (1.0 + step)).map_err(failed)?
             / solver.solve_at(f * (1.0 - step)).map_err(failed)?;
-        let delay_s = -ratio.arg() / (TWO_PI * f * 2.0 * step);
+        let delay_s = -fmath::carg(ratio) / (TWO_PI * f * 2.0 * step);
         let h = solver.solve_at(f).map_err(failed)?;
         let phase_rad = match previous {
             Some((f_prev, h_prev, phase_prev)) => {
                 // Walk from the last point on the internal grid, adding each small change.
-                let n_sub = ((f / f_prev).log10() * UNWRAP_POINTS_PER_DECADE)
+                let n_sub = (fmath::log10(f / f_prev) * UNWRAP_POINTS_PER_DECADE)
                     .ceil()
                     .max(1.0) as usize;
                 let (mut phase, mut h_last) = (phase_prev, h_prev);
                 for j in 1..n_sub {
-                    let f_j = f_prev * (f / f_prev).powf(j as f64 / n_sub as f64);
+                    let f_j = f_prev * fmath::powf(f / f_prev, j as f64 / n_sub as f64);
                     let h_j = solver.solve_at(f_j).map_err(failed)?;
-                    phase += (h_j / h_last).arg();
+                    phase += fmath::carg(h_j / h_last);
                     h_last = h_j;
                 }
-                phase + (h / h_last).arg()
+                phase + fmath::carg(h / h_last)
             }
-            None => h.arg(),
+            None => fmath::carg(h),
         };
         previous = Some((f, h, phase_rad));
         rows.push(SweepRow {
             freq_hz: f,
-            gain_db: 20.0 * h.norm().log10(),
+            gain_db: 20.0 * fmath::log10(fmath::cnorm(h)),
             phase_deg: phase_rad.to_degrees(),
             delay_s,
         });
@@ -421,7 +422,7 @@ pub fn study_settings(design: &Design, n_points: usize) -> Result<MonteCarloSett
         percentiles: vec![5.0, 50.0, 95.0],
         cutoff: cutoff_definition(state.requirement.family),
         class,
-        reference_gain: 10f64.powf(state.requirement.gain_db / 20.0),
+        reference_gain: fmath::powf(10f64, state.requirement.gain_db / 20.0),
         passband_ref_hz,
     })
 }

@@ -13,6 +13,7 @@
 
 use super::Design;
 use crate::analysis::built::{refine_max, BoardSolver};
+use crate::fmath;
 use crate::spec::{Edge, Family, Mask};
 use serde::Serialize;
 
@@ -37,14 +38,14 @@ pub struct AsBuilt {
 pub fn cutoff_level_db(family: Family) -> f64 {
     match family {
         Family::Chebyshev { ripple_db } => ripple_db,
-        Family::LinkwitzRiley => 20.0 * 2f64.log10(),
-        _ => 10.0 * 2f64.log10(),
+        Family::LinkwitzRiley => 20.0 * fmath::log10(2f64),
+        _ => 10.0 * fmath::log10(2f64),
     }
 }
 
 fn gain_db(solver: &mut BoardSolver, f: f64) -> f64 {
     match solver.solve_at(f) {
-        Ok(h) => 20.0 * h.norm().log10(),
+        Ok(h) => 20.0 * fmath::log10(fmath::cnorm(h)),
         Err(_) => f64::NAN,
     }
 }
@@ -61,10 +62,10 @@ pub fn crossings(solver: &mut BoardSolver, grid: &[f64], level_db: f64) -> Vec<f
         if !(a.is_finite() && b.is_finite()) || (a > 0.0) == (b > 0.0) {
             continue;
         }
-        let (mut lo, mut hi, mut at_lo) = (grid[i - 1].ln(), grid[i].ln(), a);
+        let (mut lo, mut hi, mut at_lo) = (fmath::ln(grid[i - 1]), fmath::ln(grid[i]), a);
         for _ in 0..60 {
             let mid = 0.5 * (lo + hi);
-            let v = gain_db(solver, mid.exp()) - level_db;
+            let v = gain_db(solver, fmath::exp(mid)) - level_db;
             if (v > 0.0) == (at_lo > 0.0) {
                 lo = mid;
                 at_lo = v;
@@ -75,7 +76,7 @@ pub fn crossings(solver: &mut BoardSolver, grid: &[f64], level_db: f64) -> Vec<f
                 break;
             }
         }
-        out.push((0.5 * (lo + hi)).exp());
+        out.push(fmath::exp(0.5 * (lo + hi)));
     }
     out
 }
@@ -98,9 +99,9 @@ fn margin_at(solver: &mut BoardSolver, mask: &Mask, gain_req_db: f64, f: f64) ->
 pub fn as_built(design: &Design, solver: &mut BoardSolver, passband_gain_db: f64) -> AsBuilt {
     let req = &design.state.requirement;
     let (lo, hi) = design.span_hz;
-    let n = ((hi / lo).log10() * 40.0).ceil().clamp(2.0, 2000.0) as usize;
+    let n = (fmath::log10(hi / lo) * 40.0).ceil().clamp(2.0, 2000.0) as usize;
     let mut grid: Vec<f64> = (0..n)
-        .map(|i| lo * (hi / lo).powf(i as f64 / (n - 1) as f64))
+        .map(|i| lo * fmath::powf(hi / lo, i as f64 / (n - 1) as f64))
         .collect();
     if let Some(m) = &req.mask {
         for e in [m.pass, m.stop] {
@@ -189,7 +190,7 @@ pub fn departures(design: &Design, built: &AsBuilt) -> Vec<String> {
         BoardSolver::of_board(b).ok().map(|mut solver| {
             let gain = solver
                 .solve_at(super::passband_ref_hz(design))
-                .map(|h| 20.0 * h.norm().log10())
+                .map(|h| 20.0 * fmath::log10(fmath::cnorm(h)))
                 .unwrap_or(f64::NAN);
             as_built(design, &mut solver, gain)
         })

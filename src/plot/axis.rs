@@ -6,6 +6,7 @@
 //! times a power of ten; a logarithmic axis labels every decade and draws unlabelled grid lines at
 //! 2 … 9 within each decade (1-2-5 labels when the axis spans less than about two decades).
 
+use crate::fmath;
 use serde::Serialize;
 
 use crate::units::{format_si_unit_with, format_si_with, Minus};
@@ -125,7 +126,7 @@ impl Axis {
                 if value <= 0.0 {
                     None
                 } else {
-                    Some((value / self.min).log10() / (self.max / self.min).log10())
+                    Some(fmath::log10(value / self.min) / fmath::log10(self.max / self.min))
                 }
             }
         }
@@ -135,7 +136,7 @@ impl Axis {
     pub fn value_at(&self, t: f64) -> f64 {
         match self.scale {
             Scale::Linear => self.min + t * (self.max - self.min),
-            Scale::Log => self.min * (self.max / self.min).powf(t),
+            Scale::Log => self.min * fmath::powf(self.max / self.min, t),
         }
     }
 
@@ -183,7 +184,7 @@ fn nice_step(raw: f64) -> f64 {
     if !(raw.is_finite() && raw > 0.0) {
         return 1.0;
     }
-    let power = 10f64.powf(raw.log10().floor());
+    let power = fmath::powf(10f64, fmath::log10(raw).floor());
     let mantissa = raw / power;
     let nice = if mantissa <= 1.0 {
         1.0
@@ -205,7 +206,7 @@ fn linear_ticks(min: f64, max: f64, target: usize, format: TickFormat) -> Vec<Ti
     let decimals = if step >= 1.0 {
         0
     } else {
-        (-step.log10()).ceil().max(0.0) as usize
+        (-fmath::log10(step)).ceil().max(0.0) as usize
     };
     // A bounded loop: the step is at least (max − min)/target, so there are at most target + 1.
     (first..=last.min(first + 100))
@@ -232,10 +233,10 @@ fn linear_ticks(min: f64, max: f64, target: usize, format: TickFormat) -> Vec<Ti
 /// Logarithmic ticks: decades labelled, 2 … 9 as grid lines; with less than two decades the
 /// 2 and 5 lines are labelled too, so a narrow axis still reads.
 fn log_ticks(min: f64, max: f64, format: TickFormat, allow_125: bool) -> Vec<Tick> {
-    let decades = (max / min).log10();
+    let decades = fmath::log10(max / min);
     let label_125 = allow_125 && decades < 2.2;
-    let first = min.log10().floor() as i32;
-    let last = max.log10().ceil() as i32;
+    let first = fmath::log10(min).floor() as i32;
+    let last = fmath::log10(max).ceil() as i32;
     // A narrow (thumbnail) axis over many decades labels every second or third decade only.
     let every = if allow_125 || decades <= 4.5 {
         1
@@ -246,7 +247,7 @@ fn log_ticks(min: f64, max: f64, format: TickFormat, allow_125: bool) -> Vec<Tic
     };
     let mut ticks = Vec::new();
     for exponent in first..=last.min(first + 40) {
-        let decade = 10f64.powi(exponent);
+        let decade = fmath::powi(10f64, exponent);
         for digit in 1..=9 {
             let value = decade * digit as f64;
             if value < min * (1.0 - 1e-9) || value > max * (1.0 + 1e-9) {
@@ -318,7 +319,7 @@ pub fn significant(value: f64, digits: usize) -> String {
     if !(1e-4..1e9).contains(&magnitude) {
         return format!("{value:.*e}", digits.saturating_sub(1));
     }
-    let int_digits = magnitude.log10().floor() as i32 + 1;
+    let int_digits = fmath::log10(magnitude).floor() as i32 + 1;
     let decimals = (digits as i32 - int_digits).max(0) as usize;
     let mut text = format!("{magnitude:.decimals$}");
     if text.contains('.') {

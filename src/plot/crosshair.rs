@@ -1,6 +1,7 @@
 //! The crosshair readout: a figure read back at a pointer position, the axis values under it and
 //! each line's value interpolated at that x.
 
+use crate::fmath;
 use serde::Serialize;
 
 use super::axis::Axis;
@@ -101,7 +102,7 @@ pub fn readout(
                     .iter()
                     .filter_map(|&(mx, my)| {
                         let (qx, qy) = (frame.px(&x_axis, mx)?, frame.py(&y_axis, my)?);
-                        let d = (qx - px).hypot(qy - py);
+                        let d = fmath::hypot(qx - px, qy - py);
                         (d <= near).then_some((d, mx, my))
                     })
                     .min_by(|a, b| a.0.total_cmp(&b.0));

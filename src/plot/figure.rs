@@ -227,6 +227,7 @@ impl Frame {
 #[cfg(test)]
 pub(crate) mod fixture {
     use super::*;
+    use crate::fmath;
     use crate::plot::{Theme, TickFormat};
 
     /// The look the figure tests draw with.
@@ -239,9 +240,9 @@ pub(crate) mod fixture {
     pub(crate) fn sample_figure() -> Figure {
         let points: Vec<(f64, f64)> = (0..=40)
             .map(|i| {
-                let f = 10f64.powf(1.0 + i as f64 / 10.0);
+                let f = fmath::powf(10f64, 1.0 + i as f64 / 10.0);
                 // First-order low-pass at 1 kHz: |H| = 1/√(1 + (f/fc)²) (circuit theory).
-                (f, -10.0 * (1.0 + (f / 1e3).powi(2)).log10())
+                (f, -10.0 * fmath::log10(1.0 + fmath::powi(f / 1e3, 2)))
             })
             .collect();
         Figure {

@@ -6,6 +6,7 @@
 //! types, so the page and the command line make the same figures from whatever analyses they ran,
 //! and a missing analysis gives a figure with a note instead of an error.
 
+use crate::fmath;
 use num_complex::Complex64;
 use serde::Serialize;
 
@@ -488,8 +489,8 @@ fn impedance(data: &PlotData) -> Figure {
     if let Some(c) = &data.impedance {
         layers.push(line(&c.label, Ink::Built, Weight::Bold, &c.x, &c.y));
         if let Some((lo, hi)) = finite_range(c.y.iter().copied().filter(|v| *v > 0.0)) {
-            let lo_decade = 10f64.powf(lo.log10().floor());
-            let hi_decade = 10f64.powf(hi.log10().ceil());
+            let lo_decade = fmath::powf(10f64, fmath::log10(lo).floor());
+            let hi_decade = fmath::powf(10f64, fmath::log10(hi).ceil());
             y.min = lo_decade;
             y.max = if hi_decade > lo_decade * 9.99 {
                 hi_decade
@@ -530,7 +531,7 @@ fn noise(data: &PlotData) -> Figure {
     }
     let mut y = Axis::log("density", "V/√Hz", 1e-9, 1e-6);
     if let Some((_, hi)) = finite_range(values.into_iter().filter(|v| *v > 0.0)) {
-        let top = 10f64.powf(hi.log10().ceil());
+        let top = fmath::powf(10f64, fmath::log10(hi).ceil());
         y.max = top;
         y.min = top / 1e4;
     }

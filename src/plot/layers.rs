@@ -1,6 +1,7 @@
 //! Drawing one layer of a figure inside its frame: lines clipped at the frame edges (Liang–Barsky),
 //! bands, hatched forbidden regions, bars, marks, dashed guides.
 
+use crate::fmath;
 use plotters::prelude::{DrawingBackend, ShapeStyle};
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 use plotters::style::Color;
@@ -396,7 +397,7 @@ fn draw_dashed<DB: DrawingBackend>(
         let (a, b) = (pair[0], pair[1]);
         let (ax, ay) = (f64::from(a.0), f64::from(a.1));
         let (dx, dy) = (f64::from(b.0) - ax, f64::from(b.1) - ay);
-        let length = dx.hypot(dy);
+        let length = fmath::hypot(dx, dy);
         if length < 0.5 {
             continue;
         }

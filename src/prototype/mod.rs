@@ -26,6 +26,7 @@
 
 mod bessel;
 
+use crate::fmath;
 use num_complex::Complex64;
 
 use crate::error::InputError;
@@ -80,7 +81,7 @@ impl PoleGroup {
     pub fn w0(&self) -> f64 {
         match *self {
             Self::Real(p) => p.abs(),
-            Self::Conjugate(p) => p.norm(),
+            Self::Conjugate(p) => fmath::cnorm(p),
             Self::RealPair(a, b) => (a * b).abs().sqrt(),
         }
     }
@@ -89,7 +90,7 @@ impl PoleGroup {
     pub fn q(&self) -> Option<f64> {
         match *self {
             Self::Real(_) => None,
-            Self::Conjugate(p) => Some(p.norm() / (2.0 * p.re.abs())),
+            Self::Conjugate(p) => Some(fmath::cnorm(p) / (2.0 * p.re.abs())),
             Self::RealPair(a, b) => Some((a * b).abs().sqrt() / (a + b).abs()),
         }
     }
@@ -141,7 +142,7 @@ impl Prototype {
     pub fn reference_gain(&self) -> f64 {
         match self.family {
             Family::Chebyshev { ripple_db } if self.order % 2 == 0 => {
-                (-ripple_db / 20.0 * std::f64::consts::LN_10).exp()
+                fmath::exp(-ripple_db / 20.0 * std::f64::consts::LN_10)
             }
             _ => 1.0,
         }
@@ -175,7 +176,7 @@ impl Prototype {
                 decades -= 100.0;
             }
         }
-        10.0 * (product.log10() + decades) - 20.0 * self.gain.log10()
+        10.0 * (fmath::log10(product) + decades) - 20.0 * fmath::log10(self.gain)
     }
 
     /// The normalized frequency `w_p` at which the attenuation first reaches `apass_db`, so that
@@ -198,9 +199,9 @@ impl Prototype {
         }
         let n = self.order as f64;
         // 10^(A/10) − 1 without cancellation for small A.
-        let power_minus_one = (apass_db / 10.0 * std::f64::consts::LN_10).exp_m1();
+        let power_minus_one = fmath::exp_m1(apass_db / 10.0 * std::f64::consts::LN_10);
         let edge = match self.family {
-            Family::Butterworth => power_minus_one.powf(1.0 / (2.0 * n)),
+            Family::Butterworth => fmath::powf(power_minus_one, 1.0 / (2.0 * n)),
             Family::Chebyshev { ripple_db } => {
                 let eps = chebyshev_epsilon(ripple_db);
                 let mut x = power_minus_one.sqrt() / eps;
@@ -218,16 +219,15 @@ impl Prototype {
                         ),
                     ));
                 }
-                (x.acosh() / n).cosh()
+                fmath::cosh(fmath::acosh(x) / n)
             }
-            Family::LinkwitzRiley => (apass_db / 20.0 * std::f64::consts::LN_10)
-                .exp_m1()
-                .powf(1.0 / n),
+            Family::LinkwitzRiley => fmath::powf(
+                fmath::exp_m1(apass_db / 20.0 * std::f64::consts::LN_10),
+                1.0 / n,
+            ),
             Family::Critical => {
                 let a = critical_pole_magnitude(self.order);
-                a * (apass_db / (10.0 * n) * std::f64::consts::LN_10)
-                    .exp_m1()
-                    .sqrt()
+                a * fmath::exp_m1(apass_db / (10.0 * n) * std::f64::consts::LN_10).sqrt()
             }
             Family::Bessel => {
                 let target = apass_db;
@@ -323,14 +323,14 @@ pub fn prototype(family: Family, order: usize) -> Result<Prototype, InputError> 
 
 /// Chebyshev ripple factor `ε = √(10^(ripple/10) − 1)`.
 pub fn chebyshev_epsilon(ripple_db: f64) -> f64 {
-    (ripple_db / 10.0 * std::f64::consts::LN_10).exp_m1().sqrt()
+    fmath::exp_m1(ripple_db / 10.0 * std::f64::consts::LN_10).sqrt()
 }
 
 /// Magnitude `a` of the critically damped prototype's poles: `|H(j1)|² = (1 + 1/a²)^(−n) = 1/2`
 /// gives `a = 1/√(2^(1/n) − 1)`.
 pub fn critical_pole_magnitude(order: usize) -> f64 {
     let n = order.max(1) as f64;
-    1.0 / (std::f64::consts::LN_2 / n).exp_m1().sqrt()
+    1.0 / fmath::exp_m1(std::f64::consts::LN_2 / n).sqrt()
 }
 
 /// Butterworth poles as groups: `p_m = −exp(jπm/2n)` for `m = n−1, n−3, …` (pairs), and `−1`
@@ -344,8 +344,8 @@ fn butterworth_groups(order: usize) -> Vec<PoleGroup> {
         let m = (order - 1 - 2 * pair_idx) as f64;
         let theta = -std::f64::consts::PI * m / (2.0 * n);
         groups.push(PoleGroup::Conjugate(Complex64::new(
-            -theta.cos(),
-            -theta.sin(),
+            -fmath::cos(theta),
+            -fmath::sin(theta),
         )));
     }
     if order % 2 == 1 {
@@ -360,19 +360,19 @@ fn butterworth_groups(order: usize) -> Vec<PoleGroup> {
 fn chebyshev_groups(order: usize, ripple_db: f64) -> Vec<PoleGroup> {
     let n = order as f64;
     let eps = chebyshev_epsilon(ripple_db);
-    let mu = (1.0 / eps).asinh() / n;
+    let mu = fmath::asinh(1.0 / eps) / n;
     let mut groups = Vec::with_capacity(order / 2 + 1);
     for pair_idx in 0..order / 2 {
         let m = (order - 1 - 2 * pair_idx) as f64;
         let theta = -std::f64::consts::PI * m / (2.0 * n);
         // −sinh(μ + jθ) = −sinh μ cos θ − j cosh μ sin θ
         groups.push(PoleGroup::Conjugate(Complex64::new(
-            -mu.sinh() * theta.cos(),
-            -mu.cosh() * theta.sin(),
+            -fmath::sinh(mu) * fmath::cos(theta),
+            -fmath::cosh(mu) * fmath::sin(theta),
         )));
     }
     if order % 2 == 1 {
-        groups.push(PoleGroup::Real(-mu.sinh()));
+        groups.push(PoleGroup::Real(-fmath::sinh(mu)));
     }
     sort_pairs(&mut groups);
     groups
@@ -409,20 +409,20 @@ pub(crate) fn bisect_log_increasing(f: impl Fn(f64) -> f64) -> f64 {
 /// Bisection of an increasing `f` on `ln w` over `[lo, hi]` (`f(lo) < 0 ≤ f(hi)` expected) until
 /// the midpoint no longer moves (double precision); returns the last midpoint.
 pub(crate) fn bisect_ln(f: impl Fn(f64) -> f64, lo: f64, hi: f64) -> f64 {
-    let (mut a, mut b) = (lo.ln(), hi.ln());
+    let (mut a, mut b) = (fmath::ln(lo), fmath::ln(hi));
     // The midpoint stops moving after about 60 halvings; the cap only guards against NaN ends.
     for _ in 0..400 {
         let mid = 0.5 * (a + b);
         if mid <= a || mid >= b {
             break;
         }
-        if f(mid.exp()) < 0.0 {
+        if f(fmath::exp(mid)) < 0.0 {
             a = mid;
         } else {
             b = mid;
         }
     }
-    (0.5 * (a + b)).exp()
+    fmath::exp(0.5 * (a + b))
 }
 
 #[cfg(test)]
@@ -433,7 +433,7 @@ mod tests {
     fn every_prototype_has_its_characteristic_attenuation_at_one() {
         // By definition of the normalizations in the module table.
         for order in 1..=MAX_ORDER {
-            let three_db = 10.0 * 2f64.log10();
+            let three_db = 10.0 * fmath::log10(2f64);
             for family in [Family::Butterworth, Family::Bessel, Family::Critical] {
                 let p = prototype(family, order).unwrap();
                 assert!(

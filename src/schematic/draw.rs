@@ -1,6 +1,7 @@
 //! Drawing a matched layout (wires, part bodies, op amp, grounds, labels) onto any plotters
 //! backend, and the fallback list of connections for a netlist that fits no layout.
 
+use crate::fmath;
 use plotters::prelude::{DrawingBackend, ShapeStyle};
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 use plotters::style::{FontStyle, RGBAColor};
@@ -174,7 +175,7 @@ fn draw_slot<DB: DrawingBackend>(
                 .map_err(backend_err)?;
             continue;
         }
-        let length = (b.0 - a.0).hypot(b.1 - a.1);
+        let length = fmath::hypot(b.0 - a.0, b.1 - a.1);
         if length < 1e-9 {
             continue;
         }

@@ -6,6 +6,7 @@ use super::{
     CapacitorTrial, Freedoms, Layout, Realization, Target, PREFERRED_C_MIN_F, PREFERRED_R_OHM,
 };
 use crate::eseries::{PartClass, Series};
+use crate::fmath;
 
 /// Scans the level-setting capacitor over its series (or a fine grid for `exact`) and keeps the
 /// design whose resistors sit best around the level. Returns the ideal values, or `None` when no
@@ -51,7 +52,7 @@ pub(super) fn choose_level(
         Series::Exact => {
             let n = 200;
             let mut grid: Vec<f64> = (0..=n)
-                .map(|k| c_lo * (c_hi / c_lo).powf(k as f64 / n as f64))
+                .map(|k| c_lo * fmath::powf(c_hi / c_lo, k as f64 / n as f64))
                 .collect();
             grid.push(c_est);
             grid
@@ -141,10 +142,11 @@ fn scaled_resistor_span(layout: &Layout, values: &[f64]) -> Option<(f64, f64)> {
 fn level_cost(layout: &Layout, values: &[f64], level: f64, auto_level: bool) -> Option<f64> {
     let mut cost = 0.0f64;
     let mut penalty = 0.0;
-    let window_penalty =
-        |v: f64| (PREFERRED_R_OHM.0 / v).ln().max(0.0) + (v / PREFERRED_R_OHM.1).ln().max(0.0);
+    let window_penalty = |v: f64| {
+        fmath::ln(PREFERRED_R_OHM.0 / v).max(0.0) + fmath::ln(v / PREFERRED_R_OHM.1).max(0.0)
+    };
     for r in level_resistors(layout, values) {
-        cost = cost.max((r / level).ln().abs());
+        cost = cost.max(fmath::ln(r / level).abs());
     }
     if let (Some(d), true) = (layout.divider, auto_level) {
         if d.class == PartClass::Resistor {
@@ -165,7 +167,7 @@ fn level_cost(layout: &Layout, values: &[f64], level: f64, auto_level: bool) -> 
             }
             PartClass::Capacitor => {
                 if auto_level {
-                    penalty += (PREFERRED_C_MIN_F / v).ln().max(0.0);
+                    penalty += fmath::ln(PREFERRED_C_MIN_F / v).max(0.0);
                 }
             }
         }
@@ -212,7 +214,7 @@ pub(super) fn level_warnings(
             format!(
                 "the gain of {:.4} V/V ({:.2} dB) needs this input divider ratio",
                 target.gain,
-                20.0 * target.gain.log10()
+                20.0 * fmath::log10(target.gain)
             )
         } else if let Some(level) = freedoms.level_ohm {
             format!("the impedance level rlevel = {level} Ω puts it there")

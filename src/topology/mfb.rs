@@ -28,6 +28,7 @@ use super::{
     capacitor, pick_root, positive_roots, resistor, Achieved, CapacitorTrial, Layout, RatioRule,
     Realization, Target,
 };
+use crate::fmath;
 use std::f64::consts::PI;
 
 /// The multiple-feedback low-pass.
@@ -79,7 +80,7 @@ impl Realization for LowPass {
             let r = [x / k, p / x, x];
             let hi = r.iter().copied().fold(0.0, f64::max);
             let lo = r.iter().copied().fold(f64::INFINITY, f64::min);
-            (hi / lo).ln()
+            fmath::ln(hi / lo)
         };
         let Some(rf) = pick_root(&roots, hint, ratio, spread) else {
             return false;
@@ -118,7 +119,7 @@ impl Realization for LowPass {
     fn cratio_for_rratio(&self, t: &Target, m: f64) -> Result<(f64, Option<f64>), String> {
         // With R3 = m·R2: C1/C2 = Q²·(m + 1 + K)²/m, always feasible.
         let q = t.q_or_half();
-        let n = q * q * (m + 1.0 + t.gain).powi(2) / m;
+        let n = q * q * fmath::powi(m + 1.0 + t.gain, 2) / m;
         Ok((n, Some(m)))
     }
 

@@ -1,6 +1,8 @@
 //! The quadratics the circuits' closed forms solve: their positive roots, found without
 //! cancellation, and the pick among two roots (nearest a hinted ratio, or the best balanced).
 
+use crate::fmath;
+
 /// Solves `a·x² − b·x + c = 0` for positive roots, stably (no cancellation). Returns the positive
 /// roots, possibly none.
 pub(crate) fn positive_roots(a: f64, b: f64, c: f64) -> Vec<f64> {
@@ -39,7 +41,7 @@ pub(crate) fn pick_root(
     balance: impl Fn(f64) -> f64,
 ) -> Option<f64> {
     let score = |x: f64| match hint {
-        Some(h) => (ratio_of(x) / h).ln().abs(),
+        Some(h) => fmath::ln(ratio_of(x) / h).abs(),
         None => balance(x),
     };
     let mut best: Option<(f64, f64)> = None;

@@ -29,6 +29,7 @@ use super::{
     RatioRule, Realization, Slot, Target,
 };
 use crate::eseries::PartClass::Resistor;
+use crate::fmath;
 use std::f64::consts::PI;
 
 /// The Sallen-Key low-pass.
@@ -117,7 +118,7 @@ impl Realization for LowPass {
         // Without a hint: the more balanced pair, and for the symmetric unity-gain case the
         // larger input resistor (higher input impedance).
         let ratio = |x: f64| x * x / p;
-        let balance = |x: f64| ratio(x).ln().abs() + if ratio(x) < 1.0 { 1e-9 } else { 0.0 };
+        let balance = |x: f64| fmath::ln(ratio(x)).abs() + if ratio(x) < 1.0 { 1e-9 } else { 0.0 };
         let Some(r1) = pick_root(&roots, hint, ratio, balance) else {
             return false;
         };

@@ -18,6 +18,7 @@ use super::divider::pair_choices;
 use super::{Layout, Realization, Target};
 use crate::choices::Rounding;
 use crate::eseries::{PartClass, Series};
+use crate::fmath;
 
 /// Candidates per free part.
 const FREE_CANDIDATES: usize = 3;
@@ -41,8 +42,8 @@ fn nearest_in_range(series: Series, class: PartClass, value: f64) -> f64 {
         .candidates(value, 3, class)
         .into_iter()
         .min_by(|a, b| {
-            let da = (a / value).ln().abs();
-            let db = (b / value).ln().abs();
+            let da = fmath::ln(a / value).abs();
+            let db = fmath::ln(b / value).abs();
             da.total_cmp(&db)
         })
         .unwrap_or(value)
@@ -239,7 +240,7 @@ pub(crate) fn round(
                 "stage {stage_no}: standard values leave the gain {:+.2} % ({:+.3} dB) off \
                  target; a finer series ({series}) narrows it",
                 100.0 * eg,
-                20.0 * (1.0 + eg).log10()
+                20.0 * fmath::log10(1.0 + eg)
             ));
         }
     }

@@ -5,6 +5,7 @@ use super::choose::{choose, GainShape};
 use super::level::{choose_level, level_warnings};
 use super::{divider, search, Circuit, Freedoms, Realization, StageDesign, Target, AUTO_LEVEL_OHM};
 use crate::error::InputError;
+use crate::fmath;
 use crate::section::Section;
 
 /// Designs one stage: chooses the circuit, its free values, solves the rest and rounds them.
@@ -48,7 +49,7 @@ pub fn design_stage(
             warnings.push(format!(
                 "stage {stage_no}: gain {:.5} V/V is built as a follower (gain 1, error {:.4} dB)",
                 target.gain,
-                -20.0 * target.gain.log10()
+                -20.0 * fmath::log10(target.gain)
             ));
         }
         target.gain = 1.0;
@@ -156,7 +157,7 @@ pub fn design_stage(
                          (ratio k = {:.4e}) needs legs that no impedance level keeps inside \
                          1 Ω–10 MΩ and 1 pF–100 µF; ask for less attenuation (gain)",
                         circuit.describe(),
-                        20.0 * target.gain.log10(),
+                        20.0 * fmath::log10(target.gain),
                         target.gain
                     ),
                 );

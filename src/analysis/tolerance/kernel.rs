@@ -6,6 +6,7 @@
 use super::batch::live_lanes;
 use super::MonteCarlo;
 use crate::analysis::lanes::{self, Isa, Lane8, RunLanes, RUN_LANES};
+use crate::fmath;
 use crate::spec::ResponseClass;
 use std::f64::consts::PI;
 
@@ -167,9 +168,9 @@ impl MonteCarlo {
             b.cut_lo_hz[l] = cut_lo[l];
             b.cut_hi_hz[l] = cut_hi[l];
             if live[l] {
-                b.gain_db[l] = 10.0 * gain[l].log10();
+                b.gain_db[l] = 10.0 * fmath::log10(gain[l]);
                 b.atten_db[l] = if has_stop {
-                    10.0 * (g2 / worst_l[l]).log10()
+                    10.0 * fmath::log10(g2 / worst_l[l])
                 } else {
                     f64::NAN
                 };

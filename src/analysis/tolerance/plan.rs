@@ -16,6 +16,7 @@ use crate::analysis::poly::FitWork;
 use crate::analysis::roots::dominant_w0_q;
 use crate::board::Board;
 use crate::error::InputError;
+use crate::fmath;
 use crate::netlist::{PartKind, StageNetlist};
 use crate::opamp::OpAmp;
 use crate::spec::{Edge, Mask};
@@ -276,7 +277,7 @@ impl MonteCarlo {
                 .then(|| {
                     poles
                         .iter()
-                        .filter(|p| p.im == 0.0 && p.norm() > 2.0 * w0)
+                        .filter(|p| p.im == 0.0 && fmath::cnorm(**p) > 2.0 * w0)
                         .map(|p| p.re / w_g)
                         .next()
                 })
@@ -319,11 +320,11 @@ impl MonteCarlo {
             };
             let m = mask.copied();
             lo_bound.push(match (in_pass, m) {
-                (true, Some(m)) => g2 * 10f64.powf(-m.apass_db / 10.0) * (1.0 - 1e-12),
+                (true, Some(m)) => g2 * fmath::powf(10f64, -m.apass_db / 10.0) * (1.0 - 1e-12),
                 _ => 0.0,
             });
             hi_bound.push(match (in_stop, m) {
-                (true, Some(m)) => g2 * 10f64.powf(-m.astop_db / 10.0) * (1.0 + 1e-12),
+                (true, Some(m)) => g2 * fmath::powf(10f64, -m.astop_db / 10.0) * (1.0 + 1e-12),
                 _ => f64::INFINITY,
             });
             stop_weight.push(if in_stop { 1.0 } else { 0.0 });
@@ -392,7 +393,7 @@ impl MonteCarlo {
             fallbacks: 0,
             cutoff_level: {
                 let CutoffDefinition::Attenuation { db } = settings.cutoff;
-                g2 * 10f64.powf(-db / 10.0)
+                g2 * fmath::powf(10f64, -db / 10.0)
             },
             settings,
         };

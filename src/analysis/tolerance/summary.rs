@@ -5,6 +5,7 @@
 
 use super::Tolerances;
 use super::{MonteCarlo, SAMPLE_BLOCK};
+use crate::fmath;
 use crate::spec::ResponseClass;
 use serde::Serialize;
 use std::f64::consts::PI;
@@ -102,7 +103,7 @@ pub struct StageSpread {
 
 /// A power ratio (|H|²) in dB.
 fn power_db(v: f64) -> f64 {
-    10.0 * v.log10()
+    10.0 * fmath::log10(v)
 }
 
 /// Results of a tolerance study.

@@ -6,6 +6,7 @@ use crate::analysis::lanes::{Isa, Lane8, Plain};
 use crate::analysis::magnitude::{magnitude_squared_into, magnitude_squared_lanes};
 use crate::analysis::roots::split_cubic_lanes;
 use crate::board::{Board, BuildChoices};
+use crate::fmath;
 use crate::section::{Section, SectionKind};
 use crate::spec::{Edge, Mask};
 use rand_core::{RngCore, SeedableRng};
@@ -32,7 +33,7 @@ fn values(seed: u64, n: usize) -> Vec<RunLanes> {
                 *x = if (i + l) % 5 == 0 {
                     special[(i * 3 + l) % special.len()]
                 } else {
-                    (u - 0.3) * 10f64.powi((i % 7) as i32 - 3)
+                    (u - 0.3) * fmath::powi(10f64, (i % 7) as i32 - 3)
                 };
             }
             v
@@ -239,7 +240,7 @@ struct Case {
 /// handbook), with `None` for the real pole of an odd order.
 fn butterworth_q(n: usize) -> Vec<Option<f64>> {
     let mut q: Vec<Option<f64>> = (1..=n / 2)
-        .map(|k| Some(1.0 / (2.0 * ((2 * k - 1) as f64 * PI / (2 * n) as f64).sin())))
+        .map(|k| Some(1.0 / (2.0 * fmath::sin((2 * k - 1) as f64 * PI / (2 * n) as f64))))
         .collect();
     if n % 2 == 1 {
         q.insert(0, None);
@@ -251,7 +252,7 @@ fn butterworth_q(n: usize) -> Vec<Option<f64>> {
 /// evenly over them.
 fn butterworth(kind: SectionKind, n: usize, fc_hz: f64, gain: f64) -> Vec<Section> {
     let qs = butterworth_q(n);
-    let g = gain.powf(1.0 / qs.len() as f64);
+    let g = fmath::powf(gain, 1.0 / qs.len() as f64);
     qs.into_iter()
         .map(|q| Section {
             kind,
@@ -271,14 +272,14 @@ fn butterworth_band_pass(n: usize, f0_hz: f64, bw_hz: f64) -> Vec<Section> {
     let mut out = Vec::new();
     for k in 0..n {
         let theta = PI * (2 * k + n + 1) as f64 / (2 * n) as f64;
-        let p = num_complex::Complex64::from_polar(1.0, theta);
-        let disc = (p * p * b * b - 4.0 * w0 * w0).sqrt();
+        let p = fmath::from_polar(1.0, theta);
+        let disc = fmath::csqrt(p * p * b * b - 4.0 * w0 * w0);
         for s in [(p * b + disc) / 2.0, (p * b - disc) / 2.0] {
             if s.im > 0.0 {
                 out.push(Section {
                     kind: SectionKind::BandPass,
-                    f0_hz: s.norm() / (2.0 * PI),
-                    q: Some(s.norm() / (-2.0 * s.re)),
+                    f0_hz: fmath::cnorm(s) / (2.0 * PI),
+                    q: Some(fmath::cnorm(s) / (-2.0 * s.re)),
                     gain: 1.0,
                 });
             }
@@ -291,7 +292,7 @@ fn butterworth_band_pass(n: usize, f0_hz: f64, bw_hz: f64) -> Vec<Section> {
 /// feedback, both cutoffs, wide capacitor spread), high-pass with gain and uniform parts, an odd
 /// order (first-order stage).
 fn cases() -> Vec<Case> {
-    let gain_hp = 10f64.powf(12.0 / 20.0);
+    let gain_hp = fmath::powf(10f64, 12.0 / 20.0);
     vec![
         Case {
             name: "low-pass, order 8, with a mask",
@@ -362,7 +363,7 @@ fn study(case: &Case, runs: usize) -> MonteCarlo {
     let (lo, hi) = case.span_hz;
     let n_points = 241;
     let freqs_hz = (0..n_points)
-        .map(|i| lo * (hi / lo).powf(i as f64 / (n_points - 1) as f64))
+        .map(|i| lo * fmath::powf(hi / lo, i as f64 / (n_points - 1) as f64))
         .collect();
     let settings = MonteCarloSettings {
         runs,
@@ -376,7 +377,7 @@ fn study(case: &Case, runs: usize) -> MonteCarlo {
         freqs_hz,
         percentiles: vec![5.0, 50.0, 95.0],
         cutoff: CutoffDefinition::Attenuation {
-            db: 10.0 * 2f64.log10(),
+            db: 10.0 * fmath::log10(2f64),
         },
         class: case.class,
         reference_gain: case.gain,
