@@ -8,7 +8,7 @@
 //! - scipy (`scipy.signal.step` of the ideal prototype from scipy's own `butter`/`cheby1`/`bessel`,
 //!   `analog=True`), stored in `tests/reference/step_reference.json` by
 //!   `tools/make_step_reference.py`, against the step of our board with an ideal op amp and exact
-//!   parts (`gbw=ideal&rser=exact&cser=exact`).
+//!   parts (`gbw=ideal&a0=ideal&rser=exact&cser=exact`).
 //!
 //! When ngspice is missing the tests fail and say what to install.
 
@@ -92,11 +92,17 @@ fn measure(t: &[f64], y: &[f64], final_value: f64) -> Measured {
 }
 
 /// ngspice's step response of `design`'s exported board over `[0, t_end]`: (t, v(out)) rows.
-fn ngspice_step(design: &rolloff::pipeline::Design, t_end: f64, name: &str) -> (Vec<f64>, Vec<f64>) {
+fn ngspice_step(
+    design: &rolloff::pipeline::Design,
+    t_end: f64,
+    name: &str,
+) -> (Vec<f64>, Vec<f64>) {
     let netlist = spice::netlist(&design.board, &AcSweep::default())
         .unwrap_or_else(|e| panic!("{name}: {e}"));
-    let dir: PathBuf =
-        std::env::temp_dir().join(format!("rolloff-ngspice-step-{}-{name}", std::process::id()));
+    let dir: PathBuf = std::env::temp_dir().join(format!(
+        "rolloff-ngspice-step-{}-{name}",
+        std::process::id()
+    ));
     std::fs::create_dir_all(&dir).expect("temp dir");
     let data = dir.join("out.txt");
     let mut body = String::new();
@@ -155,7 +161,11 @@ fn ngspice_step(design: &rolloff::pipeline::Design, t_end: f64, name: &str) -> (
             y.push(cols[1]);
         }
     }
-    assert!(t.len() > 1000, "{name}: only {} rows from ngspice:\n{log}", t.len());
+    assert!(
+        t.len() > 1000,
+        "{name}: only {} rows from ngspice:\n{log}",
+        t.len()
+    );
     (t, y)
 }
 
@@ -177,19 +187,46 @@ const NGSPICE_TIME_REL: f64 = 1e-4;
 fn step_figures_of_the_loaded_board_match_ngspice() {
     let cases = [
         // The 8th-order Chebyshev on a 1 MHz op amp: the stages load each other through Rout.
-        ("cheb8-1M", "?v=2&resp=lp&family=chebyshev&ripple=0.5&order=8&fc=100k&gbw=1M"),
-        ("butter4-sk", "?v=2&resp=lp&family=butterworth&order=4&fc=1k"),
-        ("butter4-mfb", "?v=2&resp=lp&family=butterworth&order=4&fc=1k&topo=mfb&gain=6"),
+        (
+            "cheb8-1M",
+            "?v=2&resp=lp&family=chebyshev&ripple=0.5&order=8&fc=100k&gbw=1M",
+        ),
+        (
+            "butter4-sk",
+            "?v=2&resp=lp&family=butterworth&order=4&fc=1k",
+        ),
+        (
+            "butter4-mfb",
+            "?v=2&resp=lp&family=butterworth&order=4&fc=1k&topo=mfb&gain=6",
+        ),
         ("bessel6", "?v=2&resp=lp&family=bessel&order=6&fc=1k"),
         ("lr4", "?v=2&resp=lp&family=linkwitz-riley&order=4&fc=2k"),
         ("hp4", "?v=2&resp=hp&family=butterworth&order=4&fc=1k"),
         ("hp2-atten", "?v=2&resp=hp&order=2&fc=1k&gain=-20"),
-        ("hp-cheb-mfb", "?v=2&resp=hp&family=chebyshev&ripple=1&order=4&fc=500&topo=mfb"),
-        ("bp4-mfb", "?v=2&resp=bp&family=butterworth&order=4&fc=1k&bw=500&topo=mfb"),
-        ("bp-highq", "?v=2&resp=bp&family=chebyshev&ripple=0.5&order=4&fc=10k&bw=1k&topo=mfb&gbw=10M"),
-        ("cheb6-highq", "?v=2&resp=lp&family=chebyshev&ripple=3&order=6&fc=1k"),
-        ("slow-rout", "?v=2&resp=lp&family=butterworth&order=6&fc=20k&gbw=300k&rout=1k"),
-        ("critical4", "?v=2&resp=lp&family=critical&order=4&fc=1k&gain=20"),
+        (
+            "hp-cheb-mfb",
+            "?v=2&resp=hp&family=chebyshev&ripple=1&order=4&fc=500&topo=mfb",
+        ),
+        (
+            "bp4-mfb",
+            "?v=2&resp=bp&family=butterworth&order=4&fc=1k&bw=500&topo=mfb",
+        ),
+        (
+            "bp-highq",
+            "?v=2&resp=bp&family=chebyshev&ripple=0.5&order=4&fc=10k&bw=1k&topo=mfb&gbw=10M",
+        ),
+        (
+            "cheb6-highq",
+            "?v=2&resp=lp&family=chebyshev&ripple=3&order=6&fc=1k",
+        ),
+        (
+            "slow-rout",
+            "?v=2&resp=lp&family=butterworth&order=6&fc=20k&gbw=300k&rout=1k",
+        ),
+        (
+            "critical4",
+            "?v=2&resp=lp&family=critical&order=4&fc=1k&gain=20",
+        ),
     ];
     let mut worst = (0.0f64, 0.0f64);
     for (name, link) in cases {
@@ -202,8 +239,12 @@ fn step_figures_of_the_loaded_board_match_ngspice() {
         let f = mine.figures;
         eprintln!(
             "{name}: ours os {:?} rise {:?} s1 {:?}; ngspice os {:?} rise {:?} s1 {:?}",
-            f.overshoot_pct, f.rise_time_s, f.settling_1pct_s,
-            theirs.overshoot_pct, theirs.rise_s, theirs.settle_1pct_s
+            f.overshoot_pct,
+            f.rise_time_s,
+            f.settling_1pct_s,
+            theirs.overshoot_pct,
+            theirs.rise_s,
+            theirs.settle_1pct_s
         );
         match (f.overshoot_pct, theirs.overshoot_pct) {
             (Some(a), Some(b)) => {
@@ -253,7 +294,8 @@ const SCIPY_TIME_REL: f64 = 0.005;
 #[test]
 fn ideal_step_figures_match_scipy() {
     let text = std::fs::read_to_string(
-        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/step_reference.json"),
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("tests/reference/step_reference.json"),
     )
     .expect("tests/reference/step_reference.json (run tools/make_step_reference.py)");
     let doc: serde_json::Value = serde_json::from_str(&text).expect("JSON");
@@ -263,7 +305,7 @@ fn ideal_step_figures_match_scipy() {
     for case in cases {
         let name = case["name"].as_str().expect("name");
         let link = format!(
-            "{}&gbw=ideal&rser=exact&cser=exact",
+            "{}&gbw=ideal&a0=ideal&rser=exact&cser=exact",
             case["link"].as_str().expect("link")
         );
         let design = compose(&link);
