@@ -633,7 +633,13 @@ pub fn board_response(
 }
 
 fn figures_of(fine: &Fine, fv: f64) -> StepFigures {
-    figures_with_peaks(&fine.t, &fine.y, fv, Some(fine.peak_norm), Some(fine.peak_abs))
+    figures_with_peaks(
+        &fine.t,
+        &fine.y,
+        fv,
+        Some(fine.peak_norm),
+        Some(fine.peak_abs),
+    )
 }
 
 /// Linear interpolation of the instant where `y` crosses `level` between samples i−1 and i.
@@ -737,4 +743,3 @@ fn figures_with_peaks(
         settling_01pct_s: settle(0.001),
     }
 }
-
