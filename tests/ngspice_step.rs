@@ -174,7 +174,7 @@ fn ours(design: &rolloff::pipeline::Design) -> TimeResponse {
 }
 
 /// Overshoot tolerance against ngspice, percentage points. Source: ngspice 39 `.tran` (see the
-/// module docs) on the 13 boards below; worst measured 2.1e-4 pp (butter4-sk), the bound leaves a
+/// module docs) on the 16 boards below; worst measured 2.1e-4 pp (butter4-sk), the bound leaves a
 /// factor of about ten for other ngspice builds.
 const NGSPICE_OVERSHOOT_PP: f64 = 0.002;
 /// Rise and 1 % settling time tolerance against ngspice, fraction. Worst measured 1.4e-5 (bp4-mfb
