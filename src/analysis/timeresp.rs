@@ -34,7 +34,7 @@
 //! moved by at most 1.7e-4 percentage point and the rise and settling times by at most 5e-6
 //! (relative), far below the digits the report shows (0.01 pp, four significant digits). Against
 //! ngspice `.tran` of our own export (16 boards, loaded, with the op amp's GBW, A0 and Rout) the
-//! overshoot agreed to 2.1e-4 pp and the times to 1.4e-5; against `scipy.signal.step` of scipy's
+//! overshoot agreed to 2.1e-4 pp and the times to 2.9e-5; against `scipy.signal.step` of scipy's
 //! own prototypes (ideal op amp, exact parts, 11 cases up to the 14th-order Chebyshev) to 2e-4 pp
 //! and 1e-5.
 
