@@ -206,6 +206,14 @@ pub fn spread_text(design: &Design, summary: &Summary) -> String {
         "Passband gain: nominal {:.3} dB, mean {:.3} dB, σ {:.3} dB, range {:.3} … {:.3} dB",
         g.nominal, g.mean, g.std_dev, g.min, g.max
     );
+    if let Some(r) = summary.loading_residual_db {
+        let _ = writeln!(
+            out,
+            "Loading: every run carries the nominal board's loading correction; {} runs solved as \
+             loaded boards differ from it by at most {r:.2e} dB",
+            crate::analysis::tolerance::LOADING_PROBE_RUNS
+        );
+    }
     if let Some(a) = &summary.stopband_attenuation_db {
         let _ = writeln!(
             out,
@@ -253,7 +261,7 @@ fn analysis_text(out: &mut String, design: &Design) {
         let time = |x: Option<f64>| x.map_or("-".into(), |v| format!("{}s", spaced(v)));
         let _ = writeln!(
             out,
-            "  step: overshoot {}, rise {}, settles to 1 % in {}, to 0.1 % in {}",
+            "  step (of the loaded board): overshoot {}, rise {}, settles to 1 % in {}, to 0.1 % in {}",
             pct(step.overshoot_pct),
             time(step.rise_time_s),
             time(step.settling_1pct_s),

@@ -661,7 +661,11 @@ pub(crate) const TABLE: [Row; 44] = [
     row(
         Key::Drift,
         "drift",
-        num(0.01, 50.0, "allowed deviation of the built board from its ideal-op-amp gain in %"),
+        num(
+            0.01,
+            50.0,
+            "allowed deviation of the built board from its ideal-op-amp gain in %",
+        ),
         Some(|s, v| s.signal.drift_pct = number(&v)),
         |s| Some(number_text(s.signal.drift_pct)),
     ),

@@ -55,6 +55,14 @@ impl MonteCarlo {
             &mut self.batch.den,
             &mut self.batch.h2,
         );
+        if let Some(corr) = &self.loading_h2 {
+            // The nominal loading correction, the same multiplication in every lane.
+            for (h, &c) in self.batch.h2.iter_mut().zip(corr) {
+                for v in h.iter_mut() {
+                    *v *= c;
+                }
+            }
+        }
         self.evaluate_batch::<V>();
         if let Some((first, last)) = lanes {
             self.record_batch::<V>(first, last);
@@ -265,8 +273,38 @@ impl MonteCarlo {
         let b = &self.batch;
         let h = h2_lanes::<V>(&b.coef_n, &b.coef_d, &b.deg_n, &b.deg_d, self.width, x);
         let mut out = [0.0; RUN_LANES];
-        h.mul(inv).sub(V::splat(1.0)).store(&mut out);
+        match &self.loading_h2 {
+            None => h.mul(inv).sub(V::splat(1.0)).store(&mut out),
+            Some(corr) => {
+                let mut hv = [0.0; RUN_LANES];
+                h.store(&mut hv);
+                for l in 0..RUN_LANES {
+                    hv[l] *= self.loading_at(corr, x[l]);
+                }
+                V::load(&hv).mul(inv).sub(V::splat(1.0)).store(&mut out);
+            }
+        }
         out
+    }
+
+    /// The loading correction at `x = (f/f_g)²` between grid points: linear in ln x of its
+    /// logarithm, the end values outside the grid.
+    fn loading_at(&self, corr: &[f64], x: f64) -> f64 {
+        let grid = &self.x_eval[..self.n_grid];
+        let i = grid.partition_point(|&g| g < x);
+        if i == 0 {
+            return corr[0];
+        }
+        if i >= grid.len() {
+            return corr[grid.len() - 1];
+        }
+        let (x0, x1) = (grid[i - 1], grid[i]);
+        let (c0, c1) = (corr[i - 1], corr[i]);
+        if !(x > x0 && x1 > x0 && c0 > 0.0 && c1 > 0.0) {
+            return c1;
+        }
+        let w = fmath::ln(x / x0) / fmath::ln(x1 / x0);
+        fmath::exp(fmath::ln(c0) + w * fmath::ln(c1 / c0))
     }
 }
 

@@ -139,6 +139,10 @@ pub struct Summary {
     pub stages: Vec<StageSpread>,
     /// Soft problems (runs without a cutoff crossing on the grid, fallbacks).
     pub warnings: Vec<String>,
+    /// Largest difference of sampled runs from their loaded-board solves, dB (`None` when the
+    /// op amp has no output resistance and the cascade product is exact); see the module docs.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub loading_residual_db: Option<f64>,
 }
 
 impl MonteCarlo {
@@ -265,7 +269,18 @@ impl MonteCarlo {
                 q: (st.order == 2).then(|| spread_of(qn, q, pct)),
             })
             .collect();
+        if let Some(r) = self
+            .loading_residual_db
+            .filter(|&r| r > super::LOADING_RESIDUAL_WARN_DB)
+        {
+            warnings.push(format!(
+                "the runs' loading by the op amps' output resistance is followed to {r:.4} dB \
+                 (the nominal correction; checked on {} runs solved as loaded boards)",
+                super::LOADING_PROBE_RUNS
+            ));
+        }
         Summary {
+            loading_residual_db: self.loading_residual_db,
             runs: n,
             runs_requested: self.settings.runs,
             seed: self.settings.seed,
