@@ -84,6 +84,7 @@ pub fn build_choices(state: &LinkState) -> BuildChoices {
 pub fn compose(state: &LinkState) -> Result<Design, InputError> {
     let synthesis = design::synthesize(&state.requirement, &state.stage_order)?;
     let board = Board::build(&synthesis.sections, &build_choices(state))?;
+    check_tolerance_parts(&board, &state.tolerance_overrides)?;
     let family_orders = state.requirement.mask.as_ref().map(|mask| {
         let ripple = match state.requirement.family {
             Family::Chebyshev { ripple_db } => Some(ripple_db),
@@ -453,12 +454,46 @@ pub fn spread(design: &Design) -> Result<Summary, String> {
     Ok(study.finish())
 }
 
-/// The part tolerances the parts list states (`rtol`, `ctol`).
+/// The part tolerances the parts list states: `rtol`, `ctol` and each `tolset` override, the
+/// values the tolerance study draws with ([`study_settings`]).
 pub fn bom_tolerances(design: &Design) -> crate::export::bom::Tolerances {
     crate::export::bom::Tolerances {
         resistor_pct: design.state.rtol_pct,
         capacitor_pct: design.state.ctol_pct,
+        overrides: design.state.tolerance_overrides.clone(),
     }
+}
+
+/// Every `tolset` reference must be a resistor or capacitor of the board, as every `set`
+/// reference must (`Board::apply_overrides`): a tolerance for a part the board does not have is
+/// bad input wherever the design is used, not only when the tolerance study starts.
+///
+/// # Errors
+/// An [`InputError`] on `tolset` naming the reference and the parts the board has.
+fn check_tolerance_parts(board: &Board, overrides: &[(String, f64)]) -> Result<(), InputError> {
+    for (reference, _) in overrides {
+        let part = board.parts().into_iter().find(|p| p.reference == *reference);
+        match part.map(|p| p.kind) {
+            Some(crate::netlist::PartKind::Resistor | crate::netlist::PartKind::Capacitor) => {}
+            Some(crate::netlist::PartKind::OpAmp) => {
+                return Err(InputError::new(
+                    "tolset",
+                    format!("{reference} is an op amp; tolerances are for resistors and capacitors"),
+                ))
+            }
+            None => {
+                return Err(InputError::new(
+                    "tolset",
+                    format!(
+                        "{} is not a part of this board (it has {})",
+                        crate::link::quoted(reference),
+                        board.reference_summary()
+                    ),
+                ))
+            }
+        }
+    }
+    Ok(())
 }
 
 /// The `.ac` sweep written into the SPICE netlist: the plot span at 50 points per decade.
