@@ -303,12 +303,13 @@ pub fn ideal_board(board: &Board) -> Board {
 pub const UNWRAP_POINTS_PER_DECADE: f64 = 200.0;
 
 /// Gain, unwrapped phase and group delay of the board (or, with `ideal`, of [`ideal_board`]) at
-/// `n_points` log-spaced frequencies, from the banded solve of the whole board.
+/// `n_points` log-spaced frequencies, from the banded solve of the whole board
+/// ([`BoardSolver::solve_with_slope`]: one factorization per point).
 ///
 /// The phase is unwrapped along an internal grid of [`UNWRAP_POINTS_PER_DECADE`] from the first
-/// frequency, so it does not depend on how many points are asked for. The group delay is
-/// −Δarg H/Δω over a symmetric step of ±10⁻⁴·ω around each point, with the phase difference taken
-/// from the ratio H(ω+δ)/H(ω−δ) so it never wraps.
+/// frequency, so it does not depend on how many points are asked for (where the points are
+/// closer than the grid, no extra solve is made). The group delay is −d(arg H)/dω = −Re(H'/H)
+/// with H' = dH/ds from the same factorization as H.
 ///
 /// # Errors
 /// A message when the board equations are singular (the dense reference analysis names the
@@ -337,11 +338,10 @@ pub fn sweep(
     let mut rows = Vec::with_capacity(freqs.len());
     let mut previous: Option<(f64, Complex64, f64)> = None;
     for f in freqs {
-        let step = 1e-4;
-        let ratio = solver.solve_at(f * (1.0 + step)).map_err(failed)?
-            / solver.solve_at(f * (1.0 - step)).map_err(failed)?;
-        let delay_s = -ratio.arg() / (TWO_PI * f * 2.0 * step);
-        let h = solver.solve_at(f).map_err(failed)?;
+        // One factorization per point gives H and dH/ds, so the delay −Re(H'/H) needs no
+        // neighbouring solves.
+        let (h, slope) = solver.solve_with_slope(f).map_err(failed)?;
+        let delay_s = -(slope / h).re;
         let phase_rad = match previous {
             Some((f_prev, h_prev, phase_prev)) => {
                 // Walk from the last point on the internal grid, adding each small change.
@@ -378,8 +378,6 @@ pub fn diagnose_singular(board: &Board) -> Option<String> {
         .find_map(|&w| mna::board_response(board, Complex64::new(0.0, w)).err())
         .map(|e| e.message)
 }
-
-const TWO_PI: f64 = 2.0 * std::f64::consts::PI;
 
 /// How the tolerance study reads a run's cutoff for this family: the ripple-band edge for
 /// Chebyshev, −6.02 dB for Linkwitz-Riley, −3.01 dB otherwise.
