@@ -300,7 +300,9 @@ fn link_keys(link_text: &str) -> Vec<String> {
 /// this version knows appears (a file name or `-` is not a link; read as one it would design the
 /// default filter); unknown keys beside known ones, and notes, are warnings.
 fn check_link(link_text: &str, report: &LinkReport, err: &mut dyn Write) -> Result<(), Failure> {
-    let n_known = link_keys(link_text).len().saturating_sub(report.unknown_keys.len());
+    let n_known = link_keys(link_text)
+        .len()
+        .saturating_sub(report.unknown_keys.len());
     if n_known == 0 {
         return Err(Failure::Input(format!(
             "LINK: {} has no link key this version knows; {LINK_SHAPE}",

@@ -400,6 +400,11 @@ pub struct Solver {
     /// One past the last row that step k of the last solve eliminated (its multipliers end
     /// there), so the replay skips the rows a banded board never reaches.
     lower_end: Vec<usize>,
+    /// One past the last row whose span starts at or before each column, found at the start of
+    /// each solve: the rows beyond it hold exact zeros in that column, so the pivot search and
+    /// the elimination stop there. A row exchange at step k swaps two rows below `reach[k]`,
+    /// which stays below `reach` of every later column, so the bound holds throughout.
+    reach: Vec<usize>,
 }
 
 impl Solver {
@@ -413,6 +418,7 @@ impl Solver {
             row_end: vec![n; n],
             pivots: (0..n).collect(),
             lower_end: vec![0; n],
+            reach: vec![n; n],
         }
     }
 
@@ -514,12 +520,21 @@ impl Solver {
     pub fn solve(&mut self) -> Complex64 {
         let n = self.n;
         let mut det = Complex64::new(1.0, 0.0);
+        self.reach.fill(0);
+        for r in 0..n {
+            let start = self.row_start[r].min(n.saturating_sub(1));
+            self.reach[start] = self.reach[start].max(r + 1);
+        }
+        for k in 1..n {
+            self.reach[k] = self.reach[k].max(self.reach[k - 1]);
+        }
         for k in 0..n {
             // Partial pivoting by the largest |·|₁ in column k (rows whose span misses column k
             // hold an exact zero there).
             let mut best = k;
             let mut best_mag = -1.0;
-            for r in k..n {
+            let reach = self.reach[k].max(k + 1);
+            for r in k..reach {
                 if self.row_start[r] > k || self.row_end[r] <= k {
                     continue;
                 }
@@ -559,7 +574,7 @@ impl Solver {
             det *= pivot;
             let inv = 1.0 / pivot;
             let end_k = self.row_end[k].max(k + 1);
-            for r in (k + 1)..n {
+            for r in (k + 1)..reach {
                 if self.row_start[r] > k || self.row_end[r] <= k {
                     continue;
                 }

@@ -428,13 +428,9 @@ pub(crate) const TABLE: [Row; 44] = [
         s.requirement.fc_hz.map(number_text)
     })
     .always(),
-    row(
-        Key::Bw,
-        "bw",
-        freq(TARGET_HZ, "the bandwidth"),
-        None,
-        |s| s.requirement.bw_hz.map(number_text),
-    )
+    row(Key::Bw, "bw", freq(TARGET_HZ, "the bandwidth"), None, |s| {
+        s.requirement.bw_hz.map(number_text)
+    })
     .always(),
     // A limit the converter helper fills is left to it, so the link keeps saying where the limit
     // comes from (and a changed converter moves it).

@@ -12,9 +12,7 @@
 //! Every message that quotes the user's text quotes it through [`quoted`] (control characters
 //! escaped, long values cut), and every frequency-like key passes the one [`check_frequency`].
 
-use super::keys::{
-    self, name, row_of, Key, Parse, Value, FAMILY_NAMES, MARGINS, TABLE, TARGET_HZ,
-};
+use super::keys::{self, name, row_of, Key, Parse, Value, FAMILY_NAMES, MARGINS, TABLE, TARGET_HZ};
 use super::{
     Converter, LinkReport, LinkState, DEFAULT_APASS_DB, DEFAULT_FC_HZ, DEFAULT_ORDER,
     DEFAULT_RIPPLE_DB, FORMAT_VERSION, MAX_ORDER,
@@ -35,7 +33,8 @@ const MAX_REFERENCE_CHARS: usize = 8;
 /// formatting characters, which a terminal or a page would act on rather than show, are written
 /// as a Rust-style escape `\u{1b}`; everything else is itself.
 fn push_escaped(out: &mut String, c: char) {
-    let bidi = matches!(c, '\u{200e}' | '\u{200f}' | '\u{202a}'..='\u{202e}' | '\u{2066}'..='\u{2069}');
+    let bidi =
+        matches!(c, '\u{200e}' | '\u{200f}' | '\u{202a}'..='\u{202e}' | '\u{2066}'..='\u{2069}');
     if c.is_control() || bidi {
         out.push_str(&format!("\\u{{{:x}}}", c as u32));
     } else {
@@ -276,7 +275,13 @@ impl Reader {
                 match text.parse::<u64>() {
                     Ok(v) if v >= lo && v <= hi => Some(Value::Integer(v)),
                     _ => {
-                        self.fail(key, format!("{} is not accepted; {what} is a whole number from {lo} to {hi}", quoted(text)));
+                        self.fail(
+                            key,
+                            format!(
+                                "{} is not accepted; {what} is a whole number from {lo} to {hi}",
+                                quoted(text)
+                            ),
+                        );
                         None
                     }
                 }

@@ -470,13 +470,18 @@ pub fn bom_tolerances(design: &Design) -> crate::export::bom::Tolerances {
 /// An [`InputError`] on `tolset` naming the reference and the parts the board has.
 fn check_tolerance_parts(board: &Board, overrides: &[(String, f64)]) -> Result<(), InputError> {
     for (reference, _) in overrides {
-        let part = board.parts().into_iter().find(|p| p.reference == *reference);
+        let part = board
+            .parts()
+            .into_iter()
+            .find(|p| p.reference == *reference);
         match part.map(|p| p.kind) {
             Some(crate::netlist::PartKind::Resistor | crate::netlist::PartKind::Capacitor) => {}
             Some(crate::netlist::PartKind::OpAmp) => {
                 return Err(InputError::new(
                     "tolset",
-                    format!("{reference} is an op amp; tolerances are for resistors and capacitors"),
+                    format!(
+                        "{reference} is an op amp; tolerances are for resistors and capacitors"
+                    ),
                 ))
             }
             None => {
