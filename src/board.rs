@@ -158,11 +158,12 @@ fn check_choices(choices: &BuildChoices) -> Result<(), InputError> {
             ),
         ));
     }
-    if op.a0_db.is_nan() || op.a0_db <= 0.0 {
+    // 0 dB (unity open-loop gain) is accepted, as the README's 0–300 dB says: 1/A(s) stays finite.
+    if op.a0_db.is_nan() || op.a0_db < 0.0 {
         return Err(InputError::new(
             "a0",
             format!(
-                "a0 = {} dB: the open-loop DC gain must be above 0 dB (or ideal)",
+                "a0 = {} dB: the open-loop DC gain must be 0 dB or more (or ideal)",
                 op.a0_db
             ),
         ));
@@ -445,7 +446,7 @@ impl Board {
         Ok(())
     }
 
-    fn reference_summary(&self) -> String {
+    pub(crate) fn reference_summary(&self) -> String {
         let count = |k: PartKind| self.parts().iter().filter(|p| p.kind == k).count();
         let mut groups = Vec::new();
         for (kind, letter) in [

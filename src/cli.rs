@@ -3,8 +3,13 @@
 //! [`run`] takes the arguments and two writers so that tests (and the fuzzer) drive it in-process.
 //! Exit status: 0 success; 2 bad input, with one line on stderr naming the key or flag and what
 //! it accepts; 1 any other failure.
+//!
+//! Every message that quotes the user's text quotes it through [`link::quoted`] (control
+//! characters escaped as `\u{1b}`, values past 60 characters cut), and every line written to
+//! stderr passes [`link::escape_controls`] last, so nothing a link carries reaches the terminal
+//! as a control sequence.
 
-use crate::link::{self, LinkReport};
+use crate::link::{self, quoted, LinkReport};
 use crate::pipeline::{self, Design};
 use std::io::Write;
 
@@ -35,15 +40,29 @@ pub fn run(args: &[String], out: &mut dyn Write, err: &mut dyn Write) -> u8 {
     match dispatch(args, out, err) {
         Ok(()) => 0,
         Err(Failure::Input(message)) => {
-            let _ = writeln!(err, "rolloff: {message}");
+            let _ = writeln!(err, "rolloff: {}", guarded(&message));
             2
         }
         Err(Failure::Other(message)) => {
-            let _ = writeln!(err, "rolloff: {message}");
+            let _ = writeln!(err, "rolloff: {}", guarded(&message));
             1
         }
     }
 }
+
+/// A message as it goes to stderr: its lines kept (the usage text has several), every control
+/// character inside a line escaped.
+fn guarded(message: &str) -> String {
+    message
+        .lines()
+        .map(link::escape_controls)
+        .collect::<Vec<_>>()
+        .join("\n")
+}
+
+/// How a link looks, for the message that refuses an argument without one known key.
+const LINK_SHAPE: &str = "a link is a query string of key=value pairs such as \
+    '?v=2&order=4&fc=1k' (or a whole page URL); the keys are listed in the README, \"Link keys\"";
 
 /// The flags a command accepts, read into one place.
 #[derive(Debug, Default)]
@@ -82,16 +101,44 @@ fn dispatch(args: &[String], out: &mut dyn Write, err: &mut dyn Write) -> Result
         )));
     };
     let report = link::parse(&link_text);
-    check_link(&report, err)?;
-    match command.as_str() {
+    check_link(&link_text, &report, err)?;
+    let given = link_keys(&link_text);
+    let outcome = match command.as_str() {
         "design" => cmd_design(&report, &flags, out),
         "sweep" => cmd_sweep(&report, &flags, out),
         "spread" => cmd_spread(&report, &flags, out),
         "plot" => cmd_plot(&report, &flags, out),
         other => Err(Failure::Input(format!(
-            "'{other}' is not a command; use design, sweep, spread or plot"
+            "{} is not a command; use design, sweep, spread or plot",
+            quoted(other)
         ))),
+    };
+    outcome.map_err(|failure| name_the_lever(failure, &given))
+}
+
+/// An error that names a key the link does not set (its default, or a value the design worked
+/// out, is what failed): the message says so and what the user can change, since changing a key
+/// they never typed is not the obvious move.
+fn name_the_lever(failure: Failure, given: &[String]) -> Failure {
+    let Failure::Input(message) = failure else {
+        return failure;
+    };
+    let Some((key, _)) = message.split_once(": ") else {
+        return Failure::Input(message);
+    };
+    let Some(i) = link::KEYS.iter().position(|k| *k == key) else {
+        return Failure::Input(message);
+    };
+    let set = given
+        .iter()
+        .any(|g| *g == link::KEYS[i] || *g == link::V1_KEYS[i]);
+    if set {
+        return Failure::Input(message);
     }
+    Failure::Input(format!(
+        "{message} ({key} is not in the link: the value that failed is its default or one the \
+         design worked out from the other keys; change those keys, or set {key} yourself)"
+    ))
 }
 
 fn io_failure(e: std::io::Error) -> Failure {
@@ -108,14 +155,17 @@ fn read_flags(command: &str, rest: &[String]) -> Result<Flags, Failure> {
         "plot" => &["kind", "out"],
         other => {
             return Err(Failure::Input(format!(
-                "'{other}' is not a command; use design, sweep, spread or plot"
+                "{} is not a command; use design, sweep, spread or plot",
+                quoted(other)
             )))
         }
     };
     let mut flags = Flags::default();
     let mut parser = lexopt::Parser::from_args(rest.iter().cloned());
     loop {
-        let arg = parser.next().map_err(|e| Failure::Input(e.to_string()))?;
+        let arg = parser
+            .next()
+            .map_err(|e| Failure::Input(quoted(&e.to_string())))?;
         let Some(arg) = arg else { break };
         match arg {
             Long(name) if allowed.contains(&name) => {
@@ -126,7 +176,7 @@ fn read_flags(command: &str, rest: &[String]) -> Result<Flags, Failure> {
                 }
                 let value = parser
                     .value()
-                    .map_err(|e| Failure::Input(format!("--{name}: {e}")))?;
+                    .map_err(|e| Failure::Input(format!("--{name}: {}", quoted(&e.to_string()))))?;
                 let value = value
                     .into_string()
                     .map_err(|_| Failure::Input(format!("--{name}: not valid text")))?;
@@ -134,7 +184,8 @@ fn read_flags(command: &str, rest: &[String]) -> Result<Flags, Failure> {
             }
             Long(name) => {
                 return Err(Failure::Input(format!(
-                    "--{name} is not a flag of '{command}'; it takes {}",
+                    "--{} is not a flag of '{command}'; it takes {}",
+                    quoted(name).trim_matches('\''),
                     allowed
                         .iter()
                         .map(|a| format!("--{a}"))
@@ -142,7 +193,12 @@ fn read_flags(command: &str, rest: &[String]) -> Result<Flags, Failure> {
                         .join(", ")
                 )))
             }
-            Short(c) => return Err(Failure::Input(format!("-{c} is not a flag of '{command}'"))),
+            Short(c) => {
+                return Err(Failure::Input(format!(
+                    "-{} is not a flag of '{command}'",
+                    quoted(&c.to_string()).trim_matches('\'')
+                )))
+            }
             Value(v) if flags.link.is_none() => {
                 flags.link = Some(
                     v.into_string()
@@ -151,8 +207,8 @@ fn read_flags(command: &str, rest: &[String]) -> Result<Flags, Failure> {
             }
             Value(v) => {
                 return Err(Failure::Input(format!(
-                    "unexpected argument '{}'; give one LINK",
-                    v.to_string_lossy()
+                    "unexpected argument {}; give one LINK",
+                    quoted(&v.to_string_lossy())
                 )))
             }
         }
@@ -161,15 +217,15 @@ fn read_flags(command: &str, rest: &[String]) -> Result<Flags, Failure> {
 }
 
 fn set_flag(flags: &mut Flags, name: &str, value: &str) -> Result<(), Failure> {
+    // The sweep's bounds pass the link's one frequency check, over the span the analyses cover.
     let frequency = |v: &str| {
-        crate::units::parse_si(v)
-            .ok()
-            .filter(|f| *f > 0.0 && *f <= 1e11)
-            .ok_or_else(|| {
-                Failure::Input(format!(
-                    "--{name}: '{v}' is not accepted; a frequency in Hz above 0, such as 10 or 1M"
-                ))
-            })
+        let what = if name == "from" {
+            "the sweep start"
+        } else {
+            "the sweep end"
+        };
+        link::check_frequency(v, link::ANALYSIS_HZ, what)
+            .map_err(|message| Failure::Input(format!("--{name}: {message}")))
     };
     match name {
         "format" => flags.format = Some(value.to_string()),
@@ -186,7 +242,8 @@ fn set_flag(flags: &mut Flags, name: &str, value: &str) -> Result<(), Failure> {
                     .filter(|n| (2..=100_000).contains(n))
                     .ok_or_else(|| {
                         Failure::Input(format!(
-                            "--points: '{value}' is not accepted; a whole number from 2 to 100000"
+                            "--points: {} is not accepted; a whole number from 2 to 100000",
+                            quoted(value)
                         ))
                     })?,
             )
@@ -200,7 +257,8 @@ fn set_flag(flags: &mut Flags, name: &str, value: &str) -> Result<(), Failure> {
                     .filter(|n| (1..=100_000).contains(n))
                     .ok_or_else(|| {
                         Failure::Input(format!(
-                            "--runs: '{value}' is not accepted; a whole number from 1 to 100000"
+                            "--runs: {} is not accepted; a whole number from 1 to 100000",
+                            quoted(value)
                         ))
                     })?,
             )
@@ -208,7 +266,8 @@ fn set_flag(flags: &mut Flags, name: &str, value: &str) -> Result<(), Failure> {
         "seed" => {
             flags.seed = Some(value.trim().parse::<u64>().map_err(|_| {
                 Failure::Input(format!(
-                    "--seed: '{value}' is not accepted; a whole number from 0 to {}",
+                    "--seed: {} is not accepted; a whole number from 0 to {}",
+                    quoted(value),
                     u64::MAX
                 ))
             })?)
@@ -222,8 +281,34 @@ fn set_flag(flags: &mut Flags, name: &str, value: &str) -> Result<(), Failure> {
     Ok(())
 }
 
-/// The command line is strict: any bad key is refused; unknown keys and notes are warnings.
-fn check_link(report: &LinkReport, err: &mut dyn Write) -> Result<(), Failure> {
+/// The distinct keys of a link's query, as typed (a repeated key counts once, as the reader
+/// keeps its last value).
+fn link_keys(link_text: &str) -> Vec<String> {
+    let mut keys: Vec<String> = Vec::new();
+    for (key, value) in form_urlencoded::parse(link::query_of(link_text).as_bytes()) {
+        if key.is_empty() && value.is_empty() {
+            continue;
+        }
+        if !keys.iter().any(|k| *k == key) {
+            keys.push(key.into_owned());
+        }
+    }
+    keys
+}
+
+/// The command line is strict: any bad key is refused, and so is an argument in which no key
+/// this version knows appears (a file name or `-` is not a link; read as one it would design the
+/// default filter); unknown keys beside known ones, and notes, are warnings.
+fn check_link(link_text: &str, report: &LinkReport, err: &mut dyn Write) -> Result<(), Failure> {
+    let n_known = link_keys(link_text)
+        .len()
+        .saturating_sub(report.unknown_keys.len());
+    if n_known == 0 {
+        return Err(Failure::Input(format!(
+            "LINK: {} has no link key this version knows; {LINK_SHAPE}",
+            quoted(link_text)
+        )));
+    }
     if let Some(first) = report
         .errors
         .iter()
@@ -235,11 +320,12 @@ fn check_link(report: &LinkReport, err: &mut dyn Write) -> Result<(), Failure> {
     for key in &report.unknown_keys {
         let _ = writeln!(
             err,
-            "rolloff: warning: link key '{key}' is not known to this version; ignored"
+            "rolloff: warning: link key {} is not known to this version; ignored",
+            quoted(key)
         );
     }
     for note in &report.notes {
-        let _ = writeln!(err, "rolloff: warning: {note}");
+        let _ = writeln!(err, "rolloff: warning: {}", link::escape_controls(note));
     }
     Ok(())
 }
@@ -250,7 +336,8 @@ fn format_choice<'a>(flags: &'a Flags, allowed: &[&'a str]) -> Result<&'a str, F
         Ok(format)
     } else {
         Err(Failure::Input(format!(
-            "--format: '{format}' is not accepted; use {}",
+            "--format: {} is not accepted; use {}",
+            quoted(format),
             allowed.join(", ")
         )))
     }
@@ -304,7 +391,12 @@ fn cmd_spread(report: &LinkReport, flags: &Flags, out: &mut dyn Write) -> Result
         state.study.seed = seed;
     }
     let design = pipeline::compose(&state)?;
-    let spread = pipeline::spread(&design).map_err(Failure::Other)?;
+    let spread = pipeline::spread(&design).map_err(|e| {
+        Failure::Other(format!(
+            "the tolerance study could not be computed for this board ({e}); `rolloff design` \
+             still shows the design and its other figures"
+        ))
+    })?;
     let text = match format {
         "json" => crate::export::json::spread_json(&design, &spread),
         _ => crate::export::text::spread_text(&design, &spread),
@@ -319,7 +411,8 @@ fn cmd_plot(report: &LinkReport, flags: &Flags, out: &mut dyn Write) -> Result<(
     let Some(kind) = PlotKind::from_key(name) else {
         let names: Vec<&str> = PlotKind::ALL.iter().map(|k| k.key()).collect();
         return Err(Failure::Input(format!(
-            "--kind: '{name}' is not accepted; use one of {}",
+            "--kind: {} is not accepted; use one of {}",
+            quoted(name),
             names.join(", ")
         )));
     };

@@ -802,7 +802,7 @@ fn every_bad_choice_names_its_key() {
     };
     assert_eq!(build_err(&lp, &op(|o| o.gbw_hz = -1.0)), "gbw");
     assert_eq!(build_err(&lp, &op(|o| o.gbw_hz = f64::NAN)), "gbw");
-    assert_eq!(build_err(&lp, &op(|o| o.a0_db = 0.0)), "a0");
+    assert_eq!(build_err(&lp, &op(|o| o.a0_db = -1.0)), "a0");
     assert_eq!(build_err(&lp, &op(|o| o.rout_ohm = -5.0)), "rout");
     // Part overrides: unknown reference, op amp, value out of range or not a number.
     let set = |r: &str, v: f64| BuildChoices {
@@ -838,13 +838,13 @@ fn every_bad_choice_names_its_key() {
         build_err(&[section(SectionKind::LowPass, 1e3, Some(0.7), 0.0)], &base),
         "gain"
     );
-    // A frequency no part range can reach.
+    // A frequency no part range can reach: with the automatic level, the cutoff is what to move.
     assert_eq!(
         build_err(
             &[section(SectionKind::LowPass, 1e-6, Some(0.7), 1.0)],
             &base
         ),
-        "rlevel"
+        "fc"
     );
 }
 
@@ -1294,7 +1294,7 @@ fn a_grid_of_requests_gives_a_sound_board_or_a_named_error() {
                             };
                             match Board::build(secs, &ch) {
                                 Err(e) => assert!(
-                                    ["cratio", "rratio", "gain", "rlevel"]
+                                    ["cratio", "rratio", "gain", "rlevel", "fc"]
                                         .contains(&e.key.as_str()),
                                     "{e}"
                                 ),

@@ -8,7 +8,7 @@
 //! `crate::mna` is the independent reference these solves are tested against; it is not used
 //! here.
 
-use super::circuit::{merge_stages, transfer_at, AnalysisError, Assembled, Compiled, Solver};
+use super::circuit::{merge_stages, AnalysisError, Assembled, Compiled, Solver};
 use crate::board::Board;
 use crate::fmath;
 use crate::netlist::{PartKind, StageNetlist};
@@ -28,6 +28,10 @@ pub struct BoardSolver {
     on_input: Vec<(PartKind, f64, Option<usize>)>,
     /// The complex frequency of the last solve, rad/s.
     last_s: Complex64,
+    /// Each row's span of non-zero columns ([`Solver::spans_of`]), found once.
+    spans: Vec<(usize, usize)>,
+    /// The non-zero entries `(row, column, value)` of `C`, for the derivative's `C·x`.
+    c_entries: Vec<(usize, usize, f64)>,
 }
 
 impl BoardSolver {
@@ -66,6 +70,12 @@ impl BoardSolver {
             })
             .collect();
         let solver = Solver::new(compiled.n);
+        let spans = Solver::spans_of(&assembled);
+        let n = compiled.n;
+        let c_entries = (0..n * n)
+            .filter(|&i| assembled.c[i] != 0.0)
+            .map(|i| (i / n, i % n, assembled.c[i]))
+            .collect();
         Ok(BoardSolver {
             compiled,
             assembled,
@@ -73,6 +83,8 @@ impl BoardSolver {
             stage_cols,
             on_input,
             last_s: Complex64::new(0.0, 0.0),
+            spans,
+            c_entries,
         })
     }
 
@@ -97,7 +109,39 @@ impl BoardSolver {
     pub fn solve_at(&mut self, f_hz: f64) -> Result<Complex64, AnalysisError> {
         let s = Complex64::new(0.0, 2.0 * PI * f_hz);
         self.last_s = s;
-        transfer_at(&self.compiled, &self.assembled, &mut self.solver, s)
+        self.solver
+            .load_in_spans(&self.assembled, &self.spans, s, Complex64::new(1.0, 0.0));
+        let det = self.solver.solve();
+        if det.re == 0.0 && det.im == 0.0 {
+            return Err(AnalysisError::Singular(format!(
+                "at s = {s}: a node without a DC path, a capacitor loop or an op amp without feedback"
+            )));
+        }
+        Ok(self.solver.solution()[self.compiled.output_col])
+    }
+
+    /// Solves the board at `f_hz` and returns V(out)/V(in) and its derivative with respect to
+    /// the complex frequency, dH/ds (s). The derivative comes from the same factorization: with
+    /// `M(s)·x = b(s)`, `M = G + s·C` and `b = −(g_in + s·c_in)`, differentiating gives
+    /// `M·dx/ds = −c_in − C·x`, one more pair of triangular solves. The group delay is then
+    /// `−Re(H'/H)` (`−d arg H/dω` with `dH/dω = j·dH/ds`).
+    ///
+    /// # Errors
+    /// As [`BoardSolver::solve_at`].
+    pub fn solve_with_slope(&mut self, f_hz: f64) -> Result<(Complex64, Complex64), AnalysisError> {
+        let h = self.solve_at(f_hz)?;
+        let x = self.solver.solution();
+        let mut rhs: Vec<Complex64> = self
+            .assembled
+            .c_in
+            .iter()
+            .map(|&c| Complex64::new(-c, 0.0))
+            .collect();
+        for &(r, k, v) in &self.c_entries {
+            rhs[r] -= x[k] * v;
+        }
+        self.solver.solve_again(&mut rhs);
+        Ok((h, rhs[self.compiled.output_col]))
     }
 
     /// Stage `k`'s output relative to the board input at the last solve.

@@ -395,6 +395,17 @@ pub struct Solver {
     row_start: Vec<usize>,
     /// One past the last column of each row that may be non-zero.
     row_end: Vec<usize>,
+    /// The row chosen as pivot at each step of the last [`Solver::solve`], so that
+    /// [`Solver::solve_again`] replays the same row exchanges on another right-hand side.
+    pivots: Vec<usize>,
+    /// One past the last row that step k of the last solve eliminated (its multipliers end
+    /// there), so the replay skips the rows a banded board never reaches.
+    lower_end: Vec<usize>,
+    /// One past the last row whose span starts at or before each column, found at the start of
+    /// each solve: the rows beyond it hold exact zeros in that column, so the pivot search and
+    /// the elimination stop there. A row exchange at step k swaps two rows below `reach[k]`,
+    /// which stays below `reach` of every later column, so the bound holds throughout.
+    reach: Vec<usize>,
 }
 
 impl Solver {
@@ -406,6 +417,9 @@ impl Solver {
             rhs: vec![Complex64::new(0.0, 0.0); n],
             row_start: vec![0; n],
             row_end: vec![n; n],
+            pivots: (0..n).collect(),
+            lower_end: vec![0; n],
+            reach: vec![n; n],
         }
     }
 
@@ -436,15 +450,57 @@ impl Solver {
 
     /// Loads `g + s·c` for the entries `(g, c) = entry(row, column)`, and every row's span.
     fn load_rows(&mut self, s: Complex64, entry: impl Fn(usize, usize) -> (f64, f64)) {
+        let n = self.n;
+        let spans: Vec<(usize, usize)> = (0..n)
+            .map(|r| {
+                let used = |k: &usize| {
+                    let (g, c) = entry(r, *k);
+                    g != 0.0 || c != 0.0
+                };
+                let lo = (0..n).find(used).unwrap_or(n);
+                (lo, (lo..n).rfind(used).map_or(lo, |k| k + 1))
+            })
+            .collect();
+        self.load_spans(s, &spans, entry);
+    }
+
+    /// The span of columns outside which each row of `M(s) = G + s·C` is exactly zero, for
+    /// [`Solver::load_in_spans`]: a board solved at many frequencies finds them once.
+    pub fn spans_of(a: &Assembled) -> Vec<(usize, usize)> {
+        let n = a.g_in.len();
+        (0..n)
+            .map(|r| {
+                let used = |k: &usize| a.g[r * n + *k] != 0.0 || a.c[r * n + *k] != 0.0;
+                let lo = (0..n).find(used).unwrap_or(n);
+                (lo, (lo..n).rfind(used).map_or(lo, |k| k + 1))
+            })
+            .collect()
+    }
+
+    /// [`Solver::load`] with the row spans given ([`Solver::spans_of`] of the same `a`), so the
+    /// load writes each row's span without searching for it; the loaded matrix is the same.
+    pub fn load_in_spans(
+        &mut self,
+        a: &Assembled,
+        spans: &[(usize, usize)],
+        s: Complex64,
+        v_in: Complex64,
+    ) {
+        let n = self.n;
+        self.load_spans(s, spans, |r, k| (a.g[r * n + k], a.c[r * n + k]));
+        input_drive(a, s, v_in, &mut self.rhs);
+    }
+
+    /// Loads `g + s·c` over each row's span `spans[row]`.
+    fn load_spans(
+        &mut self,
+        s: Complex64,
+        spans: &[(usize, usize)],
+        entry: impl Fn(usize, usize) -> (f64, f64),
+    ) {
         self.clear();
         let n = self.n;
-        for r in 0..n {
-            let used = |k: &usize| {
-                let (g, c) = entry(r, *k);
-                g != 0.0 || c != 0.0
-            };
-            let lo = (0..n).find(used).unwrap_or(n);
-            let hi = (lo..n).rfind(used).map_or(lo, |k| k + 1);
+        for (r, &(lo, hi)) in spans.iter().enumerate().take(n) {
             for k in lo..hi {
                 let (g, c) = entry(r, k);
                 self.m[r * n + k] = Complex64::new(g, 0.0) + s * c;
@@ -465,12 +521,21 @@ impl Solver {
     pub fn solve(&mut self) -> Complex64 {
         let n = self.n;
         let mut det = Complex64::new(1.0, 0.0);
+        self.reach.fill(0);
+        for r in 0..n {
+            let start = self.row_start[r].min(n.saturating_sub(1));
+            self.reach[start] = self.reach[start].max(r + 1);
+        }
+        for k in 1..n {
+            self.reach[k] = self.reach[k].max(self.reach[k - 1]);
+        }
         for k in 0..n {
             // Partial pivoting by the largest |·|₁ in column k (rows whose span misses column k
             // hold an exact zero there).
             let mut best = k;
             let mut best_mag = -1.0;
-            for r in k..n {
+            let reach = self.reach[k].max(k + 1);
+            for r in k..reach {
                 if self.row_start[r] > k || self.row_end[r] <= k {
                     continue;
                 }
@@ -497,19 +562,31 @@ impl Solver {
                 self.row_start.swap(k, best);
                 self.row_end.swap(k, best);
                 det = -det;
+                // Row k's multipliers of the earlier columns moved to row `best`.
+                for end in self.lower_end[..k].iter_mut() {
+                    if *end > k && best >= *end {
+                        *end = best + 1;
+                    }
+                }
             }
+            self.pivots[k] = best;
+            self.lower_end[k] = k + 1;
             let pivot = self.m[k * n + k];
             det *= pivot;
             let inv = 1.0 / pivot;
             let end_k = self.row_end[k].max(k + 1);
-            for r in (k + 1)..n {
+            for r in (k + 1)..reach {
                 if self.row_start[r] > k || self.row_end[r] <= k {
                     continue;
                 }
                 let factor = self.m[r * n + k] * inv;
+                // The multiplier stays where the eliminated entry was (the lower triangle is not
+                // read by this solve), so that `solve_again` can replay the elimination.
+                self.m[r * n + k] = factor;
                 if factor.re == 0.0 && factor.im == 0.0 {
                     continue;
                 }
+                self.lower_end[k] = r + 1;
                 let (upper, lower) = self.m.split_at_mut(r * n);
                 let pivot_row = &upper[k * n + k + 1..k * n + end_k];
                 let row = &mut lower[k + 1..end_k];
@@ -534,6 +611,38 @@ impl Solver {
     /// The solution after [`Solver::solve`].
     pub fn solution(&self) -> &[Complex64] {
         &self.rhs
+    }
+
+    /// Solves the matrix of the last [`Solver::solve`] for another right-hand side `b`, in place,
+    /// from the factors that solve left (row exchanges, multipliers below the diagonal, the upper
+    /// triangle): no new elimination. Call it only after a `solve` whose determinant was not zero.
+    pub fn solve_again(&self, b: &mut [Complex64]) {
+        let n = self.n;
+        // The row exchanges moved whole rows, multipliers included, so they come first.
+        for k in 0..n {
+            b.swap(k, self.pivots[k]);
+        }
+        for k in 0..n {
+            let v = b[k];
+            if v.re == 0.0 && v.im == 0.0 {
+                continue;
+            }
+            // Rows past `lower_end[k]` had no multiplier; rows before it that start after column
+            // k hold an exact zero there.
+            for r in (k + 1)..self.lower_end[k] {
+                if self.row_start[r] <= k {
+                    let factor = self.m[r * n + k];
+                    b[r] -= factor * v;
+                }
+            }
+        }
+        for k in (0..n).rev() {
+            let mut acc = b[k];
+            for c in (k + 1)..self.row_end[k].max(k + 1) {
+                acc -= self.m[k * n + c] * b[c];
+            }
+            b[k] = acc / self.m[k * n + k];
+        }
     }
 }
 

@@ -103,12 +103,18 @@ pub(crate) fn dominant_w0_q(poles: &[Complex64], order: usize) -> Option<(f64, f
             if p.len() < 2 {
                 return None;
             }
-            // The smallest pole and its partner (its conjugate, or the next real pole).
+            // The smallest pole and its partner: its conjugate, or the next real pole. A real
+            // smallest pole with no other real pole happens when a low-Q stage's far pole has
+            // merged with the op amp's pole into a complex pair; the stage then behaves like the
+            // real pole and a far one at that pair's magnitude, which stands in as the partner.
             let first = p[0];
             let second = if first.im != 0.0 {
                 first.conj()
             } else {
-                *p.iter().skip(1).find(|z| z.im == 0.0)?
+                match p.iter().skip(1).find(|z| z.im == 0.0) {
+                    Some(real) => *real,
+                    None => Complex64::new(-fmath::cnorm(p[1]), 0.0),
+                }
             };
             let v = (first * second).re;
             let u = -(first + second).re;

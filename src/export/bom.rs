@@ -3,21 +3,25 @@
 //! `ref,value,formatted,series,tolerance_pct,stage,role`.
 //!
 //! `value` is in SI base units (Ω, F) written in shortest round-trip scientific form, so a script
-//! reads it back exactly; `formatted` is engineering notation with the unit (`4.87 kΩ`). An op amp
-//! row leaves value, series and tolerance empty and describes the model in `formatted`.
+//! reads it back exactly; `formatted` is engineering notation with the unit (`4.87 kΩ`);
+//! `tolerance_pct` is the part's own tolerance ([`part_tolerance_pct`]: its `tolset` override, else
+//! `rtol` or `ctol`), the value the tolerance study draws it with. An op amp row leaves value,
+//! series and tolerance empty and describes the model in `formatted`.
 
 use crate::board::Board;
 use crate::eseries::Series;
-use crate::netlist::PartKind;
+use crate::netlist::{Part, PartKind};
 use crate::units::format_si_unit;
 
-/// Part tolerances written into the list (`rtol`, `ctol`).
-#[derive(Debug, Clone, Copy, PartialEq)]
+/// Part tolerances written into the list (`rtol`, `ctol`, `tolset`).
+#[derive(Debug, Clone, PartialEq)]
 pub struct Tolerances {
     /// Resistor tolerance, %.
     pub resistor_pct: f64,
     /// Capacitor tolerance, %.
     pub capacitor_pct: f64,
+    /// Per-part tolerances, % (`tolset=C2:1`), by reference; they replace the class's.
+    pub overrides: Vec<(String, f64)>,
 }
 
 impl Default for Tolerances {
@@ -26,6 +30,7 @@ impl Default for Tolerances {
         Tolerances {
             resistor_pct: 1.0,
             capacitor_pct: 5.0,
+            overrides: Vec::new(),
         }
     }
 }
@@ -54,6 +59,26 @@ fn series_of(board_series: Series, value: f64) -> &'static str {
         .map_or("exact", |s| s.key())
 }
 
+/// The tolerance of one part, %: its override when `tolerances` has one for its reference (the
+/// first, as the study takes; the link reader keeps one per reference), else the tolerance of its class; `None` for an op
+/// amp. The tolerance study draws each part with the same rule
+/// (`analysis::tolerance::Tolerances`), and the parts list, the text report and the page's parts
+/// table all state it through this function.
+pub fn part_tolerance_pct(part: &Part, tolerances: &Tolerances) -> Option<f64> {
+    let class_pct = match part.kind {
+        PartKind::Resistor => tolerances.resistor_pct,
+        PartKind::Capacitor => tolerances.capacitor_pct,
+        PartKind::OpAmp => return None,
+    };
+    Some(
+        tolerances
+            .overrides
+            .iter()
+            .find(|(reference, _)| *reference == part.reference)
+            .map_or(class_pct, |(_, pct)| *pct),
+    )
+}
+
 /// The parts list of `board`.
 pub fn csv(board: &Board, tolerances: &Tolerances) -> String {
     let mut out = String::new();
@@ -63,11 +88,12 @@ pub fn csv(board: &Board, tolerances: &Tolerances) -> String {
         for part in &stage.netlist.parts {
             let row: Vec<String> = match part.kind {
                 PartKind::Resistor | PartKind::Capacitor => {
-                    let (unit, series, tol) = if part.kind == PartKind::Resistor {
-                        ("Ω", board.r_series, tolerances.resistor_pct)
+                    let (unit, series) = if part.kind == PartKind::Resistor {
+                        ("Ω", board.r_series)
                     } else {
-                        ("F", board.c_series, tolerances.capacitor_pct)
+                        ("F", board.c_series)
                     };
+                    let tol = part_tolerance_pct(part, tolerances).unwrap_or(f64::NAN);
                     vec![
                         part.reference.clone(),
                         format!("{:e}", part.value),

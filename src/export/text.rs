@@ -101,6 +101,8 @@ pub fn design_text(design: &Design) -> String {
         "  {:<3} {:<7} {:>11} {:>11} {:>8} {:>8} {:>9}  parts",
         "#", "circuit", "f0 target", "f0 built", "Q target", "Q built", "gain V/V"
     );
+    // Each part with its own tolerance, as the parts list and the tolerance study have it.
+    let tolerances = crate::pipeline::bom_tolerances(design);
     for (index, stage) in design.board.stages.iter().enumerate() {
         let q_target = stage.section.q.map_or("-".into(), |q| format!("{q:.4}"));
         let q_built = stage.achieved_q.map_or("-".into(), |q| format!("{q:.4}"));
@@ -115,8 +117,10 @@ pub fn design_text(design: &Design) -> String {
                 } else {
                     "F"
                 };
+                let tolerance = crate::export::bom::part_tolerance_pct(p, &tolerances)
+                    .map_or(String::new(), |pct| format!("±{pct}%"));
                 format!(
-                    "{}={}",
+                    "{}={}{tolerance}",
                     p.reference,
                     format_si_unit(p.value, 3, unit).replace(' ', "")
                 )

@@ -80,6 +80,20 @@ pub(crate) enum Parse {
         hi: f64,
         what: &'static str,
     },
+    /// A frequency in Hz within `range` (one of [`TARGET_HZ`], [`ANALYSIS_HZ`]), checked by the
+    /// reader's one frequency check; `what` names it in messages.
+    Frequency {
+        range: (f64, f64),
+        what: &'static str,
+    },
+    /// Zero, or a number from `least` to `hi` (an op-amp figure whose zero means "none"): a
+    /// tiny positive value such as 1e-308 is refused rather than carried into the analyses,
+    /// where it is neither zero nor a figure any part has.
+    ZeroOr {
+        least: f64,
+        hi: f64,
+        what: &'static str,
+    },
     /// A [`Parse::Number`] that may also be `ideal` (infinite).
     NumberOrIdeal {
         lo: f64,
@@ -96,8 +110,11 @@ pub(crate) enum Parse {
     Choice(&'static [&'static str]),
     /// A frequency edge: one value, or `lo,hi` for band-pass (the class is read first).
     Edge,
-    /// A pair `lo,hi` of positive frequencies.
-    Band { what: &'static str },
+    /// A pair `lo,hi` of frequencies within `range`, lo < hi.
+    Band {
+        range: (f64, f64),
+        what: &'static str,
+    },
     /// `REF:value` pairs separated by commas, each value within `[lo, hi]`.
     Parts {
         lo: f64,
@@ -279,6 +296,29 @@ const DISTRIBUTIONS: [(&str, Distribution); 2] = [
 ];
 const DISTRIBUTION_NAMES: [&str; 2] = names(&DISTRIBUTIONS);
 
+/// The frequencies a design may be asked for, Hz: the cutoff, the bandwidth, the limit edges and
+/// the converter helper's rates. The reader checks every one of these keys against this range
+/// (README, "Link keys": 1 mHz–1 GHz).
+pub(crate) const TARGET_HZ: (f64, f64) = (1e-3, 1e9);
+
+/// The frequencies the analyses cover, Hz: the noise band, and the sweep's `--from` and `--to`.
+/// Below about 1e-4 Hz the powers of ω in a stage's polynomials underflow and above 1e11 Hz they
+/// overflow (the automatic plot span stops at the same bounds, `pipeline::compose`).
+pub const ANALYSIS_HZ: (f64, f64) = (1e-4, 1e11);
+
+/// What the reader accepts for `span` before the composer narrows it to [`ANALYSIS_HZ`] (with a
+/// warning): any normal positive frequency up to 10 GHz, so an old link with a wide span still
+/// opens; subnormal numbers are refused like everywhere else.
+pub(crate) const SPAN_READ_HZ: (f64, f64) = (f64::MIN_POSITIVE, 1e10);
+
+const fn freq(range: (f64, f64), what: &'static str) -> Parse {
+    Parse::Frequency { range, what }
+}
+
+const fn zero_or(least: f64, hi: f64, what: &'static str) -> Parse {
+    Parse::ZeroOr { least, hi, what }
+}
+
 const fn num(lo: f64, hi: f64, what: &'static str) -> Parse {
     Parse::Number { lo, hi, what }
 }
@@ -384,17 +424,13 @@ pub(crate) const TABLE: [Row; 44] = [
         },
     )
     .always(),
-    row(Key::Fc, "fc", num(1e-3, 1e9, "cutoff in Hz"), None, |s| {
+    row(Key::Fc, "fc", freq(TARGET_HZ, "the cutoff"), None, |s| {
         s.requirement.fc_hz.map(number_text)
     })
     .always(),
-    row(
-        Key::Bw,
-        "bw",
-        num(1e-3, 1e9, "bandwidth in Hz"),
-        None,
-        |s| s.requirement.bw_hz.map(number_text),
-    )
+    row(Key::Bw, "bw", freq(TARGET_HZ, "the bandwidth"), None, |s| {
+        s.requirement.bw_hz.map(number_text)
+    })
     .always(),
     // A limit the converter helper fills is left to it, so the link keeps saying where the limit
     // comes from (and a changed converter moves it).
@@ -451,7 +487,7 @@ pub(crate) const TABLE: [Row; 44] = [
     row(
         Key::Fsample,
         "fsample",
-        num(1e-3, 1e10, "converter sample rate in Hz"),
+        freq(TARGET_HZ, "the converter sample rate"),
         None,
         |s| s.converter.map(|c| number_text(c.sample_rate_hz)),
     ),
@@ -465,7 +501,7 @@ pub(crate) const TABLE: [Row; 44] = [
     row(
         Key::Fsignal,
         "fsignal",
-        num(1e-3, 1e10, "signal bandwidth in Hz"),
+        freq(TARGET_HZ, "the signal bandwidth"),
         None,
         |s| s.converter.map(|c| number_text(c.signal_band_hz)),
     ),
@@ -528,21 +564,21 @@ pub(crate) const TABLE: [Row; 44] = [
     row(
         Key::Rout,
         "rout",
-        num(0.0, 1e5, "op-amp output resistance in Ω"),
+        zero_or(1e-3, 1e5, "op-amp output resistance in Ω"),
         Some(|s, v| s.op_amp.rout_ohm = number(&v)),
         |s| Some(number_text(s.op_amp.rout_ohm)),
     ),
     row(
         Key::Vnoise,
         "vnoise",
-        num(0.0, 1e-5, "op-amp voltage noise in V/√Hz"),
+        zero_or(1e-12, 1e-5, "op-amp voltage noise in V/√Hz"),
         Some(|s, v| s.op_amp.en_v_per_rthz = number(&v)),
         |s| Some(number_text(s.op_amp.en_v_per_rthz)),
     ),
     row(
         Key::Inoise,
         "inoise",
-        num(0.0, 1e-8, "op-amp current noise in A/√Hz"),
+        zero_or(1e-18, 1e-8, "op-amp current noise in A/√Hz"),
         Some(|s, v| s.op_amp.in_a_per_rthz = number(&v)),
         |s| Some(number_text(s.op_amp.in_a_per_rthz)),
     ),
@@ -673,6 +709,7 @@ pub(crate) const TABLE: [Row; 44] = [
         Key::NoiseBand,
         "noiseband",
         Parse::Band {
+            range: ANALYSIS_HZ,
             what: "the noise band",
         },
         Some(|s, v| s.signal.noise_band_hz = band(&v)),
@@ -682,6 +719,7 @@ pub(crate) const TABLE: [Row; 44] = [
         Key::Span,
         "span",
         Parse::Band {
+            range: SPAN_READ_HZ,
             what: "the plot span",
         },
         Some(|s, v| s.span_hz = band(&v)),

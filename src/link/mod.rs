@@ -16,7 +16,9 @@ mod keys;
 mod read;
 mod write;
 
-pub use keys::KEYS;
+pub(crate) use keys::V1_KEYS;
+pub use keys::{ANALYSIS_HZ, KEYS};
+pub use read::{check_frequency, escape_controls, quoted, shown_number};
 
 use crate::choices::Rounding;
 use crate::error::InputError;

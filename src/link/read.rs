@@ -9,8 +9,10 @@
 //! converter) are combined here, because each one's meaning depends on the others.
 //!
 //! Messages always use the version-2 names, so that they match the page's form and the README.
+//! Every message that quotes the user's text quotes it through [`quoted`] (control characters
+//! escaped, long values cut), and every frequency-like key passes the one [`check_frequency`].
 
-use super::keys::{self, name, row_of, Key, Parse, Value, FAMILY_NAMES, MARGINS, TABLE};
+use super::keys::{self, name, row_of, Key, Parse, Value, FAMILY_NAMES, MARGINS, TABLE, TARGET_HZ};
 use super::{
     Converter, LinkReport, LinkState, DEFAULT_APASS_DB, DEFAULT_FC_HZ, DEFAULT_ORDER,
     DEFAULT_RIPPLE_DB, FORMAT_VERSION, MAX_ORDER,
@@ -19,6 +21,101 @@ use crate::error::InputError;
 use crate::sections::StageOrder;
 use crate::spec::{Edge, Family, Mask, OrderChoice, ResponseClass};
 use crate::units::parse_si;
+
+/// The longest stretch of the user's text a message quotes, in characters.
+pub const QUOTE_CHARS: usize = 60;
+
+/// The longest part reference the reader takes (`R12345`): longer ones are refused rather than
+/// carried into messages and the parts list.
+const MAX_REFERENCE_CHARS: usize = 8;
+
+/// One character as a message shows it: control characters (C0, DEL, C1) and the bidirectional
+/// formatting characters, which a terminal or a page would act on rather than show, are written
+/// as a Rust-style escape `\u{1b}`; everything else is itself.
+fn push_escaped(out: &mut String, c: char) {
+    let bidi =
+        matches!(c, '\u{200e}' | '\u{200f}' | '\u{202a}'..='\u{202e}' | '\u{2066}'..='\u{2069}');
+    if c.is_control() || bidi {
+        out.push_str(&format!("\\u{{{:x}}}", c as u32));
+    } else {
+        out.push(c);
+    }
+}
+
+/// `text` with every control and bidirectional formatting character escaped as `\u{…}`, and
+/// nothing cut: the last guard the command line puts on every line it writes to stderr.
+pub fn escape_controls(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    for c in text.chars() {
+        push_escaped(&mut out, c);
+    }
+    out
+}
+
+/// The user's text as every message quotes it: between single quotes, control characters
+/// escaped as in [`escape_controls`] (`'a\u{1b}]0;x\u{7}'`), and a text longer than
+/// [`QUOTE_CHARS`] characters cut to its first [`QUOTE_CHARS`] followed by
+/// `… (N characters)`, so a 100 kB value is never echoed whole.
+pub fn quoted(text: &str) -> String {
+    let n_chars = text.chars().count();
+    let mut out = String::from("'");
+    for c in text.chars().take(QUOTE_CHARS) {
+        push_escaped(&mut out, c);
+    }
+    out.push('\'');
+    if n_chars > QUOTE_CHARS {
+        out.push_str(&format!("… ({n_chars} characters)"));
+    }
+    out
+}
+
+/// A number as a message shows it: plain when it is short (`0.5`, `1000`), in scientific form
+/// otherwise (`1e-308`), so an extreme value never prints hundreds of digits.
+pub fn shown_number(v: f64) -> String {
+    if v == 0.0 || !v.is_finite() || (1e-4..1e9).contains(&v.abs()) {
+        format!("{v}")
+    } else {
+        format!("{v:e}")
+    }
+}
+
+/// [`parse_si`] with the user's text in its message quoted by [`quoted`].
+fn si(text: &str) -> Result<f64, String> {
+    parse_si(text).map_err(|e| {
+        let trimmed = text.trim();
+        e.replacen(&format!("'{trimmed}'"), &quoted(trimmed), 1)
+    })
+}
+
+/// The one check of every frequency-like value (the link's cutoff, bandwidth, edges, converter
+/// rates, noise band and span, and the sweep's `--from` and `--to`): a number in engineering
+/// notation that is normal (not zero, subnormal, infinite or NaN) and lies within `range`, Hz.
+/// `what` names the value in the message, which gives the accepted range.
+///
+/// # Errors
+/// A message quoting the text (through [`quoted`]) and naming the range.
+pub fn check_frequency(text: &str, range: (f64, f64), what: &str) -> Result<f64, String> {
+    let v = si(text)?;
+    if v.is_normal() && v >= range.0 && v <= range.1 {
+        Ok(v)
+    } else {
+        Err(format!(
+            "{} is not accepted; {what} is a frequency in Hz from {}",
+            quoted(text.trim()),
+            range_text(range)
+        ))
+    }
+}
+
+/// A frequency range as messages give it: `1 mHz to 1 GHz`.
+fn range_text((lo, hi): (f64, f64)) -> String {
+    let hz = |f: f64| crate::units::format_si_unit(f, 4, "Hz");
+    if lo <= f64::MIN_POSITIVE {
+        // The span's reading range: any normal number, which no SI prefix writes.
+        return format!("above 0 Hz (not a subnormal number) to {}", hz(hi));
+    }
+    format!("{} to {}", hz(lo), hz(hi))
+}
 
 /// The link format a link is read in.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -92,7 +189,7 @@ impl Reader {
                     Version::Two
                 }
                 _ => {
-                    self.fail(Key::V, format!("'{text}' is not accepted; the format version is {FORMAT_VERSION} (or 1 for older links)"));
+                    self.fail(Key::V, format!("{} is not accepted; the format version is {FORMAT_VERSION} (or 1 for older links)", quoted(text)));
                     Version::Two
                 }
             };
@@ -140,6 +237,32 @@ impl Reader {
         match row_of(key).parse {
             Parse::Version => None,
             Parse::Number { lo, hi, what } => self.number(key, &text, lo, hi, what),
+            Parse::Frequency { range, what } => match check_frequency(&text, range, what) {
+                Ok(v) => Some(Value::Number(v)),
+                Err(message) => {
+                    self.fail(key, message);
+                    None
+                }
+            },
+            Parse::ZeroOr { least, hi, what } => match si(&text) {
+                Ok(v) if v == 0.0 || (v >= least && v <= hi) => Some(Value::Number(v)),
+                Ok(_) => {
+                    self.fail(
+                        key,
+                        format!(
+                            "{} is not accepted; {what} is 0 or from {} to {}",
+                            quoted(text.trim()),
+                            shown_number(least),
+                            shown_number(hi)
+                        ),
+                    );
+                    None
+                }
+                Err(e) => {
+                    self.fail(key, format!("{e} ({what})"));
+                    None
+                }
+            },
             Parse::NumberOrIdeal { lo, hi, what } => {
                 if text.trim().eq_ignore_ascii_case("ideal") {
                     Some(Value::Number(f64::INFINITY))
@@ -152,7 +275,13 @@ impl Reader {
                 match text.parse::<u64>() {
                     Ok(v) if v >= lo && v <= hi => Some(Value::Integer(v)),
                     _ => {
-                        self.fail(key, format!("'{text}' is not accepted; {what} is a whole number from {lo} to {hi}"));
+                        self.fail(
+                            key,
+                            format!(
+                                "{} is not accepted; {what} is a whole number from {lo} to {hi}",
+                                quoted(text)
+                            ),
+                        );
                         None
                     }
                 }
@@ -165,24 +294,35 @@ impl Reader {
                     None => {
                         self.fail(
                             key,
-                            format!("'{text}' is not accepted; use one of {}", names.join(", ")),
+                            format!(
+                                "{} is not accepted; use one of {}",
+                                quoted(text),
+                                names.join(", ")
+                            ),
                         );
                         None
                     }
                 }
             }
             Parse::Edge => self.edge(key, &text).map(Value::Edge),
-            Parse::Band { what } => {
-                let parts: Vec<Result<f64, String>> = text.split(',').map(parse_si).collect();
+            Parse::Band { range, what } => {
+                let parts: Vec<Result<f64, String>> = text
+                    .split(',')
+                    .map(|t| check_frequency(t, range, what))
+                    .collect();
                 match parts.as_slice() {
-                    [Ok(lo), Ok(hi)] if *lo > 0.0 && lo < hi && *hi <= 1e10 => {
-                        Some(Value::Band(*lo, *hi))
+                    [Ok(lo), Ok(hi)] if lo < hi => Some(Value::Band(*lo, *hi)),
+                    [Err(message), _] | [_, Err(message)] => {
+                        self.fail(key, format!("{message} (lo,hi)"));
+                        None
                     }
                     _ => {
                         self.fail(
                             key,
                             format!(
-                                "'{text}' is not accepted; {what} is lo,hi in Hz with 0 < lo < hi"
+                                "{} is not accepted; {what} is lo,hi in Hz with lo < hi, each from {}",
+                                quoted(&text),
+                                range_text(range)
                             ),
                         );
                         None
@@ -200,12 +340,29 @@ impl Reader {
     }
 
     fn number(&mut self, key: Key, text: &str, lo: f64, hi: f64, what: &str) -> Option<Value> {
-        match parse_si(text) {
+        match si(text) {
+            Ok(v) if v != 0.0 && !v.is_normal() => {
+                self.fail(
+                    key,
+                    format!(
+                        "{} is too small to compute with (a subnormal number); {what} accepts {} to {}",
+                        quoted(text.trim()),
+                        shown_number(lo),
+                        shown_number(hi)
+                    ),
+                );
+                None
+            }
             Ok(v) if v >= lo && v <= hi => Some(Value::Number(v)),
             Ok(v) => {
                 self.fail(
                     key,
-                    format!("{v} is out of range; {what} accepts {lo} to {hi}"),
+                    format!(
+                        "{} is out of range; {what} accepts {} to {}",
+                        shown_number(v),
+                        shown_number(lo),
+                        shown_number(hi)
+                    ),
                 );
                 None
             }
@@ -242,31 +399,33 @@ impl Reader {
     /// A frequency edge: one value, or `lo,hi` for band-pass.
     fn edge(&mut self, key: Key, text: &str) -> Option<Edge> {
         let parts: Vec<&str> = text.split(',').collect();
-        let read = |t: &str| parse_si(t).ok().filter(|v| *v >= 1e-3 && *v <= 1e9);
+        let read = |t: &str| check_frequency(t, TARGET_HZ, "an edge").ok();
+        let range = range_text(TARGET_HZ);
+        let text = quoted(text);
         match (self.class, parts.as_slice()) {
             (ResponseClass::BandPass, [lo, hi]) => match (read(lo), read(hi)) {
                 (Some(lo), Some(hi)) if lo < hi => Some(Edge::Pair(lo, hi)),
                 _ => {
-                    self.fail(key, format!("'{text}' is not accepted; band-pass needs two edges lo,hi in Hz with lo < hi (1 mHz to 1 GHz)"));
+                    self.fail(key, format!("{text} is not accepted; band-pass needs two edges lo,hi in Hz with lo < hi ({range})"));
                     None
                 }
             },
             (ResponseClass::BandPass, _) => {
                 self.fail(
                     key,
-                    format!("'{text}' is not accepted; band-pass needs two edges lo,hi in Hz"),
+                    format!("{text} is not accepted; band-pass needs two edges lo,hi in Hz"),
                 );
                 None
             }
             (_, [one]) => match read(one) {
                 Some(v) => Some(Edge::Single(v)),
                 None => {
-                    self.fail(key, format!("'{text}' is not accepted; low- and high-pass take one edge in Hz, 1 mHz to 1 GHz"));
+                    self.fail(key, format!("{text} is not accepted; low- and high-pass take one edge in Hz, {range}"));
                     None
                 }
             },
             _ => {
-                self.fail(key, format!("'{text}' is not accepted; low- and high-pass take one edge in Hz (two edges lo,hi are for band-pass)"));
+                self.fail(key, format!("{text} is not accepted; low- and high-pass take one edge in Hz (two edges lo,hi are for band-pass)"));
                 None
             }
         }
@@ -286,29 +445,50 @@ impl Reader {
             let Some((reference, value)) = item.split_once(':') else {
                 self.fail(
                     key,
-                    format!("'{item}' is not accepted; write REF:value, for example R3:4k7"),
+                    format!(
+                        "{} is not accepted; write REF:value, for example R3:4k7",
+                        quoted(item)
+                    ),
                 );
                 continue;
             };
             let reference = reference.trim().to_ascii_uppercase();
             let ref_ok = reference.len() >= 2
+                && reference.len() <= MAX_REFERENCE_CHARS
                 && matches!(reference.as_bytes()[0], b'R' | b'C')
                 && reference[1..].chars().all(|c| c.is_ascii_digit());
             if !ref_ok {
                 self.fail(
                     key,
-                    format!("'{reference}' is not a part reference; use R1, C2 …"),
+                    format!(
+                        "{} is not a part reference; use R1, C2 … (at most {MAX_REFERENCE_CHARS} characters)",
+                        quoted(&reference)
+                    ),
                 );
                 continue;
             }
-            match parse_si(value) {
+            match si(value) {
+                Ok(v) if v != 0.0 && !v.is_normal() => self.fail(
+                    key,
+                    format!(
+                        "{reference}: {} is too small to compute with (a subnormal number); {what} accepts {} to {}",
+                        quoted(value.trim()),
+                        shown_number(lo),
+                        shown_number(hi)
+                    ),
+                ),
                 Ok(v) if v >= lo && v <= hi => {
                     list.retain(|(r, _)| *r != reference);
                     list.push((reference, v));
                 }
                 Ok(v) => self.fail(
                     key,
-                    format!("{reference}: {v} is out of range; {what} accepts {lo} to {hi}"),
+                    format!(
+                        "{reference}: {} is out of range; {what} accepts {} to {}",
+                        shown_number(v),
+                        shown_number(lo),
+                        shown_number(hi)
+                    ),
                 ),
                 Err(e) => self.fail(key, format!("{reference}: {e}")),
             }
@@ -326,7 +506,7 @@ impl Reader {
                 match numbers {
                     Ok(n) if !n.is_empty() && n.len() <= MAX_ORDER => Some(StageOrder::Explicit(n)),
                     _ => {
-                        self.fail(Key::StageOrder, format!("'{text}' is not accepted; use q-up, q-down or a list of stage numbers such as 2,1,3"));
+                        self.fail(Key::StageOrder, format!("{} is not accepted; use q-up, q-down or a list of stage numbers such as 2,1,3", quoted(text)));
                         None
                     }
                 }

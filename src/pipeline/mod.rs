@@ -85,6 +85,7 @@ pub fn build_choices(state: &LinkState) -> BuildChoices {
 pub fn compose(state: &LinkState) -> Result<Design, InputError> {
     let synthesis = design::synthesize(&state.requirement, &state.stage_order)?;
     let board = Board::build(&synthesis.sections, &build_choices(state))?;
+    check_tolerance_parts(&board, &state.tolerance_overrides)?;
     let family_orders = state.requirement.mask.as_ref().map(|mask| {
         let ripple = match state.requirement.family {
             Family::Chebyshev { ripple_db } => Some(ripple_db),
@@ -303,12 +304,13 @@ pub fn ideal_board(board: &Board) -> Board {
 pub const UNWRAP_POINTS_PER_DECADE: f64 = 200.0;
 
 /// Gain, unwrapped phase and group delay of the board (or, with `ideal`, of [`ideal_board`]) at
-/// `n_points` log-spaced frequencies, from the banded solve of the whole board.
+/// `n_points` log-spaced frequencies, from the banded solve of the whole board
+/// ([`BoardSolver::solve_with_slope`]: one factorization per point).
 ///
 /// The phase is unwrapped along an internal grid of [`UNWRAP_POINTS_PER_DECADE`] from the first
-/// frequency, so it does not depend on how many points are asked for. The group delay is
-/// −Δarg H/Δω over a symmetric step of ±10⁻⁴·ω around each point, with the phase difference taken
-/// from the ratio H(ω+δ)/H(ω−δ) so it never wraps.
+/// frequency, so it does not depend on how many points are asked for (where the points are
+/// closer than the grid, no extra solve is made). The group delay is −d(arg H)/dω = −Re(H'/H)
+/// with H' = dH/ds from the same factorization as H.
 ///
 /// # Errors
 /// A message when the board equations are singular (the dense reference analysis names the
@@ -337,11 +339,10 @@ pub fn sweep(
     let mut rows = Vec::with_capacity(freqs.len());
     let mut previous: Option<(f64, Complex64, f64)> = None;
     for f in freqs {
-        let step = 1e-4;
-        let ratio = solver.solve_at(f * (1.0 + step)).map_err(failed)?
-            / solver.solve_at(f * (1.0 - step)).map_err(failed)?;
-        let delay_s = -fmath::carg(ratio) / (TWO_PI * f * 2.0 * step);
-        let h = solver.solve_at(f).map_err(failed)?;
+        // One factorization per point gives H and dH/ds, so the delay −Re(H'/H) needs no
+        // neighbouring solves.
+        let (h, slope) = solver.solve_with_slope(f).map_err(failed)?;
+        let delay_s = -(slope / h).re;
         let phase_rad = match previous {
             Some((f_prev, h_prev, phase_prev)) => {
                 // Walk from the last point on the internal grid, adding each small change.
@@ -378,8 +379,6 @@ pub fn diagnose_singular(board: &Board) -> Option<String> {
         .find_map(|&w| mna::board_response(board, Complex64::new(0.0, w)).err())
         .map(|e| e.message)
 }
-
-const TWO_PI: f64 = 2.0 * std::f64::consts::PI;
 
 /// How the tolerance study reads a run's cutoff for this family: the ripple-band edge for
 /// Chebyshev, −6.02 dB for Linkwitz-Riley, −3.01 dB otherwise.
@@ -454,12 +453,51 @@ pub fn spread(design: &Design) -> Result<Summary, String> {
     Ok(study.finish())
 }
 
-/// The part tolerances the parts list states (`rtol`, `ctol`).
+/// The part tolerances the parts list states: `rtol`, `ctol` and each `tolset` override, the
+/// values the tolerance study draws with ([`study_settings`]).
 pub fn bom_tolerances(design: &Design) -> crate::export::bom::Tolerances {
     crate::export::bom::Tolerances {
         resistor_pct: design.state.rtol_pct,
         capacitor_pct: design.state.ctol_pct,
+        overrides: design.state.tolerance_overrides.clone(),
     }
+}
+
+/// Every `tolset` reference must be a resistor or capacitor of the board, as every `set`
+/// reference must (`Board::apply_overrides`): a tolerance for a part the board does not have is
+/// bad input wherever the design is used, not only when the tolerance study starts.
+///
+/// # Errors
+/// An [`InputError`] on `tolset` naming the reference and the parts the board has.
+fn check_tolerance_parts(board: &Board, overrides: &[(String, f64)]) -> Result<(), InputError> {
+    for (reference, _) in overrides {
+        let part = board
+            .parts()
+            .into_iter()
+            .find(|p| p.reference == *reference);
+        match part.map(|p| p.kind) {
+            Some(crate::netlist::PartKind::Resistor | crate::netlist::PartKind::Capacitor) => {}
+            Some(crate::netlist::PartKind::OpAmp) => {
+                return Err(InputError::new(
+                    "tolset",
+                    format!(
+                        "{reference} is an op amp; tolerances are for resistors and capacitors"
+                    ),
+                ))
+            }
+            None => {
+                return Err(InputError::new(
+                    "tolset",
+                    format!(
+                        "{} is not a part of this board (it has {})",
+                        crate::link::quoted(reference),
+                        board.reference_summary()
+                    ),
+                ))
+            }
+        }
+    }
+    Ok(())
 }
 
 /// The `.ac` sweep written into the SPICE netlist: the plot span at 50 points per decade.

@@ -163,6 +163,21 @@ pub fn design_stage(
                 );
             }
         }
+        // Without an rlevel of the user's, the level is not what failed: the frequency is, so
+        // the message names the key that sets it first and the part ranges as the lever.
+        if auto_level {
+            return InputError::new(
+                "fc",
+                format!(
+                    "stage {stage_no} ({}, f0 = {}) is out of reach of the part ranges: no \
+                     impedance level keeps every part inside 1 Ω–10 MΩ and 1 pF–100 µF; move \
+                     the cutoff (fc, or the limits that set it), or widen the stage with \
+                     rlevel, cratio or rratio",
+                    circuit.describe(),
+                    crate::units::format_si_unit(target.f0_hz(), 4, "Hz"),
+                ),
+            );
+        }
         InputError::new(
             "rlevel",
             format!(
