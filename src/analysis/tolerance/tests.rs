@@ -530,6 +530,10 @@ fn the_replayed_envelope_equals_the_table() {
         let mut replay = study(&case, 1203);
         replay.replay_always(5);
         replay.step(1203);
-        assert_eq!(fingerprint(&table.finish()), fingerprint(&replay.finish()), "{name}");
+        assert_eq!(
+            fingerprint(&table.finish()),
+            fingerprint(&replay.finish()),
+            "{name}"
+        );
     }
 }
