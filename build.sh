@@ -16,6 +16,10 @@
 #   ROLLOFF_WASM_OPT=0   skip wasm-opt (from the npm package `binaryen`; Debian's binaryen 108
 #                        corrupts wasm-bindgen 0.2.130 output, so it is never used)
 #   PORT=8000            port for `serve`
+# Knobs of the long test runs (`test` runs the bounded defaults):
+#   ROLLOFF_FUZZ_LINKS=1000000         links of tests/cli_fuzz.rs's every-command fuzzer (1,200)
+#   ROLLOFF_ENGINE_FUZZ_LINKS=50000    links through the page's evaluate (engine_fuzz, 2,000)
+#   ROLLOFF_MEMORY_RUNS=100000         the largest study of tests/browser/memory.test.js (20,000)
 set -euo pipefail
 cd "$(dirname "$0")"
 

@@ -243,6 +243,8 @@ struct StudyStart {
 pub fn study_start() -> JsValue {
     SHEET.with(|sheet| {
         let mut sheet = sheet.borrow_mut();
+        // The study it replaces goes first, so that two studies' readings never share the heap.
+        sheet.study = None;
         let Some(model) = sheet.model.as_ref() else {
             return failure("no design to study yet");
         };
@@ -348,6 +350,14 @@ pub fn study_finish() -> JsValue {
 #[wasm_bindgen]
 pub fn study_cancel() {
     SHEET.with(|sheet| sheet.borrow_mut().study = None);
+}
+
+/// The size of the page's wasm memory, bytes (`memory.buffer.byteLength`): it grows when the
+/// heap needs more and is never given back, so it is the most the page has held at once. Read
+/// by the memory test (`tests/browser/memory.test.js`).
+#[wasm_bindgen]
+pub fn heap_bytes() -> f64 {
+    (core::arch::wasm32::memory_size::<0>() as f64) * 65536.0
 }
 
 #[derive(Serialize)]

@@ -616,3 +616,157 @@ fn fuzzed_version_2_links_survive_writing_and_reading() {
         "only {n_checked} valid links were generated"
     );
 }
+
+/// How many links [`fuzzed_links_through_every_command_with_a_report`] runs: the environment
+/// variable `ROLLOFF_FUZZ_LINKS` when it holds a whole number, else a count CI can afford.
+///
+/// `ROLLOFF_FUZZ_LINKS=1000000 nice -n 19 cargo test --release --test cli_fuzz every_command
+/// -- --nocapture` is the long run; it prints a progress line every 50,000 links.
+fn fuzz_link_count() -> usize {
+    const CI_LINKS: usize = 1_200;
+    std::env::var("ROLLOFF_FUZZ_LINKS")
+        .ok()
+        .and_then(|v| v.trim().replace('_', "").parse::<usize>().ok())
+        .unwrap_or(CI_LINKS)
+}
+
+/// One slow call: its time, its command line.
+struct SlowCall {
+    seconds: f64,
+    args: Vec<String>,
+}
+
+/// The five slowest calls seen so far, slowest first.
+fn note_slow(slowest: &mut Vec<SlowCall>, seconds: f64, args: &[String]) {
+    const KEEP: usize = 5;
+    if slowest.len() == KEEP && slowest[KEEP - 1].seconds >= seconds {
+        return;
+    }
+    let at = slowest
+        .iter()
+        .position(|s| s.seconds < seconds)
+        .unwrap_or(slowest.len());
+    slowest.insert(
+        at,
+        SlowCall {
+            seconds,
+            args: args.to_vec(),
+        },
+    );
+    slowest.truncate(KEEP);
+}
+
+#[test]
+fn fuzzed_links_through_every_command_with_a_report() {
+    // The hostile generator and the few-key v2 links of the tests above, each link through one
+    // command in turn: design in every format, sweep, spread with few runs and plot of every
+    // kind, all at cheap settings. A panic is counted (with its command line) rather than
+    // stopping the run, so a long run reports every one; the test then fails if any was seen.
+    // Exit rules (the module doc): 0 with output; 2 (bad input) and 1 (any other failure) with
+    // one `rolloff: ` line on stderr besides warnings.
+    let n_links = fuzz_link_count();
+    let mut g = Gen(0x1EE7_2026);
+    let names = rolloff::link::KEYS.to_vec();
+    let mut commands: Vec<Vec<String>> = vec![
+        vec!["design".into()],
+        vec!["design".into(), "--format".into(), "json".into()],
+        vec!["design".into(), "--format".into(), "bom".into()],
+        vec!["design".into(), "--format".into(), "spice".into()],
+        vec!["sweep".into(), "--points".into(), "12".into()],
+        vec!["spread".into(), "--runs".into(), "8".into()],
+    ];
+    for kind in PlotKind::ALL {
+        commands.push(vec!["plot".into(), "--kind".into(), kind.key().into()]);
+    }
+    // Exit counts per command (0, 1, 2, other), panics and broken rules with examples.
+    let mut exits = vec![[0usize; 4]; commands.len()];
+    let mut panics: Vec<Vec<String>> = Vec::new();
+    let mut n_panics = 0usize;
+    let mut broken: Vec<String> = Vec::new();
+    let mut n_broken = 0usize;
+    let mut slowest: Vec<SlowCall> = Vec::new();
+    let started = std::time::Instant::now();
+    // The panic hook would print every caught panic; the report lists them instead.
+    let hook = panic::take_hook();
+    panic::set_hook(Box::new(|_| {}));
+    for i in 0..n_links {
+        let link = if i % 2 == 0 {
+            random_link(&mut g)
+        } else {
+            keyed_link(&mut g, "?v=2", &names)
+        };
+        let c_idx = i % commands.len();
+        let command = &commands[c_idx];
+        let mut args: Vec<String> = vec![command[0].clone(), link];
+        args.extend(command[1..].iter().cloned());
+        let call_started = std::time::Instant::now();
+        let outcome = panic::catch_unwind(|| run(&args));
+        note_slow(&mut slowest, call_started.elapsed().as_secs_f64(), &args);
+        let Ok((code, out, err)) = outcome else {
+            n_panics += 1;
+            if panics.len() < 20 {
+                panics.push(args);
+            }
+            continue;
+        };
+        exits[c_idx][usize::from(code).min(3)] += 1;
+        let lines: Vec<&str> = err.lines().filter(|l| !l.contains("warning:")).collect();
+        let rule_kept = match code {
+            0 => !out.is_empty(),
+            1 | 2 => lines.len() == 1 && lines[0].starts_with("rolloff: ") && lines[0].len() > 12,
+            _ => false,
+        };
+        if !rule_kept {
+            n_broken += 1;
+            if broken.len() < 20 {
+                broken.push(format!("exit {code} for {args:?}: {err:?}"));
+            }
+        }
+        if n_links > 100_000 && (i + 1) % 50_000 == 0 {
+            let elapsed = started.elapsed().as_secs_f64();
+            eprintln!(
+                "fuzz progress: {} links in {elapsed:.0} s ({:.0} links/s), {n_panics} panics",
+                i + 1,
+                (i + 1) as f64 / elapsed
+            );
+        }
+    }
+    panic::set_hook(hook);
+    let elapsed = started.elapsed().as_secs_f64();
+    eprintln!(
+        "fuzz report: {n_links} links in {elapsed:.1} s ({:.0} links/s); panics {n_panics}; \
+         broken exit rules {n_broken}",
+        n_links as f64 / elapsed.max(1e-9)
+    );
+    eprintln!("exit counts (0 / 1 / 2 / other) per command:");
+    for (command, counts) in commands.iter().zip(&exits) {
+        eprintln!(
+            "  {:<28} {:>8} {:>8} {:>8} {:>8}",
+            command.join(" "),
+            counts[0],
+            counts[1],
+            counts[2],
+            counts[3]
+        );
+    }
+    eprintln!("slowest calls:");
+    for call in &slowest {
+        eprintln!("  {:>9.1} ms  {:?}", call.seconds * 1e3, call.args);
+    }
+    for args in &panics {
+        eprintln!("panic: {args:?}");
+    }
+    for line in &broken {
+        eprintln!("broken: {line}");
+    }
+    assert_eq!(n_panics, 0, "panics on {panics:?}");
+    assert_eq!(n_broken, 0, "exit rules broken: {broken:?}");
+    // The generator must reach both the designs and the refusals of every command, or the run
+    // proves little.
+    for (command, counts) in commands.iter().zip(&exits) {
+        assert!(
+            counts[0] > 0 && counts[2] > 0,
+            "{command:?}: exits {counts:?} miss a success or a refusal"
+        );
+    }
+}

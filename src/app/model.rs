@@ -84,6 +84,20 @@ impl PageModel {
             nominal: Some(gain.nominal),
             limits,
         });
+        // Every run's readings (kept in the summary for the command line's callers) are not
+        // shown by the page: dropped, so a finished study holds no memory per run.
+        let mut summary = summary;
+        let mut spreads: Vec<&mut crate::analysis::tolerance::Spread> = Vec::new();
+        spreads.extend(summary.cutoffs.iter_mut().map(|c| &mut c.hz));
+        spreads.push(&mut summary.passband_gain_db);
+        spreads.extend(summary.stopband_attenuation_db.as_mut());
+        for stage in summary.stages.iter_mut() {
+            spreads.push(&mut stage.f0_hz);
+            spreads.extend(stage.q.as_mut());
+        }
+        for spread in spreads {
+            spread.samples = Vec::new();
+        }
         self.study = Some(summary);
     }
 

@@ -210,6 +210,11 @@ impl MonteCarlo {
     pub(super) fn record_batch<V: Lane8>(&mut self, first: usize, last: usize) {
         let n_grid = self.n_grid;
         let live = live_lanes(&self.batch);
+        if self.envelope.replaying {
+            // A replay for the envelope's percentiles: the runs are already recorded.
+            self.feed_replay(first, last, live);
+            return;
+        }
         let grid = &mut self.batch.h2[..n_grid];
         if live.iter().any(|&v| !v) {
             // Lanes without a finished run must not reach the envelope: NaN never wins a
@@ -230,32 +235,10 @@ impl MonteCarlo {
             v.min_keep(V::load(mn)).store(mn);
             v.max_keep(V::load(mx)).store(mx);
         }
-        // The lane group of this batch inside its sample block (blocks start NaN-filled, which
-        // marks a run without readings).
-        let group_run = self.done - first;
-        let block = group_run / SAMPLE_BLOCK;
-        let base = block * SAMPLE_BLOCK * n_grid + group_run % SAMPLE_BLOCK;
-        if self.samples_h2.len() < (block + 1) * SAMPLE_BLOCK * n_grid {
-            self.samples_h2
-                .resize((block + 1) * SAMPLE_BLOCK * n_grid, f32::NAN);
-        }
-        let samples = &mut self.samples_h2[base..];
-        if first == 0 && last == RUN_LANES && live.iter().all(|&v| v) {
-            for (dst, v) in samples.chunks_mut(SAMPLE_BLOCK).zip(grid.iter()) {
-                if let Some(d) = dst.get_mut(..RUN_LANES).and_then(|d| d.try_into().ok()) {
-                    V::load(v).store_f32(d);
-                }
-            }
+        if self.keeps_table() {
+            self.record_table::<V>(first, last, live);
         } else {
-            for (dst, v) in samples.chunks_mut(SAMPLE_BLOCK).zip(grid.iter()) {
-                for l in first..last {
-                    if live[l] {
-                        if let Some(d) = dst.get_mut(l) {
-                            *d = v[l] as f32;
-                        }
-                    }
-                }
-            }
+            self.record_key_range(first, last, live);
         }
         let b = &self.batch;
         for l in first..last {
@@ -282,6 +265,40 @@ impl MonteCarlo {
                 }
             }
             self.done += 1;
+        }
+    }
+
+    /// Stores the |H|² of the lanes `first..last` into the table of every run (a small study).
+    #[inline(always)]
+    fn record_table<V: Lane8>(&mut self, first: usize, last: usize, live: [bool; RUN_LANES]) {
+        let n_grid = self.n_grid;
+        let grid = &self.batch.h2[..n_grid];
+        // The lane group of this batch inside its sample block (blocks start NaN-filled, which
+        // marks a run without readings).
+        let group_run = self.done - first;
+        let block = group_run / SAMPLE_BLOCK;
+        let base = block * SAMPLE_BLOCK * n_grid + group_run % SAMPLE_BLOCK;
+        let table = &mut self.envelope.table;
+        if table.len() < (block + 1) * SAMPLE_BLOCK * n_grid {
+            table.resize((block + 1) * SAMPLE_BLOCK * n_grid, f32::NAN);
+        }
+        let samples = &mut table[base..];
+        if first == 0 && last == RUN_LANES && live.iter().all(|&v| v) {
+            for (dst, v) in samples.chunks_mut(SAMPLE_BLOCK).zip(grid.iter()) {
+                if let Some(d) = dst.get_mut(..RUN_LANES).and_then(|d| d.try_into().ok()) {
+                    V::load(v).store_f32(d);
+                }
+            }
+        } else {
+            for (dst, v) in samples.chunks_mut(SAMPLE_BLOCK).zip(grid.iter()) {
+                for l in first..last {
+                    if live[l] {
+                        if let Some(d) = dst.get_mut(l) {
+                            *d = v[l] as f32;
+                        }
+                    }
+                }
+            }
         }
     }
 }

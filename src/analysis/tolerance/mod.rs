@@ -48,11 +48,15 @@
 //! product is exact (an op amp's output is then an ideal source), no correction is applied and
 //! the study is bit for bit what it was.
 //!
-//! Memory: the envelope's percentiles are exact order statistics of every run's |H|², kept in
-//! single precision: 4 bytes × runs × frequencies (16 MB for 20,000 runs of 200 points), in
-//! blocks of sixteen runs stored frequency-major (a batch writes eight contiguous values per
-//! frequency). The envelope's min and max are kept per lane (2 × 8 × 8 bytes per frequency) and
-//! reduced at the end.
+//! Memory: the envelope's percentiles are exact order statistics of every run's |H|² in single
+//! precision. A study of up to 2^20 values (runs × frequencies, 4 MB) keeps them all, in blocks
+//! of sixteen runs stored frequency-major (a batch writes eight contiguous values per frequency);
+//! a larger one keeps only each frequency's key range and finds the order statistics by replaying
+//! the runs (`envelope.rs`: a bound of 4096 counts per frequency, then at most 2048 values or 256
+//! counts per wanted rank). What grows with the runs is the few readings per run kept for the
+//! distributions: cutoffs, gain, attenuation, and each stage's f0 and Q (8 bytes each). The
+//! envelope's min and max are kept per lane (2 × 8 × 8 bytes per frequency) and reduced at the
+//! end.
 //!
 //! The mask is checked at the frequencies of the grid that lie in the passband or the stopband and
 //! at the band edges themselves: the passband needs `|H|² ≥ G²·10^(−apass/10)`, the stopband
@@ -67,6 +71,7 @@
 //! `finish`). The SIMD lanes are `lanes.rs` beside this module, the root finders `roots.rs`.
 
 mod batch;
+mod envelope;
 mod kernel;
 mod plan;
 mod summary;
@@ -219,10 +224,9 @@ pub struct MonteCarlo {
     /// Smallest and largest |H|² per grid point, per lane (reduced over the lanes at the end).
     env_min: Vec<RunLanes>,
     env_max: Vec<RunLanes>,
-    /// |H|² of every run in single precision, in blocks of [`SAMPLE_BLOCK`] runs stored
-    /// frequency-major inside each block: a batch writes contiguous lanes per frequency, and
-    /// reading one frequency over all runs reads contiguous stretches.
-    samples_h2: Vec<f32>,
+    /// What is kept of every run's |H|² for the envelope's percentiles: the table of a small
+    /// study, the key ranges of a large one ([`envelope`]).
+    envelope: envelope::EnvelopeStore,
     /// Percentile curves of the grid points summarized so far ([`MonteCarlo::summarize`]).
     curves: Vec<PercentileCurve>,
     cut_lo: Vec<f64>,

@@ -382,7 +382,7 @@ impl MonteCarlo {
             n_pass: 0,
             env_min: vec![[f64::INFINITY; RUN_LANES]; n_grid],
             env_max: vec![[0.0; RUN_LANES]; n_grid],
-            samples_h2: Vec::new(),
+            envelope: Default::default(),
             curves: Vec::new(),
             cut_lo: Vec::with_capacity(runs_total),
             cut_hi: Vec::with_capacity(runs_total),

@@ -3,6 +3,7 @@
 //! by selection for the per-run readings), the 40-bin histograms, the yield, and
 //! [`MonteCarlo::summarize`] / [`MonteCarlo::finish`], which work them out from the runs done.
 
+use super::envelope::order_key;
 use super::Tolerances;
 use super::{MonteCarlo, SAMPLE_BLOCK};
 use crate::fmath;
@@ -151,7 +152,14 @@ impl MonteCarlo {
     /// left; summarizing a few points at a time first keeps each piece of work short (the page
     /// stays responsive) and gives the same numbers. A [`MonteCarlo::step`] afterwards makes the
     /// summary start over, since its runs change every curve.
+    ///
+    /// A study too large to keep every run's |H|² replays its runs instead (`envelope.rs`); then
+    /// `max_points` counts pieces of eight replayed runs, and the number
+    /// returned is the pieces left in the current pass (0 when the curves are done).
     pub fn summarize(&mut self, max_points: usize) -> usize {
+        if !self.keeps_table() {
+            return self.summarize_by_replay(max_points);
+        }
         let n = self.done;
         let n_grid = self.n_grid;
         let pct = &self.settings.percentiles;
@@ -180,7 +188,7 @@ impl MonteCarlo {
             for b in 0..n_blocks {
                 let count = SAMPLE_BLOCK.min(n - b * SAMPLE_BLOCK);
                 let row0 = b * SAMPLE_BLOCK * n_grid + f0 * SAMPLE_BLOCK;
-                let rows = &self.samples_h2[row0..row0 + group * SAMPLE_BLOCK];
+                let rows = &self.envelope.table[row0..row0 + group * SAMPLE_BLOCK];
                 for (c, row) in columns.iter_mut().zip(rows.chunks_exact(SAMPLE_BLOCK)) {
                     c.extend_from_slice(&row[..count]);
                 }
@@ -199,9 +207,72 @@ impl MonteCarlo {
         n_grid - end
     }
 
+    /// [`MonteCarlo::summarize`] for a study without the table: the exact order statistics of
+    /// each grid point by replaying the runs, then every curve at once.
+    fn summarize_by_replay(&mut self, max_points: usize) -> usize {
+        let n_grid = self.n_grid;
+        if self.curves.first().is_some_and(|c| c.db.len() == n_grid) {
+            return 0;
+        }
+        let pct = self.settings.percentiles.clone();
+        let ranks = |n: usize| -> Vec<usize> {
+            pct.iter()
+                .flat_map(|&p| {
+                    let (i, j, t) = rank_plan(p, n);
+                    if t > 0.0 {
+                        vec![i, j]
+                    } else {
+                        vec![i]
+                    }
+                })
+                .collect()
+        };
+        let runs = max_points.saturating_mul(REPLAY_RUNS_PER_POINT);
+        let points = match self.select_by_replay(&ranks, runs) {
+            Ok(points) => points,
+            Err(runs_left) => return runs_left.div_ceil(REPLAY_RUNS_PER_POINT).max(1),
+        };
+        let mut curves: Vec<PercentileCurve> = pct
+            .iter()
+            .map(|&p| PercentileCurve {
+                percentile: p,
+                db: Vec::with_capacity(n_grid),
+            })
+            .collect();
+        for (f, found) in points.iter().enumerate() {
+            let n_valid = self.envelope_readings(f);
+            let value_at = |rank: usize| -> f64 {
+                found
+                    .iter()
+                    .find(|&&(r, _)| r == rank)
+                    .map_or(f64::NAN, |&(_, v)| f64::from(v))
+            };
+            for (curve, &p) in curves.iter_mut().zip(&pct) {
+                let v = if n_valid == 0 {
+                    f64::NAN
+                } else {
+                    // As in `percentiles_f32_with`: interpolated between ranks i and j.
+                    let (i, j, t) = rank_plan(p, n_valid);
+                    let lo = value_at(i);
+                    let hi = if t > 0.0 { value_at(j) } else { lo };
+                    lo * (1.0 - t) + hi * t
+                };
+                curve.db.push(power_db(v));
+            }
+        }
+        self.curves = curves;
+        0
+    }
+
     /// The results of the runs done so far.
     pub fn finish(mut self) -> Summary {
-        self.summarize(usize::MAX);
+        // One call does the table's points, or one replayed pass; a pass narrows every rank by
+        // at least eight of its 32 key bits, so a few passes finish (the bound guards a defect).
+        for _ in 0..64 {
+            if self.summarize(usize::MAX) == 0 {
+                break;
+            }
+        }
         let n = self.done;
         let pct = &self.settings.percentiles;
         let curves = std::mem::take(&mut self.curves);
@@ -305,14 +376,15 @@ impl MonteCarlo {
     }
 }
 
-/// A key of an f32 whose unsigned order is the float's total order (negative values have every
-/// bit flipped, the others only the sign bit; written without a branch so the passes over the
-/// samples vectorise).
-#[inline(always)]
-fn order_key(v: f32) -> u32 {
-    let b = v.to_bits();
-    let flip = ((b as i32) >> 31) as u32 | 0x8000_0000;
-    b ^ flip
+/// Replayed runs per unit of [`MonteCarlo::summarize`]'s work for a study without the table.
+const REPLAY_RUNS_PER_POINT: usize = 8;
+
+/// The ranks of percentile `p` of `n > 0` samples: the order statistics `i` and `j = i + 1`
+/// (the last one at the top) and the weight `t` of `j` (linear interpolation).
+fn rank_plan(p: f64, n: usize) -> (usize, usize, f64) {
+    let pos = (p / 100.0).clamp(0.0, 1.0) * (n - 1) as f64;
+    let i = pos.floor() as usize;
+    (i, (i + 1).min(n - 1), pos - i as f64)
 }
 
 /// Buckets of the histogram in [`percentiles_f32_by_histogram`].
@@ -372,14 +444,7 @@ fn percentiles_f32_with(
         counts[bucket(v) * 4] += 1;
     }
     // Ranks wanted: floor(pos) and, when interpolating, the next one.
-    let plan: Vec<(usize, usize, f64)> = percentiles
-        .iter()
-        .map(|&p| {
-            let pos = (p / 100.0).clamp(0.0, 1.0) * (n - 1) as f64;
-            let i = pos.floor() as usize;
-            (i, (i + 1).min(n - 1), pos - i as f64)
-        })
-        .collect();
+    let plan: Vec<(usize, usize, f64)> = percentiles.iter().map(|&p| rank_plan(p, n)).collect();
     // Bucket of each rank, and the rank's place inside its bucket.
     let starts = &mut scratch.starts;
     starts.clear();

@@ -495,3 +495,46 @@ fn multilinear_lanes_equal_the_scalar_evaluation() {
     }
     assert!(n_checked >= 8, "only {n_checked} stages had an expansion");
 }
+
+/// Identity: a study too large for the table of every run's |H|² finds the envelope's
+/// percentiles by replaying its runs (`envelope.rs`); the order statistics, so every number of
+/// the summary, are the table's bit for bit — summarized in uneven pieces, with a bucket limit
+/// that forces several counting passes, and for a study stopped early.
+#[test]
+fn the_replayed_envelope_equals_the_table() {
+    for case in cases() {
+        let name = case.name;
+        for (runs, done, cap) in [(1203, 1203, 2048), (1203, 1203, 3), (900, 517, 40)] {
+            let mut table = study(&case, runs);
+            table.step(done);
+            let mut replay = study(&case, runs);
+            replay.replay_always(cap);
+            replay.step(done);
+            let mut piece = 1;
+            let mut n_pieces = 0;
+            while replay.summarize(piece) > 0 {
+                piece = piece % 7 + 1;
+                n_pieces += 1;
+            }
+            assert!(n_pieces > 10, "{name}: {n_pieces} pieces");
+            let (a, b) = (table.finish(), replay.finish());
+            assert_eq!(
+                fingerprint(&a),
+                fingerprint(&b),
+                "{name}, {runs} runs, cap {cap}"
+            );
+            assert_eq!(a.runs, done, "{name}");
+        }
+        // The command line's way: finish straight after the runs.
+        let mut table = study(&case, 1203);
+        table.step(1203);
+        let mut replay = study(&case, 1203);
+        replay.replay_always(5);
+        replay.step(1203);
+        assert_eq!(
+            fingerprint(&table.finish()),
+            fingerprint(&replay.finish()),
+            "{name}"
+        );
+    }
+}
