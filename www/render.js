@@ -172,7 +172,7 @@
 
     var parts = el('table', 'parts');
     var ph = el('tr');
-    ['part', 'value', 'designed', ''].forEach(function (t) { var th = el('th', null, t); th.scope = 'col'; ph.appendChild(th); });
+    ['part', 'value', 'designed', 'tolerance', ''].forEach(function (t) { var th = el('th', null, t); th.scope = 'col'; ph.appendChild(th); });
     parts.appendChild(ph);
     stage.parts.forEach(function (part) {
       var tr = el('tr');
@@ -191,6 +191,7 @@
       td.appendChild(input);
       tr.appendChild(td);
       tr.appendChild(el('td', 'num ideal'));
+      tr.appendChild(el('td', 'num tol'));
       var reset = el('button', null, 'reset');
       reset.type = 'button';
       reset.setAttribute('aria-label', 'use the designed value for ' + part.reference);
@@ -237,6 +238,7 @@
       var shown = typed ? state.overrides.get(part.reference) : part.value;
       if (document.activeElement !== input && input.value !== shown) input.value = shown;
       setText($('.ideal', tr), part.ideal);
+      setText($('.tol', tr), part.tolerance);
       var button = $('button', tr);
       if (button.disabled !== !typed) button.disabled = !typed;
     });

@@ -71,6 +71,9 @@ pub struct PartRow {
     pub ideal: String,
     /// What the part does.
     pub role: String,
+    /// The part's tolerance as the study uses it (`rtol`/`ctol`, or its `tolset` entry), e.g.
+    /// `±1 %` ([`crate::export::bom::part_tolerance_pct`], the parts list's own figure).
+    pub tolerance: String,
 }
 
 /// Sensitivities of a stage's f0 and Q to one part, formatted.

@@ -228,6 +228,7 @@ pub(super) fn text_view(design: &Design, data: &PlotData) -> View {
                 error: pct(stage.gain_error),
                 large: stage.gain_error.abs() > 0.02,
             });
+            let tolerances = crate::pipeline::bom_tolerances(design);
             let parts: Vec<PartRow> = stage
                 .netlist
                 .parts
@@ -238,6 +239,8 @@ pub(super) fn text_view(design: &Design, data: &PlotData) -> View {
                     value: format_si(p.value, 4),
                     ideal: schematic::value_label(p.kind, p.ideal),
                     role: p.role.clone(),
+                    tolerance: crate::export::bom::part_tolerance_pct(p, &tolerances)
+                        .map_or_else(String::new, |pct| format!("±{pct} %")),
                 })
                 .collect();
             let key = format!(

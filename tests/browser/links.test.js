@@ -93,6 +93,15 @@ test('a tolset link keeps tolset through an edit, and the page\'s yield is `roll
   const y = /yield ([\d.]+) %/.exec(status);
   assert.ok(y, `the page shows a yield: ${status}`);
   assert.equal(Number(y[1]).toFixed(1), (spread.yield * 100).toFixed(1), 'page yield = rolloff spread (one decimal)');
+  // The parts table states each part's own tolerance, as the parts list does.
+  const bom = h.cli(['design', query, '--format', 'bom']).trim().split('\n');
+  const col = bom[0].split(',').indexOf('tolerance_pct');
+  assert.ok(col >= 0, `the parts list has tolerance_pct: ${bom[0]}`);
+  for (const ref of ['C1', 'C2', 'C3', 'R1']) {
+    const row = bom.find((line) => line.startsWith(ref + ','));
+    const shown = await page.textContent(`tr[data-ref="${ref}"] td.tol`);
+    assert.equal(shown, `±${row.split(',')[col]} %`, `${ref}'s tolerance on the page = the parts list`);
+  }
   await close();
 });
 
