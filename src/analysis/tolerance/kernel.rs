@@ -104,25 +104,38 @@ impl MonteCarlo {
         // Grid indices are carried as f64 lanes (exact), −1 for none.
         let mut cut_hi = [f64::NAN; RUN_LANES];
         if want_upper {
-            // Upper edge: the highest grid point still at or above the level, then the next one.
+            // Upper edge: the highest grid point still at or above the level, then the next one,
+            // searched from the passband's last peak on (the last local maximum within 6 dB
+            // of the level; a stopband bump lies far below it). When that peak itself has
+            // dropped below the level (a ripple of an equiripple board lowered by the parts),
+            // the edge is the peak: the reading then moves on with the peak instead of jumping
+            // back to an earlier ripple trough.
+            let peak = self.last_peak::<V>(grid, false);
             let mut last = V::splat(-1.0);
             for (i, v) in grid.iter().enumerate() {
-                last = V::select(V::load(v).ge(level), V::splat(i as f64), last);
+                let at = V::splat(i as f64);
+                let hit = V::and(V::load(v).ge(level), at.ge(peak));
+                last = V::select(hit, at, last);
             }
             let last = index_of::<V>(last);
+            let peak = index_of::<V>(peak);
             let mut a = [1.0; RUN_LANES];
             let mut bx = [1.0; RUN_LANES];
             let mut go = [false; RUN_LANES];
+            let mut at_peak = [None; RUN_LANES];
             for l in 0..RUN_LANES {
-                if let (true, Some(i)) = (live[l], last[l]) {
-                    if i + 1 < n_grid {
+                match (live[l], last[l]) {
+                    (true, Some(i)) if i + 1 < n_grid => {
                         a[l] = self.x_eval[i];
                         bx[l] = self.x_eval[i + 1];
                         go[l] = true;
                     }
+                    (true, None) => at_peak[l] = peak[l],
+                    _ => {}
                 }
             }
             cut_hi = self.refine_crossing_lanes::<V>(a, bx, go);
+            self.edge_at_peak(&mut cut_hi, at_peak);
         }
         let mut cut_lo = [f64::NAN; RUN_LANES];
         if want_lower {
@@ -139,27 +152,36 @@ impl MonteCarlo {
                 }
                 end = bi.add(one);
             }
-            // The first grid point at or above the level below the end.
-            let mut first = V::splat(-1.0);
+            // The first grid point at or above the level below the end, searched up to the
+            // passband's first peak (as for the upper edge, mirrored).
+            let peak = self.last_peak::<V>(grid, true);
+            let none = V::splat(-1.0);
+            let limit = V::select(peak.lt(V::splat(0.0)), V::splat(n_grid as f64), peak);
+            let mut first = none;
             for (i, v) in grid.iter().enumerate().rev() {
                 let at = V::splat(i as f64);
-                let hit = V::and(V::load(v).ge(level), at.lt(end));
+                let hit = V::and(V::and(V::load(v).ge(level), at.lt(end)), at.le(limit));
                 first = V::select(hit, at, first);
             }
             let first = index_of::<V>(first);
+            let peak = index_of::<V>(peak);
             let mut a = [1.0; RUN_LANES];
             let mut bx = [1.0; RUN_LANES];
             let mut go = [false; RUN_LANES];
+            let mut at_peak = [None; RUN_LANES];
             for l in 0..RUN_LANES {
-                if let (true, Some(i)) = (live[l], first[l]) {
-                    if i > 0 {
+                match (live[l], first[l]) {
+                    (true, Some(i)) if i > 0 => {
                         a[l] = self.x_eval[i - 1];
                         bx[l] = self.x_eval[i];
                         go[l] = true;
                     }
+                    (true, None) => at_peak[l] = peak[l],
+                    _ => {}
                 }
             }
             cut_lo = self.refine_crossing_lanes::<V>(a, bx, go);
+            self.edge_at_peak(&mut cut_lo, at_peak);
         }
         let g2 = self.settings.reference_gain * self.settings.reference_gain;
         let gain =
@@ -183,6 +205,62 @@ impl MonteCarlo {
                     f64::NAN
                 };
             }
+        }
+    }
+
+    /// Each lane's grid index of the passband's outermost peak: the last (or, with `first`,
+    /// the first) interior local maximum of |H|² that lies within 6 dB of the cutoff level;
+    /// without one, the grid's end on that side (a monotone response has no ripple to follow).
+    #[inline(always)]
+    fn last_peak<V: Lane8>(&self, grid: &[RunLanes], first: bool) -> V {
+        let n = grid.len();
+        let floor = V::splat(0.25 * self.cutoff_level);
+        let mut peak = V::splat(-1.0);
+        let visit = |i: usize, peak: &mut V| {
+            let v = V::load(&grid[i]);
+            let is_max = V::and(
+                V::and(v.ge(V::load(&grid[i - 1])), v.ge(V::load(&grid[i + 1]))),
+                v.ge(floor),
+            );
+            *peak = V::select(is_max, V::splat(i as f64), *peak);
+        };
+        if n >= 3 {
+            if first {
+                for i in (1..n - 1).rev() {
+                    visit(i, &mut peak);
+                }
+            } else {
+                for i in 1..n - 1 {
+                    visit(i, &mut peak);
+                }
+            }
+        }
+        peak
+    }
+
+    /// Where a lane found no crossing after (or before) its outermost peak because the peak
+    /// itself is below the level, its edge is the peak: the vertex of the parabola through the
+    /// peak's grid point and its two neighbours (ln |H|² over ln x), so the reading is not held
+    /// to grid points.
+    fn edge_at_peak(&self, cut: &mut RunLanes, at_peak: [Option<usize>; RUN_LANES]) {
+        let fg = self.w_g / (2.0 * PI);
+        let h2 = &self.batch.h2;
+        for (l, (c, p)) in cut.iter_mut().zip(at_peak).enumerate() {
+            let Some(i) = p else { continue };
+            let u = |k: usize| fmath::ln(self.x_eval[k]);
+            let y = |k: usize| fmath::ln(h2[k][l]);
+            let (u0, u1, u2) = (u(i - 1), u(i), u(i + 1));
+            let (y0, y1, y2) = (y(i - 1), y(i), y(i + 1));
+            // Vertex of the parabola through three points (Lagrange form, unequal spacing).
+            let num = (u1 - u0) * (u1 - u0) * (y1 - y2) - (u1 - u2) * (u1 - u2) * (y1 - y0);
+            let den = (u1 - u0) * (y1 - y2) - (u1 - u2) * (y1 - y0);
+            let vertex = u1 - 0.5 * num / den;
+            let x = if vertex.is_finite() && vertex > u0 && vertex < u2 {
+                fmath::exp(vertex)
+            } else {
+                self.x_eval[i]
+            };
+            *c = fg * x.sqrt();
         }
     }
 
