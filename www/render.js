@@ -160,7 +160,7 @@
 
     var table = el('table', 'targets');
     var head = el('tr');
-    ['', 'target', 'on the board', 'error'].forEach(function (t) { var th = el('th', null, t); th.scope = 'col'; head.appendChild(th); });
+    ['', 'target', 'parts, ideal op amp', 'error'].forEach(function (t) { var th = el('th', null, t); th.scope = 'col'; head.appendChild(th); });
     table.appendChild(head);
     stage.rows.forEach(function () {
       var tr = el('tr');

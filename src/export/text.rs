@@ -95,11 +95,11 @@ pub fn design_text(design: &Design) -> String {
             let _ = writeln!(out, "  {:<24} {text}", family_name(row.family));
         }
     }
-    let _ = writeln!(out, "\nStages (signal order):");
+    let _ = writeln!(out, "\nStages (signal order; f0 and Q parts: the rounded parts on an ideal op amp, the board as built below):");
     let _ = writeln!(
         out,
         "  {:<3} {:<7} {:>11} {:>11} {:>8} {:>8} {:>9}  parts",
-        "#", "circuit", "f0 target", "f0 built", "Q target", "Q built", "gain V/V"
+        "#", "circuit", "f0 target", "f0 parts", "Q target", "Q parts", "gain V/V"
     );
     // Each part with its own tolerance, as the parts list and the tolerance study have it.
     let tolerances = crate::pipeline::bom_tolerances(design);
