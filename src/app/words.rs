@@ -57,7 +57,7 @@ impl PageWords {
             .opamp_needs
             .iter()
             .flat_map(|report| report.stages.iter())
-            .map(|need| words::needs_sentence(need, state.signal.drift_pct))
+            .map(|need| words::needs_sentence(need, state.signal.drift_pct, &design.board.op_amp))
             .collect();
         let sensitivities = analyses
             .sensitivities

@@ -316,7 +316,7 @@ fn analysis_text(out: &mut String, design: &Design) {
                 out,
                 "  stage {} op amp: {}",
                 n.stage,
-                super::words::needs_sentence(n, needs.drift_limit_pct)
+                super::words::needs_sentence(n, needs.drift_limit_pct, &design.board.op_amp)
             );
         }
     }

@@ -128,7 +128,11 @@ fn percent(fraction: f64) -> String {
 /// What a stage asks of its op amp: its slew need, and the GBW at which the stage alone keeps its
 /// f0 and Q within the drift allowance (its share of the board's need); and whether the chosen op
 /// amp gives the board's GBW need and this slew.
-pub fn needs_sentence(need: &crate::analysis::opamp_need::StageNeed, drift_pct: f64) -> String {
+pub fn needs_sentence(
+    need: &crate::analysis::opamp_need::StageNeed,
+    drift_pct: f64,
+    op: &crate::opamp::OpAmp,
+) -> String {
     let share = match need.min_gbw_hz {
         Some(g) => format!(
             "alone it keeps f0 and Q within {drift_pct} % from GBW ≥ {}",
@@ -136,10 +140,15 @@ pub fn needs_sentence(need: &crate::analysis::opamp_need::StageNeed, drift_pct: 
         ),
         None => format!("alone no GBW up to 1 THz keeps its f0 and Q within {drift_pct} %"),
     };
-    let verdict = if need.board_opamp_ok {
-        "the chosen op amp does"
-    } else {
-        "the chosen op amp falls short"
+    // The stage's own two figures against the chosen op amp; the board's GBW need has its own
+    // sentence (`board_gbw_sentence`).
+    let slew_ok = op.slew_v_per_s >= need.slew_v_per_s;
+    let gbw_ok = need.min_gbw_hz.is_some_and(|g| op.gbw_hz >= g);
+    let verdict = match (slew_ok, gbw_ok) {
+        (true, true) => "the chosen op amp has both",
+        (true, false) => "the chosen op amp has the slew rate but not this GBW",
+        (false, true) => "the chosen op amp has this GBW but not the slew rate",
+        (false, false) => "the chosen op amp has neither",
     };
     format!(
         "Needs slew ≥ {} ({} peak at {}); {share}; {verdict}.",

@@ -133,7 +133,15 @@ for (const link of LINKS) {
       const s = /slew ≥ (\S+ ?\S*V\/s)/.exec(text);
       assert.ok(s, `${what}: no slew in “${text}”`);
       sameAtThreeDigits(s[1], need.slew_v_per_s, `${what} slew need`);
-      const verdict = need.board_opamp_ok ? 'the chosen op amp does' : 'the chosen op amp falls short';
+      // The stage's own two figures against the chosen op amp (the JSON's op_amp).
+      // (null in the JSON is an ideal, unbounded figure.)
+      const figure = (v) => (v === null ? Infinity : v);
+      const slewOk = figure(json.op_amp.slew_v_per_s) >= need.slew_v_per_s;
+      const gbwOk = need.min_gbw_hz !== null && figure(json.op_amp.gbw_hz) >= need.min_gbw_hz;
+      const verdict = slewOk && gbwOk ? 'the chosen op amp has both'
+        : slewOk ? 'the chosen op amp has the slew rate but not this GBW'
+          : gbwOk ? 'the chosen op amp has this GBW but not the slew rate'
+            : 'the chosen op amp has neither';
       assert.ok(text.includes(verdict), `${what}: “${text}” should say ${verdict}`);
       const room = /\((\S+) dB headroom\)/.exec(text);
       assert.ok(room, `${what}: no headroom in “${text}”`);
