@@ -108,9 +108,13 @@ test('typing a new cutoff redraws every canvas and changes the link in the addre
   const sameGain = gainOf(linkBefore) === gainOf(linkAfter);
   const gainCanvas = names.filter((name) => name.startsWith('hist-gain#'));
   assert.equal(gainCanvas.length, 1, 'one gain histogram');
+  // A gain histogram the same to the JSON's nine digits may still move by a pixel's
+  // antialiasing (the runs' gains differ in their last bits), so it is only required to change
+  // when the command line's histograms differ.
   const changed = names.filter((name) => before[name] !== after[name]);
   const expected = sameGain ? names.filter((name) => !gainCanvas.includes(name)) : names;
-  assert.deepEqual(changed, expected, 'every canvas whose figure changed shows new pixels');
+  assert.deepEqual(changed.filter((name) => expected.includes(name)), expected,
+    'every canvas whose figure changed shows new pixels');
   await close();
 });
 
