@@ -333,9 +333,25 @@ impl Reader {
                 Some(Value::Parts(self.part_list(key, &text, lo, hi, what)))
             }
             Parse::StageOrder => self.stage_order(&text).map(Value::StageOrder),
-            Parse::Title => Some(Value::Text(
-                text.chars().filter(|c| !c.is_control()).take(120).collect(),
-            )),
+            Parse::Title => {
+                // A title is only ever shown as text: control characters (which could retitle
+                // or clear a terminal) are dropped and the length is held to 120 characters,
+                // and the reader says so rather than changing the title silently.
+                let kept: String = text.chars().filter(|c| !c.is_control()).take(120).collect();
+                let controls = text.chars().filter(|c| c.is_control()).count();
+                let long = text.chars().filter(|c| !c.is_control()).count() > 120;
+                if controls > 0 || long {
+                    let mut what = Vec::new();
+                    if controls > 0 {
+                        what.push(format!("{controls} control character(s) removed"));
+                    }
+                    if long {
+                        what.push("cut to 120 characters".to_string());
+                    }
+                    self.notes.push(format!("title: {}", what.join(", ")));
+                }
+                Some(Value::Text(kept))
+            }
         }
     }
 
