@@ -401,6 +401,7 @@ impl MonteCarlo {
             settings,
             loading_h2: None,
             loading_residual_db: None,
+            loaded_runs: None,
         };
         // The nominal board: the same path, in lane 0, with every part at its nominal value.
         mc.batch.active[0] = true;
@@ -429,7 +430,17 @@ impl MonteCarlo {
             if mc.batch.failed[0] {
                 return Err(AnalysisError::Singular("a stage of a tolerance run".into()));
             }
-            mc.loading_residual_db = Some(loading_residual_db(&mc, &mut loaded, &eval_f)?);
+            let residual = loading_residual_db(&mc, &mut loaded, &eval_f)?;
+            mc.loading_residual_db = Some(residual);
+            if residual > super::LOADING_RESIDUAL_WARN_DB {
+                // The correction does not follow the runs: every run (the nominal board again
+                // first, so that its cutoff is the loaded board's too) is solved loaded.
+                mc.loaded_runs = Some(LoadedRuns::new(loaded, eval_f.clone()));
+                mc.run_batch(None);
+                if mc.batch.failed[0] {
+                    return Err(AnalysisError::Singular("the loaded nominal board".into()));
+                }
+            }
         }
         let b = &mc.batch;
         mc.nominal = RunResult {
@@ -445,6 +456,7 @@ impl MonteCarlo {
 }
 
 /// The whole board merged and loaded, for solves with a run's part values.
+#[derive(Debug, Clone)]
 struct LoadedBoard {
     compiled: Compiled,
     assembled: Assembled,
@@ -495,6 +507,72 @@ impl LoadedBoard {
                     .map(|h| h.norm_sqr())
             })
             .collect()
+    }
+}
+
+/// The loaded board of a study whose runs are each solved loaded (the loading residual above
+/// [`super::LOADING_RESIDUAL_WARN_DB`]): the merged board and one assembled matrix set per lane,
+/// restamped with each batch's drawn values, so that the cutoff search can solve any lane at any
+/// frequency. Its size is fixed by the board (eight matrix sets), not by the runs.
+#[derive(Debug, Clone)]
+pub(super) struct LoadedRuns {
+    board: LoadedBoard,
+    lanes: Vec<Assembled>,
+    /// The evaluation frequencies, Hz (the points of `x_eval`, kept in Hz so that the solves are
+    /// at exactly the frequencies the nominal correction was taken at).
+    eval_f: Vec<f64>,
+}
+
+impl LoadedRuns {
+    fn new(board: LoadedBoard, eval_f: Vec<f64>) -> LoadedRuns {
+        LoadedRuns {
+            lanes: vec![board.assembled.clone(); RUN_LANES],
+            board,
+            eval_f,
+        }
+    }
+
+    /// Restamps the matrices of every lane in `live` with that lane's values and overwrites its
+    /// |H|² at every evaluation point by the loaded solve; a lane whose matrices are singular is
+    /// marked failed.
+    pub(super) fn solve_batch(&mut self, batch: &mut Batch, live: [bool; RUN_LANES]) {
+        let LoadedRuns {
+            board,
+            lanes,
+            eval_f,
+        } = self;
+        for (l, assembled) in lanes.iter_mut().enumerate() {
+            if !live[l] {
+                continue;
+            }
+            for (v, &i) in board.values.iter_mut().zip(&board.value_idx) {
+                *v = batch.values.get(i).map_or(f64::NAN, |lane| lane[l]);
+            }
+            board.compiled.assemble_into(&board.values, assembled);
+            for (h, &f) in batch.h2.iter_mut().zip(eval_f.iter()) {
+                let s = Complex64::new(0.0, 2.0 * PI * f);
+                match transfer_at(&board.compiled, assembled, &mut board.solver, s) {
+                    Ok(t) => h[l] = t.norm_sqr(),
+                    Err(_) => {
+                        batch.failed[l] = true;
+                        break;
+                    }
+                }
+            }
+        }
+    }
+
+    /// |H|² of lane `l`'s loaded board (as last restamped by [`LoadedRuns::solve_batch`]) at
+    /// `f_hz`; NaN when singular there.
+    pub(super) fn h2_at(&mut self, l: usize, f_hz: f64) -> f64 {
+        let s = Complex64::new(0.0, 2.0 * PI * f_hz);
+        match self.lanes.get(l) {
+            Some(assembled) => {
+                transfer_at(&self.board.compiled, assembled, &mut self.board.solver, s)
+                    .map_or(f64::NAN, |t| t.norm_sqr())
+            }
+            None => f64::NAN,
+        }
     }
 }
 
