@@ -214,7 +214,7 @@ pub fn spread_text(design: &Design, summary: &Summary) -> String {
         let _ = writeln!(
             out,
             "Loading: each run solved on the loaded board (the nominal board's loading correction \
-             would have missed up to {r:.2e} dB on {} runs)",
+             would have missed up to {r:.3} dB on {} runs)",
             crate::analysis::tolerance::LOADING_PROBE_RUNS
         );
     } else if let Some(r) = summary.loading_residual_db {

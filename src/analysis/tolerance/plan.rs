@@ -615,6 +615,7 @@ fn loading_residual_db(
 mod loading_tests {
     use crate::analysis::built::BoardSolver;
     use crate::analysis::tolerance::{Summary, LOADING_RESIDUAL_WARN_DB};
+    use crate::fmath;
 
     fn study(link: &str) -> (crate::pipeline::Design, Summary) {
         let report = crate::link::parse(link);
@@ -629,7 +630,8 @@ mod loading_tests {
     /// tests/as_built.rs). The study's nominal curve and nominal passband gain equal it to 1e-6 dB
     /// on the 8th-order Chebyshev 0.5 dB at 100 kHz on a 1 MHz op amp (Rout 50 Ω), a board the
     /// loading moves by decibels. That board's parts move its loading as well: the residual of
-    /// the sampled runs is recorded and, being above the threshold, warned about.
+    /// the sampled runs is recorded and, being above the threshold, makes the study solve every
+    /// run on the loaded board.
     #[test]
     fn nominal_study_equals_the_loaded_board() {
         let (design, summary) =
@@ -652,8 +654,10 @@ mod loading_tests {
             residual > LOADING_RESIDUAL_WARN_DB,
             "residual {residual} dB"
         );
+        // Above the threshold the study solves every run loaded instead of warning.
+        assert!(summary.loaded_runs, "residual {residual} dB: loaded path");
         assert!(
-            summary.warnings.iter().any(|w| w.contains("loading")),
+            !summary.warnings.iter().any(|w| w.contains("loading")),
             "{:?}",
             summary.warnings
         );
@@ -680,6 +684,7 @@ mod loading_tests {
                 !summary.warnings.iter().any(|w| w.contains("loading")),
                 "{link}"
             );
+            assert!(!summary.loaded_runs, "{link}: the product path");
         }
         let (_, summary) = study("?v=2&order=6&fc=1k&runs=50&rout=0");
         assert_eq!(summary.loading_residual_db, None);
