@@ -210,7 +210,14 @@ pub fn spread_text(design: &Design, summary: &Summary) -> String {
         "Passband gain: nominal {:.3} dB, mean {:.3} dB, σ {:.3} dB, range {:.3} … {:.3} dB",
         g.nominal, g.mean, g.std_dev, g.min, g.max
     );
-    if let Some(r) = summary.loading_residual_db {
+    if let (true, Some(r)) = (summary.loaded_runs, summary.loading_residual_db) {
+        let _ = writeln!(
+            out,
+            "Loading: each run solved on the loaded board (the nominal board's loading correction \
+             would have missed up to {r:.3} dB on {} runs)",
+            crate::analysis::tolerance::LOADING_PROBE_RUNS
+        );
+    } else if let Some(r) = summary.loading_residual_db {
         let _ = writeln!(
             out,
             "Loading: every run carries the nominal board's loading correction; {} runs solved as \

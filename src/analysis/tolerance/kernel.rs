@@ -4,6 +4,7 @@
 //! refined by regula falsi, the passband gain and the stopband attenuation.
 
 use super::batch::live_lanes;
+use super::plan::LoadedRuns;
 use super::MonteCarlo;
 use crate::analysis::lanes::{self, Isa, Lane8, RunLanes, RUN_LANES};
 use crate::fmath;
@@ -63,15 +64,24 @@ impl MonteCarlo {
                 }
             }
         }
-        self.evaluate_batch::<V>();
+        // The loaded path: the study's loaded board is taken out for the batch so that the
+        // cutoff search can solve on it while reading the study.
+        let mut loaded = self.loaded_runs.take();
+        if let Some(lr) = loaded.as_mut() {
+            let live = live_lanes(&self.batch);
+            lr.solve_batch(&mut self.batch, live);
+        }
+        self.evaluate_batch::<V>(loaded.as_mut());
+        self.loaded_runs = loaded;
         if let Some((first, last)) = lanes {
             self.record_batch::<V>(first, last);
         }
     }
 
-    /// Yield, cutoffs, passband gain and stopband attenuation of the batch's runs from their |H|².
+    /// Yield, cutoffs, passband gain and stopband attenuation of the batch's runs from their |H|²
+    /// (with `loaded`, the cutoff search solves each lane's loaded board).
     #[inline(always)]
-    fn evaluate_batch<V: Lane8>(&mut self) {
+    fn evaluate_batch<V: Lane8>(&mut self, mut loaded: Option<&mut LoadedRuns>) {
         let level = V::splat(self.cutoff_level);
         let n_grid = self.n_grid;
         let b = &self.batch;
@@ -134,7 +144,7 @@ impl MonteCarlo {
                     _ => {}
                 }
             }
-            cut_hi = self.refine_crossing_lanes::<V>(a, bx, go);
+            cut_hi = self.refine_crossing_lanes::<V>(a, bx, go, loaded.as_deref_mut());
             self.edge_at_peak(&mut cut_hi, at_peak);
         }
         let mut cut_lo = [f64::NAN; RUN_LANES];
@@ -180,7 +190,7 @@ impl MonteCarlo {
                     _ => {}
                 }
             }
-            cut_lo = self.refine_crossing_lanes::<V>(a, bx, go);
+            cut_lo = self.refine_crossing_lanes::<V>(a, bx, go, loaded.as_deref_mut());
             self.edge_at_peak(&mut cut_lo, at_peak);
         }
         let g2 = self.settings.reference_gain * self.settings.reference_gain;
@@ -276,6 +286,7 @@ impl MonteCarlo {
         mut a: RunLanes,
         mut b: RunLanes,
         go: [bool; RUN_LANES],
+        mut loaded: Option<&mut LoadedRuns>,
     ) -> RunLanes {
         let inv = V::splat(1.0 / self.cutoff_level);
         let fg = self.w_g / (2.0 * PI);
@@ -283,8 +294,8 @@ impl MonteCarlo {
         if !go.iter().any(|&v| v) {
             return out;
         }
-        let mut ga = self.level_gap::<V>(&a, inv);
-        let mut gb = self.level_gap::<V>(&b, inv);
+        let mut ga = self.level_gap::<V>(&a, inv, &go, loaded.as_deref_mut());
+        let mut gb = self.level_gap::<V>(&b, inv, &go, loaded.as_deref_mut());
         let mut live = go;
         for l in 0..RUN_LANES {
             if !live[l] {
@@ -309,7 +320,7 @@ impl MonteCarlo {
                 converged[l] = (c_new - c[l]).abs() <= 2e-11 * c_new.abs();
                 c[l] = if live[l] { c_new } else { c[l] };
             }
-            let gc = self.level_gap::<V>(&c, inv);
+            let gc = self.level_gap::<V>(&c, inv, &live, loaded.as_deref_mut());
             for l in 0..RUN_LANES {
                 if !live[l] {
                     continue;
@@ -345,9 +356,29 @@ impl MonteCarlo {
     }
 
     /// `|H|²·inv − 1` of the batch's cascades, each lane at its own `x[l]` (the function whose
-    /// zero the cutoff search finds, with `inv` the inverse of the cutoff level).
+    /// zero the cutoff search finds, with `inv` the inverse of the cutoff level). With `loaded`
+    /// the lanes in `want` are solved on their loaded boards (the others are NaN: the search
+    /// does not read them), without it every lane comes from the corrected product.
     #[inline(always)]
-    fn level_gap<V: Lane8>(&self, x: &RunLanes, inv: V) -> RunLanes {
+    fn level_gap<V: Lane8>(
+        &self,
+        x: &RunLanes,
+        inv: V,
+        want: &[bool; RUN_LANES],
+        loaded: Option<&mut LoadedRuns>,
+    ) -> RunLanes {
+        if let Some(lr) = loaded {
+            let fg = self.w_g / (2.0 * PI);
+            let mut hv = [f64::NAN; RUN_LANES];
+            for l in 0..RUN_LANES {
+                if want[l] {
+                    hv[l] = lr.h2_at(l, fg * x[l].sqrt());
+                }
+            }
+            let mut out = [0.0; RUN_LANES];
+            V::load(&hv).mul(inv).sub(V::splat(1.0)).store(&mut out);
+            return out;
+        }
         let b = &self.batch;
         let h = h2_lanes::<V>(&b.coef_n, &b.coef_d, &b.deg_n, &b.deg_d, self.width, x);
         let mut out = [0.0; RUN_LANES];

@@ -48,6 +48,16 @@
 //! product is exact (an op amp's output is then an ideal source), no correction is applied and
 //! the study is bit for bit what it was.
 //!
+//! When the residual is above the threshold, the product path would report a board that is not
+//! the one built, so the study takes the loaded path instead: every run (and the nominal board)
+//! is solved on the merged, loaded board with its own drawn values, the matrices restamped once
+//! per run and solved at every evaluation point and at every step of the cutoff search. The
+//! draws, the run order and everything read from |H|² (yield, cutoffs, gain, attenuation,
+//! envelope) are as on the product path; each stage's f0 and Q stay those of the stage's own
+//! transfer function (a property of the stage, not of the board). The summary then says
+//! `loaded_runs`, and `loading_residual_db` keeps its meaning: what the product path would have
+//! missed. The loaded path costs a banded solve per run and point, so it is taken only when needed.
+//!
 //! Memory: the envelope's percentiles are exact order statistics of every run's |H|² in single
 //! precision. A study of up to 2^20 values (runs × frequencies, 4 MB) keeps them all, in blocks
 //! of sixteen runs stored frequency-major (a batch writes eight contiguous values per frequency);
@@ -246,6 +256,10 @@ pub struct MonteCarlo {
     loading_h2: Option<Vec<f64>>,
     /// The largest difference of the probe runs from their loaded solves, dB (see the module docs).
     loading_residual_db: Option<f64>,
+    /// Set when the residual is above [`LOADING_RESIDUAL_WARN_DB`]: every run is then solved on
+    /// the loaded board with its drawn values instead of the corrected product (see the module
+    /// docs).
+    loaded_runs: Option<plan::LoadedRuns>,
 }
 
 /// The readings of one run (the nominal board's are kept for the summary).

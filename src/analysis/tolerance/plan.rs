@@ -401,6 +401,7 @@ impl MonteCarlo {
             settings,
             loading_h2: None,
             loading_residual_db: None,
+            loaded_runs: None,
         };
         // The nominal board: the same path, in lane 0, with every part at its nominal value.
         mc.batch.active[0] = true;
@@ -429,7 +430,17 @@ impl MonteCarlo {
             if mc.batch.failed[0] {
                 return Err(AnalysisError::Singular("a stage of a tolerance run".into()));
             }
-            mc.loading_residual_db = Some(loading_residual_db(&mc, &mut loaded, &eval_f)?);
+            let residual = loading_residual_db(&mc, &mut loaded, &eval_f)?;
+            mc.loading_residual_db = Some(residual);
+            if residual > super::LOADING_RESIDUAL_WARN_DB {
+                // The correction does not follow the runs: every run (the nominal board again
+                // first, so that its cutoff is the loaded board's too) is solved loaded.
+                mc.loaded_runs = Some(LoadedRuns::new(loaded, eval_f.clone()));
+                mc.run_batch(None);
+                if mc.batch.failed[0] {
+                    return Err(AnalysisError::Singular("the loaded nominal board".into()));
+                }
+            }
         }
         let b = &mc.batch;
         mc.nominal = RunResult {
@@ -445,6 +456,7 @@ impl MonteCarlo {
 }
 
 /// The whole board merged and loaded, for solves with a run's part values.
+#[derive(Debug, Clone)]
 struct LoadedBoard {
     compiled: Compiled,
     assembled: Assembled,
@@ -498,6 +510,72 @@ impl LoadedBoard {
     }
 }
 
+/// The loaded board of a study whose runs are each solved loaded (the loading residual above
+/// [`super::LOADING_RESIDUAL_WARN_DB`]): the merged board and one assembled matrix set per lane,
+/// restamped with each batch's drawn values, so that the cutoff search can solve any lane at any
+/// frequency. Its size is fixed by the board (eight matrix sets), not by the runs.
+#[derive(Debug, Clone)]
+pub(super) struct LoadedRuns {
+    board: LoadedBoard,
+    lanes: Vec<Assembled>,
+    /// The evaluation frequencies, Hz (the points of `x_eval`, kept in Hz so that the solves are
+    /// at exactly the frequencies the nominal correction was taken at).
+    eval_f: Vec<f64>,
+}
+
+impl LoadedRuns {
+    fn new(board: LoadedBoard, eval_f: Vec<f64>) -> LoadedRuns {
+        LoadedRuns {
+            lanes: vec![board.assembled.clone(); RUN_LANES],
+            board,
+            eval_f,
+        }
+    }
+
+    /// Restamps the matrices of every lane in `live` with that lane's values and overwrites its
+    /// |H|² at every evaluation point by the loaded solve; a lane whose matrices are singular is
+    /// marked failed.
+    pub(super) fn solve_batch(&mut self, batch: &mut Batch, live: [bool; RUN_LANES]) {
+        let LoadedRuns {
+            board,
+            lanes,
+            eval_f,
+        } = self;
+        for (l, assembled) in lanes.iter_mut().enumerate() {
+            if !live[l] {
+                continue;
+            }
+            for (v, &i) in board.values.iter_mut().zip(&board.value_idx) {
+                *v = batch.values.get(i).map_or(f64::NAN, |lane| lane[l]);
+            }
+            board.compiled.assemble_into(&board.values, assembled);
+            for (h, &f) in batch.h2.iter_mut().zip(eval_f.iter()) {
+                let s = Complex64::new(0.0, 2.0 * PI * f);
+                match transfer_at(&board.compiled, assembled, &mut board.solver, s) {
+                    Ok(t) => h[l] = t.norm_sqr(),
+                    Err(_) => {
+                        batch.failed[l] = true;
+                        break;
+                    }
+                }
+            }
+        }
+    }
+
+    /// |H|² of lane `l`'s loaded board (as last restamped by [`LoadedRuns::solve_batch`]) at
+    /// `f_hz`; NaN when singular there.
+    pub(super) fn h2_at(&mut self, l: usize, f_hz: f64) -> f64 {
+        let s = Complex64::new(0.0, 2.0 * PI * f_hz);
+        match self.lanes.get(l) {
+            Some(assembled) => {
+                transfer_at(&self.board.compiled, assembled, &mut self.board.solver, s)
+                    .map_or(f64::NAN, |t| t.norm_sqr())
+            }
+            None => f64::NAN,
+        }
+    }
+}
+
 /// The largest |dB| difference, over the evaluation points within 120 dB of the reference gain,
 /// between the kernel's corrected |H| and the loaded solve of the first
 /// [`super::LOADING_PROBE_RUNS`] runs of the stream, worked on a copy of the study so that the
@@ -537,6 +615,7 @@ fn loading_residual_db(
 mod loading_tests {
     use crate::analysis::built::BoardSolver;
     use crate::analysis::tolerance::{Summary, LOADING_RESIDUAL_WARN_DB};
+    use crate::fmath;
 
     fn study(link: &str) -> (crate::pipeline::Design, Summary) {
         let report = crate::link::parse(link);
@@ -551,7 +630,8 @@ mod loading_tests {
     /// tests/as_built.rs). The study's nominal curve and nominal passband gain equal it to 1e-6 dB
     /// on the 8th-order Chebyshev 0.5 dB at 100 kHz on a 1 MHz op amp (Rout 50 Ω), a board the
     /// loading moves by decibels. That board's parts move its loading as well: the residual of
-    /// the sampled runs is recorded and, being above the threshold, warned about.
+    /// the sampled runs is recorded and, being above the threshold, makes the study solve every
+    /// run on the loaded board.
     #[test]
     fn nominal_study_equals_the_loaded_board() {
         let (design, summary) =
@@ -574,8 +654,10 @@ mod loading_tests {
             residual > LOADING_RESIDUAL_WARN_DB,
             "residual {residual} dB"
         );
+        // Above the threshold the study solves every run loaded instead of warning.
+        assert!(summary.loaded_runs, "residual {residual} dB: loaded path");
         assert!(
-            summary.warnings.iter().any(|w| w.contains("loading")),
+            !summary.warnings.iter().any(|w| w.contains("loading")),
             "{:?}",
             summary.warnings
         );
@@ -602,6 +684,7 @@ mod loading_tests {
                 !summary.warnings.iter().any(|w| w.contains("loading")),
                 "{link}"
             );
+            assert!(!summary.loaded_runs, "{link}: the product path");
         }
         let (_, summary) = study("?v=2&order=6&fc=1k&runs=50&rout=0");
         assert_eq!(summary.loading_residual_db, None);

@@ -144,6 +144,11 @@ pub struct Summary {
     /// op amp has no output resistance and the cascade product is exact); see the module docs.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub loading_residual_db: Option<f64>,
+    /// True when the residual was above the threshold and every run was therefore solved on the
+    /// loaded board with its drawn values (the figures are the loaded board's); written only
+    /// when true, so the studies that do not need it read as before.
+    #[serde(skip_serializing_if = "std::ops::Not::not")]
+    pub loaded_runs: bool,
 }
 
 impl MonteCarlo {
@@ -340,9 +345,10 @@ impl MonteCarlo {
                 q: (st.order == 2).then(|| spread_of(qn, q, pct)),
             })
             .collect();
+        let loaded_runs = self.loaded_runs.is_some();
         if let Some(r) = self
             .loading_residual_db
-            .filter(|&r| r > super::LOADING_RESIDUAL_WARN_DB)
+            .filter(|&r| r > super::LOADING_RESIDUAL_WARN_DB && !loaded_runs)
         {
             warnings.push(format!(
                 "the runs' loading by the op amps' output resistance is followed to {r:.4} dB \
@@ -352,6 +358,7 @@ impl MonteCarlo {
         }
         Summary {
             loading_residual_db: self.loading_residual_db,
+            loaded_runs,
             runs: n,
             runs_requested: self.settings.runs,
             seed: self.settings.seed,
