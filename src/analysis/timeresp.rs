@@ -109,7 +109,7 @@ const GAMMA: f64 = 2.0 - std::f64::consts::SQRT_2;
 /// The matrix coefficient of both TR-BDF2 stages, `γ/2 = (1 − γ)/(2 − γ) = 1 − 1/√2`.
 const STAGE_COEF: f64 = 1.0 - std::f64::consts::FRAC_1_SQRT_2;
 /// Internal step times the fastest filter pole, rad.
-const STEP_PER_POLE: f64 = 0.01;
+const STEP_PER_POLE: f64 = 0.025;
 /// Steps at each level of the graded start.
 const STEPS_PER_LEVEL: usize = 32;
 /// Fewest levels of the graded start (the first step is `h/2^10` or smaller).
@@ -121,6 +121,14 @@ const MIN_STEPS: f64 = 2000.0;
 const MAX_STEPS: f64 = 400_000.0;
 /// How much finer the step is when the largest excursion is integrated again.
 const PEAK_REFINE: usize = 16;
+/// The band of the early stop, fraction of the step height: the 0.1 % settling band.
+const SETTLE_STOP_BAND: f64 = 1e-3;
+/// Time constants of the slowest pole the response must stay in the band before the run stops.
+const SETTLE_HOLD_TAUS: f64 = 2.0;
+/// Periods of the lowest pole it must stay there, at least.
+const SETTLE_HOLD_PERIODS: f64 = 2.0;
+/// Fewest periods of the lowest pole in an automatic span.
+const SPAN_MIN_PERIODS: f64 = 8.0;
 
 /// A sparse real matrix, row-major lists of `(column, value)`.
 #[derive(Debug, Clone)]
@@ -151,18 +159,23 @@ impl Sparse {
 }
 
 /// A real LU factorization with partial pivoting that keeps each row's span of columns (a board's
-/// matrix is banded), for many solves with one matrix.
+/// matrix is banded), for many solves with one matrix. The factors are packed once into flat
+/// arrays so that a solve is a pass over contiguous memory with no allocation.
 #[derive(Debug, Clone)]
 struct BandedLu {
     n: usize,
-    /// The factored matrix, row-major: U on and above the diagonal.
-    m: Vec<f64>,
     /// Row swapped with row k at elimination step k.
     pivots: Vec<usize>,
-    /// The multipliers of elimination step k: `(row, factor)`.
-    elim: Vec<Vec<(usize, f64)>>,
-    /// One past the last column of U's row k that may be non-zero.
-    row_end: Vec<usize>,
+    /// Elimination step k's multipliers are `elim_rows/elim_vals[elim_start[k]..elim_start[k + 1]]`.
+    elim_start: Vec<usize>,
+    elim_rows: Vec<usize>,
+    elim_vals: Vec<f64>,
+    /// U's row k right of the diagonal, columns `k + 1 ..`, is
+    /// `upper[upper_start[k]..upper_start[k + 1]]`.
+    upper_start: Vec<usize>,
+    upper: Vec<f64>,
+    /// 1 / U's diagonal.
+    inv_diag: Vec<f64>,
 }
 
 impl BandedLu {
@@ -225,12 +238,32 @@ impl BandedLu {
                 elim[k].push((r, factor));
             }
         }
+        let mut elim_start = Vec::with_capacity(n + 1);
+        let (mut elim_rows, mut elim_vals) = (Vec::new(), Vec::new());
+        let mut upper_start = Vec::with_capacity(n + 1);
+        let mut upper = Vec::new();
+        let mut inv_diag = Vec::with_capacity(n);
+        for k in 0..n {
+            elim_start.push(elim_rows.len());
+            for &(r, f) in &elim[k] {
+                elim_rows.push(r);
+                elim_vals.push(f);
+            }
+            upper_start.push(upper.len());
+            upper.extend_from_slice(&m[k * n + k + 1..k * n + row_end[k].max(k + 1)]);
+            inv_diag.push(1.0 / m[k * n + k]);
+        }
+        elim_start.push(elim_rows.len());
+        upper_start.push(upper.len());
         Some(BandedLu {
             n,
-            m,
             pivots,
-            elim,
-            row_end,
+            elim_start,
+            elim_rows,
+            elim_vals,
+            upper_start,
+            upper,
+            inv_diag,
         })
     }
 
@@ -241,17 +274,19 @@ impl BandedLu {
             x.swap(k, self.pivots[k]);
             let v = x[k];
             if v != 0.0 {
-                for &(r, f) in &self.elim[k] {
+                let span = self.elim_start[k]..self.elim_start[k + 1];
+                for (&r, &f) in self.elim_rows[span.clone()].iter().zip(&self.elim_vals[span]) {
                     x[r] -= f * v;
                 }
             }
         }
         for k in (0..n).rev() {
-            let mut acc = x[k];
-            for c in (k + 1)..self.row_end[k].max(k + 1) {
-                acc -= self.m[k * n + c] * x[c];
-            }
-            x[k] = acc / self.m[k * n + k];
+            let row = &self.upper[self.upper_start[k]..self.upper_start[k + 1]];
+            let acc = row
+                .iter()
+                .zip(&x[k + 1..k + 1 + row.len()])
+                .fold(x[k], |acc, (u, xc)| acc - u * xc);
+            x[k] = acc * self.inv_diag[k];
         }
     }
 }
@@ -363,9 +398,19 @@ impl<'a> Integrator<'a> {
             let q_g = self.tmp[k] + self.a.c_in[k];
             out.x[k] = w1 * q_g - w0 * s.q[k] - coef * self.a.g_in[k] - self.a.c_in[k];
         }
+        // Keep the right-hand side: the BDF2 equation gives `G·x` without a product with G.
+        out.f.copy_from_slice(&out.x);
         self.lus[i].1.solve(&mut out.x);
         out.t = s.t + h;
-        self.complete(out);
+        // q = C·x + c_in; from (C + coef·G)·x = r: G·x = (r − C·x)/coef, so
+        // f = −G·x − g_in = (q − c_in − r)/coef − g_in.
+        self.c.mul(&out.x, &mut out.q);
+        let inv = 1.0 / coef;
+        for k in 0..self.n {
+            let cx = out.q[k];
+            out.q[k] = cx + self.a.c_in[k];
+            out.f[k] = (cx - out.f[k]) * inv - self.a.g_in[k];
+        }
         Ok(())
     }
 }
@@ -434,6 +479,7 @@ fn integrate(
     h: f64,
     t_end: f64,
     final_value: f64,
+    settle_stop: bool,
 ) -> Result<Fine, AnalysisError> {
     let n = compiled.n;
     let out_col = compiled.output_col;
@@ -465,6 +511,14 @@ fn integrate(
         best_norm.0 = cur.x[out_col] * sign;
     }
     let mut steps = 1usize;
+    // The early stop: the last instant outside the 0.1 % band, and how long the response must then
+    // stay inside it (two time constants of the slowest pole, at least two periods of the
+    // lowest pole) before the run ends.
+    let hold = (SETTLE_HOLD_TAUS / scales.slowest_decay)
+        .max(SETTLE_HOLD_PERIODS * std::f64::consts::TAU / scales.lowest);
+    let t_min = SPAN_MIN_PERIODS * std::f64::consts::TAU / scales.lowest;
+    let mut last_out = 0.0f64;
+    let mut running_abs = best_abs.0;
     // The graded start: STEPS_PER_LEVEL steps at each of h/2^L … h/2, then a whole number of
     // steps of one size (about h) to t_end, so that the whole run uses L + 1 factorizations.
     let mut schedule: Vec<(f64, usize)> = (0..levels)
@@ -497,6 +551,19 @@ fn integrate(
             }
             if v.abs() > best_abs.0 {
                 best_abs = (v.abs(), Some((prev.clone(), h_now)));
+            }
+            if settle_stop {
+                running_abs = running_abs.max(v.abs());
+                let out_of_band = if sign != 0.0 {
+                    (v * sign - 1.0).abs() > SETTLE_STOP_BAND
+                } else {
+                    v.abs() > SETTLE_STOP_BAND * running_abs
+                };
+                if out_of_band {
+                    last_out = cur.t;
+                } else if cur.t >= t_min && cur.t - last_out >= hold {
+                    break 'run;
+                }
             }
         }
     }
@@ -580,7 +647,18 @@ pub fn stages_response(
         .min(dt_out)
         .min(t_end / MIN_STEPS)
         .max(t_end / MAX_STEPS);
-    let fine = integrate(&compiled, &assembled, &sc, h, t_end, final_value)?;
+    let fine = integrate(
+        &compiled,
+        &assembled,
+        &sc,
+        h,
+        t_end,
+        final_value,
+        settings.t_end_s.is_none(),
+    )?;
+    // With the early stop the span ends where the run did.
+    let t_end = fine.t.last().copied().unwrap_or(t_end).min(t_end);
+    let dt_out = t_end / (n_points - 1) as f64;
     let figures = figures_of(&fine, final_value);
     // Output samples: linear interpolation of the internal response; the impulse response is the
     // central difference of the internal step response.
