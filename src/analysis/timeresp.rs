@@ -130,30 +130,43 @@ const SETTLE_HOLD_PERIODS: f64 = 2.0;
 /// Fewest periods of the lowest pole in an automatic span.
 const SPAN_MIN_PERIODS: f64 = 8.0;
 
-/// A sparse real matrix, row-major lists of `(column, value)`.
+/// A sparse real matrix in compressed rows: row r's entries are
+/// `cols/vals[row_start[r]..row_start[r + 1]]`.
 #[derive(Debug, Clone)]
 struct Sparse {
-    rows: Vec<Vec<(usize, f64)>>,
+    row_start: Vec<usize>,
+    cols: Vec<usize>,
+    vals: Vec<f64>,
 }
 
 impl Sparse {
     fn of_dense(m: &[f64], n: usize) -> Sparse {
-        Sparse {
-            rows: (0..n)
-                .map(|r| {
-                    (0..n)
-                        .filter(|&c| m[r * n + c] != 0.0)
-                        .map(|c| (c, m[r * n + c]))
-                        .collect()
-                })
-                .collect(),
+        let mut out = Sparse {
+            row_start: Vec::with_capacity(n + 1),
+            cols: Vec::new(),
+            vals: Vec::new(),
+        };
+        for r in 0..n {
+            out.row_start.push(out.cols.len());
+            for c in 0..n {
+                if m[r * n + c] != 0.0 {
+                    out.cols.push(c);
+                    out.vals.push(m[r * n + c]);
+                }
+            }
         }
+        out.row_start.push(out.cols.len());
+        out
     }
 
     /// `out = self·x`.
     fn mul(&self, x: &[f64], out: &mut [f64]) {
-        for (o, row) in out.iter_mut().zip(&self.rows) {
-            *o = row.iter().map(|&(c, v)| v * x[c]).sum();
+        for (o, w) in out.iter_mut().zip(self.row_start.windows(2)) {
+            *o = self.cols[w[0]..w[1]]
+                .iter()
+                .zip(&self.vals[w[0]..w[1]])
+                .map(|(&c, &v)| v * x[c])
+                .sum();
         }
     }
 }
