@@ -18,25 +18,31 @@
 //! resistive nodes) are satisfied exactly at every step. The first step is a backward-Euler step,
 //! which makes the algebraic part of the state consistent after the input's jump.
 //!
-//! Grids: the internal step is `h = 0.01/ω_max`, with `ω_max` the fastest filter pole (the stage
+//! Grids: the internal step is `h = 0.02/ω_max`, with `ω_max` the fastest filter pole (the stage
 //! poles with an ideal op amp), but at most the output spacing and at most 1/2000 of the span
-//! (and at least 1/400,000 of it). The run starts with steps of `h/2^L` (down to a hundredth of
-//! the time constant of the fastest pole with the real op amp, at least `L = 10` levels), 32 steps
-//! at each level before the step doubles, so a high-pass's initial spike is resolved. The span
-//! ends after 14 time constants of the slowest pole (its share then is below 1e-6), at least 8
-//! periods of the lowest pole pair. The figures are taken on the internal grid; the largest
+//! (and at least 1/400,000 of it). TR-BDF2's phase error on a mode `ω` is about `0.03·(ωh)²` of
+//! its phase, so `ωh = 0.02` keeps the times within about 1e-5 (relative) and the overshoot within
+//! about 1e-3 pp, below the digits the report shows. The run starts with steps of `h/2^L` (down
+//! to a hundredth of the time constant of the fastest pole with the real op amp, at least `L = 10`
+//! levels), 32 steps at each level before the step doubles, so a high-pass's initial spike is
+//! resolved. The automatic span is at most 14 time constants of the slowest pole (its share then
+//! is below 1e-6), at least 8 periods of the lowest pole; the run ends earlier, once the output
+//! has stayed inside the 0.1 % band for two time constants of the slowest pole (at least two
+//! periods of the lowest pole), and the plotted span is where it ended. The figures are taken on
+//! the internal grid (level crossings on the parabola through three samples); the largest
 //! excursion is then integrated again from the step before it with a step 16 times smaller.
 //! The curves the page plots are the internal response interpolated linearly onto the
 //! `n_points` output instants; the impulse response is the central difference of the step.
 //!
-//! Accuracy: TR-BDF2 is second order; with `h·ω_max = 0.01` its error is about 1e-5 of the step
-//! height. Self-convergence (`tests/ngspice_step.rs`, every internal step halved): the overshoot
-//! moved by at most 1.7e-4 percentage point and the rise and settling times by at most 5e-6
-//! (relative), far below the digits the report shows (0.01 pp, four significant digits). Against
-//! ngspice `.tran` of our own export (16 boards, loaded, with the op amp's GBW, A0 and Rout) the
-//! overshoot agreed to 2.1e-4 pp and the times to 2.9e-5; against `scipy.signal.step` of scipy's
-//! own prototypes (ideal op amp, exact parts, 11 cases up to the 14th-order Chebyshev) to 2e-4 pp
-//! and 1e-5.
+//! Cost: each step is two banded forward/back substitutions with factors made once per step size
+//! (packed flat, no allocation per step) and two products with the sparse `C`; `G·x` comes from the
+//! stage equation itself.
+//!
+//! Accuracy (`tests/ngspice_step.rs`): against ngspice `.tran` of our own export (16 boards,
+//! loaded, with the op amp's GBW, A0 and Rout) the overshoot agreed to 7e-4 pp and the times to
+//! 6.4e-5 (the band-pass's 1 % settling); against `scipy.signal.step` of scipy's own prototypes
+//! (ideal op amp, exact parts, up to the 14th-order Chebyshev) to 9e-4 pp and 2.8e-5; halving
+//! every internal step moves the figures by less than the digits shown.
 
 use super::circuit::{merge_stages, AnalysisError, Assembled, Compiled};
 use super::poly::stage_transfer;
@@ -53,8 +59,9 @@ pub struct TimeSettings {
     /// Number of output samples, 100–200,000 (spaced `t_end / (n_points − 1)`); the figures come
     /// from the finer internal grid whatever this is.
     pub n_points: usize,
-    /// End time, s; `None` = 14 time constants of the slowest pole, at least 8 periods of the
-    /// lowest-frequency pole pair.
+    /// End time, s; `None` = automatic: where the output has stayed inside the 0.1 % band for two
+    /// time constants of the slowest pole, at most 14 of them, at least 8 periods of the lowest
+    /// pole.
     pub t_end_s: Option<f64>,
 }
 
@@ -108,8 +115,8 @@ pub struct TimeResponse {
 const GAMMA: f64 = 2.0 - std::f64::consts::SQRT_2;
 /// The matrix coefficient of both TR-BDF2 stages, `γ/2 = (1 − γ)/(2 − γ) = 1 − 1/√2`.
 const STAGE_COEF: f64 = 1.0 - std::f64::consts::FRAC_1_SQRT_2;
-/// Internal step times the fastest filter pole, rad.
-const STEP_PER_POLE: f64 = 0.01;
+/// Internal step times the fastest filter pole, rad (see the module docs for the error bound).
+const STEP_PER_POLE: f64 = 0.02;
 /// Steps at each level of the graded start.
 const STEPS_PER_LEVEL: usize = 32;
 /// Fewest levels of the graded start (the first step is `h/2^10` or smaller).
@@ -121,48 +128,74 @@ const MIN_STEPS: f64 = 2000.0;
 const MAX_STEPS: f64 = 400_000.0;
 /// How much finer the step is when the largest excursion is integrated again.
 const PEAK_REFINE: usize = 16;
+/// The band of the early stop, fraction of the step height: the 0.1 % settling band.
+const SETTLE_STOP_BAND: f64 = 1e-3;
+/// Time constants of the slowest pole the response must stay in the band before the run stops.
+const SETTLE_HOLD_TAUS: f64 = 2.0;
+/// Periods of the lowest pole it must stay there, at least.
+const SETTLE_HOLD_PERIODS: f64 = 2.0;
+/// Fewest periods of the lowest pole in an automatic span.
+const SPAN_MIN_PERIODS: f64 = 8.0;
 
-/// A sparse real matrix, row-major lists of `(column, value)`.
+/// A sparse real matrix in compressed rows: row r's entries are
+/// `cols/vals[row_start[r]..row_start[r + 1]]`.
 #[derive(Debug, Clone)]
 struct Sparse {
-    rows: Vec<Vec<(usize, f64)>>,
+    row_start: Vec<usize>,
+    cols: Vec<usize>,
+    vals: Vec<f64>,
 }
 
 impl Sparse {
     fn of_dense(m: &[f64], n: usize) -> Sparse {
-        Sparse {
-            rows: (0..n)
-                .map(|r| {
-                    (0..n)
-                        .filter(|&c| m[r * n + c] != 0.0)
-                        .map(|c| (c, m[r * n + c]))
-                        .collect()
-                })
-                .collect(),
+        let mut out = Sparse {
+            row_start: Vec::with_capacity(n + 1),
+            cols: Vec::new(),
+            vals: Vec::new(),
+        };
+        for r in 0..n {
+            out.row_start.push(out.cols.len());
+            for c in 0..n {
+                if m[r * n + c] != 0.0 {
+                    out.cols.push(c);
+                    out.vals.push(m[r * n + c]);
+                }
+            }
         }
+        out.row_start.push(out.cols.len());
+        out
     }
 
     /// `out = self·x`.
     fn mul(&self, x: &[f64], out: &mut [f64]) {
-        for (o, row) in out.iter_mut().zip(&self.rows) {
-            *o = row.iter().map(|&(c, v)| v * x[c]).sum();
+        for (o, w) in out.iter_mut().zip(self.row_start.windows(2)) {
+            *o = self.cols[w[0]..w[1]]
+                .iter()
+                .zip(&self.vals[w[0]..w[1]])
+                .map(|(&c, &v)| v * x[c])
+                .sum();
         }
     }
 }
 
 /// A real LU factorization with partial pivoting that keeps each row's span of columns (a board's
-/// matrix is banded), for many solves with one matrix.
+/// matrix is banded), for many solves with one matrix. The factors are packed once into flat
+/// arrays so that a solve is a pass over contiguous memory with no allocation.
 #[derive(Debug, Clone)]
 struct BandedLu {
     n: usize,
-    /// The factored matrix, row-major: U on and above the diagonal.
-    m: Vec<f64>,
     /// Row swapped with row k at elimination step k.
     pivots: Vec<usize>,
-    /// The multipliers of elimination step k: `(row, factor)`.
-    elim: Vec<Vec<(usize, f64)>>,
-    /// One past the last column of U's row k that may be non-zero.
-    row_end: Vec<usize>,
+    /// Elimination step k's multipliers are `elim_rows/elim_vals[elim_start[k]..elim_start[k + 1]]`.
+    elim_start: Vec<usize>,
+    elim_rows: Vec<usize>,
+    elim_vals: Vec<f64>,
+    /// U's row k right of the diagonal, columns `k + 1 ..`, is
+    /// `upper[upper_start[k]..upper_start[k + 1]]`.
+    upper_start: Vec<usize>,
+    upper: Vec<f64>,
+    /// 1 / U's diagonal.
+    inv_diag: Vec<f64>,
 }
 
 impl BandedLu {
@@ -225,12 +258,32 @@ impl BandedLu {
                 elim[k].push((r, factor));
             }
         }
+        let mut elim_start = Vec::with_capacity(n + 1);
+        let (mut elim_rows, mut elim_vals) = (Vec::new(), Vec::new());
+        let mut upper_start = Vec::with_capacity(n + 1);
+        let mut upper = Vec::new();
+        let mut inv_diag = Vec::with_capacity(n);
+        for k in 0..n {
+            elim_start.push(elim_rows.len());
+            for &(r, f) in &elim[k] {
+                elim_rows.push(r);
+                elim_vals.push(f);
+            }
+            upper_start.push(upper.len());
+            upper.extend_from_slice(&m[k * n + k + 1..k * n + row_end[k].max(k + 1)]);
+            inv_diag.push(1.0 / m[k * n + k]);
+        }
+        elim_start.push(elim_rows.len());
+        upper_start.push(upper.len());
         Some(BandedLu {
             n,
-            m,
             pivots,
-            elim,
-            row_end,
+            elim_start,
+            elim_rows,
+            elim_vals,
+            upper_start,
+            upper,
+            inv_diag,
         })
     }
 
@@ -241,17 +294,22 @@ impl BandedLu {
             x.swap(k, self.pivots[k]);
             let v = x[k];
             if v != 0.0 {
-                for &(r, f) in &self.elim[k] {
+                let span = self.elim_start[k]..self.elim_start[k + 1];
+                for (&r, &f) in self.elim_rows[span.clone()]
+                    .iter()
+                    .zip(&self.elim_vals[span])
+                {
                     x[r] -= f * v;
                 }
             }
         }
         for k in (0..n).rev() {
-            let mut acc = x[k];
-            for c in (k + 1)..self.row_end[k].max(k + 1) {
-                acc -= self.m[k * n + c] * x[c];
-            }
-            x[k] = acc / self.m[k * n + k];
+            let row = &self.upper[self.upper_start[k]..self.upper_start[k + 1]];
+            let acc = row
+                .iter()
+                .zip(&x[k + 1..k + 1 + row.len()])
+                .fold(x[k], |acc, (u, xc)| acc - u * xc);
+            x[k] = acc * self.inv_diag[k];
         }
     }
 }
@@ -363,9 +421,19 @@ impl<'a> Integrator<'a> {
             let q_g = self.tmp[k] + self.a.c_in[k];
             out.x[k] = w1 * q_g - w0 * s.q[k] - coef * self.a.g_in[k] - self.a.c_in[k];
         }
+        // Keep the right-hand side: the BDF2 equation gives `G·x` without a product with G.
+        out.f.copy_from_slice(&out.x);
         self.lus[i].1.solve(&mut out.x);
         out.t = s.t + h;
-        self.complete(out);
+        // q = C·x + c_in; from (C + coef·G)·x = r: G·x = (r − C·x)/coef, so
+        // f = −G·x − g_in = (q − c_in − r)/coef − g_in.
+        self.c.mul(&out.x, &mut out.q);
+        let inv = 1.0 / coef;
+        for k in 0..self.n {
+            let cx = out.q[k];
+            out.q[k] = cx + self.a.c_in[k];
+            out.f[k] = (cx - out.f[k]) * inv - self.a.g_in[k];
+        }
         Ok(())
     }
 }
@@ -434,6 +502,7 @@ fn integrate(
     h: f64,
     t_end: f64,
     final_value: f64,
+    settle_stop: bool,
 ) -> Result<Fine, AnalysisError> {
     let n = compiled.n;
     let out_col = compiled.output_col;
@@ -465,6 +534,14 @@ fn integrate(
         best_norm.0 = cur.x[out_col] * sign;
     }
     let mut steps = 1usize;
+    // The early stop: the last instant outside the 0.1 % band, and how long the response must then
+    // stay inside it (two time constants of the slowest pole, at least two periods of the
+    // lowest pole) before the run ends.
+    let hold = (SETTLE_HOLD_TAUS / scales.slowest_decay)
+        .max(SETTLE_HOLD_PERIODS * std::f64::consts::TAU / scales.lowest);
+    let t_min = SPAN_MIN_PERIODS * std::f64::consts::TAU / scales.lowest;
+    let mut last_out = 0.0f64;
+    let mut running_abs = best_abs.0;
     // The graded start: STEPS_PER_LEVEL steps at each of h/2^L … h/2, then a whole number of
     // steps of one size (about h) to t_end, so that the whole run uses L + 1 factorizations.
     let mut schedule: Vec<(f64, usize)> = (0..levels)
@@ -497,6 +574,19 @@ fn integrate(
             }
             if v.abs() > best_abs.0 {
                 best_abs = (v.abs(), Some((prev.clone(), h_now)));
+            }
+            if settle_stop {
+                running_abs = running_abs.max(v.abs());
+                let out_of_band = if sign != 0.0 {
+                    (v * sign - 1.0).abs() > SETTLE_STOP_BAND
+                } else {
+                    v.abs() > SETTLE_STOP_BAND * running_abs
+                };
+                if out_of_band {
+                    last_out = cur.t;
+                } else if cur.t >= t_min && cur.t - last_out >= hold {
+                    break 'run;
+                }
             }
         }
     }
@@ -580,7 +670,18 @@ pub fn stages_response(
         .min(dt_out)
         .min(t_end / MIN_STEPS)
         .max(t_end / MAX_STEPS);
-    let fine = integrate(&compiled, &assembled, &sc, h, t_end, final_value)?;
+    let fine = integrate(
+        &compiled,
+        &assembled,
+        &sc,
+        h,
+        t_end,
+        final_value,
+        settings.t_end_s.is_none(),
+    )?;
+    // With the early stop the span ends where the run did.
+    let t_end = fine.t.last().copied().unwrap_or(t_end).min(t_end);
+    let dt_out = t_end / (n_points - 1) as f64;
     let figures = figures_of(&fine, final_value);
     // Output samples: linear interpolation of the internal response; the impulse response is the
     // central difference of the internal step response.
@@ -645,7 +746,11 @@ fn figures_of(fine: &Fine, fv: f64) -> StepFigures {
     )
 }
 
-/// Linear interpolation of the instant where `y` crosses `level` between samples i−1 and i.
+/// The instant where `y` crosses `level` between samples i−1 and i: the root of the parabola
+/// through those two samples and the next one (the one before at the end), from the linear
+/// interpolation by Newton's method. The parabola's error falls with the cube of the spacing
+/// instead of the square, which matters where the crossing is near an extremum (a settling
+/// band's last exit); the linear value is kept when the parabola has no root in the interval.
 fn cross_time(t: &[f64], y: &[f64], i: usize, level: f64) -> f64 {
     if i == 0 {
         return t[0];
@@ -656,7 +761,36 @@ fn cross_time(t: &[f64], y: &[f64], i: usize, level: f64) -> f64 {
     } else {
         0.0
     };
-    t[i - 1] + frac.clamp(0.0, 1.0) * (t[i] - t[i - 1])
+    let (ta, tb) = (t[i - 1], t[i]);
+    let linear = ta + frac.clamp(0.0, 1.0) * (tb - ta);
+    let k = if i + 1 < t.len() {
+        i + 1
+    } else if i >= 2 {
+        i - 2
+    } else {
+        return linear;
+    };
+    let (tc, yc) = (t[k], y[k]);
+    if !(tb > ta) || tc == ta || tc == tb {
+        return linear;
+    }
+    // Newton form: p(s) = y0 + d1·(s − ta) + d2·(s − ta)·(s − tb).
+    let d1 = (y1 - y0) / (tb - ta);
+    let d2 = ((yc - y0) / (tc - ta) - d1) / (tc - tb);
+    let mut s = linear;
+    for _ in 0..4 {
+        let value = y0 + d1 * (s - ta) + d2 * (s - ta) * (s - tb) - level;
+        let slope = d1 + d2 * (2.0 * s - ta - tb);
+        if slope == 0.0 || !slope.is_finite() {
+            return linear;
+        }
+        s -= value / slope;
+    }
+    if s.is_finite() && s >= ta && s <= tb {
+        s
+    } else {
+        linear
+    }
 }
 
 /// Overshoot, rise and settling figures of a sampled step response with final value `fv` (the
