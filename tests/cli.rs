@@ -2,19 +2,8 @@
 //! (JSON fields, sweep CSV header, spread JSON), and the sweep checked against the independent
 //! section-cascade response.
 
-use std::process::Command;
-
-fn rolloff(args: &[&str]) -> (i32, String, String) {
-    let output = Command::new(env!("CARGO_BIN_EXE_rolloff"))
-        .args(args)
-        .output()
-        .expect("the rolloff binary runs");
-    (
-        output.status.code().unwrap_or(-1),
-        String::from_utf8_lossy(&output.stdout).into_owned(),
-        String::from_utf8_lossy(&output.stderr).into_owned(),
-    )
-}
+mod cli_run;
+use cli_run::rolloff;
 
 fn json(args: &[&str]) -> serde_json::Value {
     let (code, out, err) = rolloff(args);

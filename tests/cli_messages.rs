@@ -8,19 +8,8 @@
 //! ECMA-48 (ESC, BEL and the other C0/C1 codes are control functions a terminal acts on), and
 //! physics (a follower of open-loop gain A has closed-loop gain A/(1+A)).
 
-use std::process::Command;
-
-fn rolloff(args: &[&str]) -> (i32, String, String) {
-    let output = Command::new(env!("CARGO_BIN_EXE_rolloff"))
-        .args(args)
-        .output()
-        .expect("the rolloff binary runs");
-    (
-        output.status.code().unwrap_or(-1),
-        String::from_utf8_lossy(&output.stdout).into_owned(),
-        String::from_utf8_lossy(&output.stderr).into_owned(),
-    )
-}
+mod cli_run;
+use cli_run::rolloff;
 
 /// Runs `args`, expects exit 2 with one line on stderr that contains every one of `words`.
 fn refused(args: &[&str], words: &[&str]) {

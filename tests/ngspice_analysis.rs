@@ -21,7 +21,8 @@ use rolloff::opamp::OpAmp;
 use rolloff::sections::StageOrder;
 use rolloff::spec::{Family, MarginPlacement, OrderChoice, Requirement, ResponseClass};
 use rolloff::topology::Topology;
-use std::path::PathBuf;
+
+mod ngspice_deck;
 use std::process::Command;
 
 fn require_ngspice() {
@@ -78,42 +79,11 @@ fn board(class: ResponseClass, family: Family, order: usize, topo: Topology, op:
 /// the `wrdata` file as numbers.
 fn run(board: &Board, name: &str, source: Option<&str>, control: &str) -> Vec<Vec<f64>> {
     let netlist = spice::netlist(board, &AcSweep::default()).expect("exports");
-    let dir: PathBuf = std::env::temp_dir().join(format!(
-        "rolloff-ngspice-analysis-{}-{name}",
-        std::process::id()
-    ));
-    std::fs::create_dir_all(&dir).expect("temp dir");
+    let dir = ngspice_deck::scratch("ngspice-analysis", name);
     let data = dir.join("out.txt");
-    let mut body = String::new();
-    for line in netlist.lines() {
-        let lower = line.to_ascii_lowercase();
-        if lower.starts_with(".ac")
-            || lower.starts_with(".print")
-            || lower.starts_with(".end") && !lower.starts_with(".ends")
-        {
-            continue;
-        }
-        if lower.starts_with("v1 in 0") {
-            if let Some(src) = source {
-                body.push_str(src);
-                body.push('\n');
-                continue;
-            }
-        }
-        body.push_str(line);
-        body.push('\n');
-    }
+    let body = ngspice_deck::body(&netlist, source);
     let control = control.replace("DATA", &data.display().to_string());
-    let cir = dir.join("board.cir");
-    std::fs::write(&cir, format!("{body}.control\n{control}\n.endc\n.end\n")).expect("write");
-    let out = Command::new("ngspice")
-        .arg("-b")
-        .arg(&cir)
-        .current_dir(&dir)
-        .output()
-        .expect("ngspice runs");
-    let log =
-        String::from_utf8_lossy(&out.stdout).to_string() + &String::from_utf8_lossy(&out.stderr);
+    let log = ngspice_deck::run(&dir, &body, &control);
     // Batch mode exits non-zero when the netlist has no `.print` card even though the `.control`
     // block ran; the data file and the log tell whether it worked.
     assert!(
@@ -122,16 +92,7 @@ fn run(board: &Board, name: &str, source: Option<&str>, control: &str) -> Vec<Ve
     );
     let text = std::fs::read_to_string(&data)
         .unwrap_or_else(|e| panic!("no wrdata output for {name} ({e}):\n{log}\n{body}"));
-    let rows: Vec<Vec<f64>> = text
-        .lines()
-        .filter_map(|line| {
-            line.split_whitespace()
-                .map(|c| c.parse::<f64>())
-                .collect::<Result<Vec<_>, _>>()
-                .ok()
-                .filter(|r| !r.is_empty())
-        })
-        .collect();
+    let rows = ngspice_deck::rows(&text);
     let _ = std::fs::remove_dir_all(&dir);
     assert!(
         rows.len() > 10,

@@ -42,7 +42,8 @@ use rolloff::opamp::OpAmp;
 use rolloff::pipeline::Design;
 use std::f64::consts::PI;
 use std::path::PathBuf;
-use std::process::Command;
+
+mod ngspice_deck;
 
 /// Our own scenarios (invented for these tests), with what each exercises.
 const LINKS: [&str; 13] = [
@@ -88,19 +89,7 @@ fn body(design: &Design, op: Option<OpAmp>) -> String {
         board.op_amp = op;
     }
     let netlist = spice::netlist(&board, &AcSweep::default()).expect("exports");
-    let mut out = String::new();
-    for line in netlist.lines() {
-        let lower = line.to_ascii_lowercase();
-        if lower.starts_with(".ac")
-            || lower.starts_with(".print")
-            || lower.starts_with(".end") && !lower.starts_with(".ends")
-        {
-            continue;
-        }
-        out.push_str(line);
-        out.push('\n');
-    }
-    out
+    ngspice_deck::body(&netlist, None)
 }
 
 /// The netlist with the op-amp subcircuit's capacitor set for `gbw_hz` (`Camp = 1/(2π·GBW)`,
@@ -125,11 +114,7 @@ fn with_gbw(body: &str, gbw_hz: f64) -> String {
 /// Runs `body` with `control` (each `DATAn` replaced by a data file); returns the rows of each
 /// data file as numbers.
 fn run(body: &str, control: &str, n_files: usize, name: &str) -> Vec<Vec<Vec<f64>>> {
-    let dir: PathBuf = std::env::temp_dir().join(format!(
-        "rolloff-ngspice-figures-{}-{name}",
-        std::process::id()
-    ));
-    std::fs::create_dir_all(&dir).expect("temp dir");
+    let dir = ngspice_deck::scratch("ngspice-figures", name);
     let mut control = control.to_string();
     let files: Vec<PathBuf> = (0..n_files)
         .map(|i| dir.join(format!("out{i}.txt")))
@@ -137,34 +122,17 @@ fn run(body: &str, control: &str, n_files: usize, name: &str) -> Vec<Vec<Vec<f64
     for (i, f) in files.iter().enumerate().rev() {
         control = control.replace(&format!("DATA{i}"), &f.display().to_string());
     }
-    let cir = dir.join("board.cir");
-    std::fs::write(
-        &cir,
-        format!("{body}.control\nset wr_singlescale\noption numdgt=15\n{control}\n.endc\n.end\n"),
-    )
-    .expect("write netlist");
-    let out = Command::new("ngspice")
-        .arg("-b")
-        .arg(&cir)
-        .current_dir(&dir)
-        .output()
-        .unwrap_or_else(|e| panic!("ngspice is not installed ({e}); apt-get install -y ngspice"));
-    let log =
-        String::from_utf8_lossy(&out.stdout).to_string() + &String::from_utf8_lossy(&out.stderr);
+    let log = ngspice_deck::run(
+        &dir,
+        body,
+        &format!("set wr_singlescale\noption numdgt=15\n{control}"),
+    );
     let tables: Vec<Vec<Vec<f64>>> = files
         .iter()
         .map(|f| {
             let text = std::fs::read_to_string(f)
                 .unwrap_or_else(|e| panic!("{name}: no ngspice data {f:?} ({e}):\n{log}"));
-            text.lines()
-                .filter_map(|line| {
-                    line.split_whitespace()
-                        .map(|c| c.parse::<f64>())
-                        .collect::<Result<Vec<f64>, _>>()
-                        .ok()
-                        .filter(|row| !row.is_empty())
-                })
-                .collect()
+            ngspice_deck::rows(&text)
         })
         .collect();
     let _ = std::fs::remove_dir_all(&dir);

@@ -15,8 +15,8 @@
 
 use rolloff::analysis::timeresp::{board_response, TimeResponse, TimeSettings};
 use rolloff::export::spice::{self, AcSweep};
-use std::path::PathBuf;
-use std::process::Command;
+
+mod ngspice_deck;
 
 fn compose(link: &str) -> rolloff::pipeline::Design {
     let report = rolloff::link::parse(link);
@@ -101,46 +101,16 @@ fn ngspice_step(
 ) -> (Vec<f64>, Vec<f64>) {
     let netlist = spice::netlist(&design.board, &AcSweep::default())
         .unwrap_or_else(|e| panic!("{name}: {e}"));
-    let dir: PathBuf = std::env::temp_dir().join(format!(
-        "rolloff-ngspice-step-{}-{name}",
-        std::process::id()
-    ));
-    std::fs::create_dir_all(&dir).expect("temp dir");
+    let dir = ngspice_deck::scratch("ngspice-step", name);
     let data = dir.join("out.txt");
-    let mut body = String::new();
-    for line in netlist.lines() {
-        let lower = line.to_ascii_lowercase();
-        if lower.starts_with(".ac")
-            || lower.starts_with(".print")
-            || lower.starts_with(".end") && !lower.starts_with(".ends")
-        {
-            continue;
-        }
-        if lower.starts_with("v1 in 0") {
-            body.push_str("V1 in 0 PULSE(0 1 0 1n 1n 1e6 2e6)\n");
-            continue;
-        }
-        body.push_str(line);
-        body.push('\n');
-    }
+    let body = ngspice_deck::body(&netlist, Some("V1 in 0 PULSE(0 1 0 1n 1n 1e6 2e6)"));
     let t_max = t_end / divisions;
     let control = format!(
         "set wr_singlescale\noption numdgt=12\noption reltol=1e-7 abstol=1e-15 vntol=1e-10\n\
          tran {t_max:e} {t_end:e} 0 {t_max:e}\nwrdata {} v(out)",
         data.display()
     );
-    let cir = dir.join("board.cir");
-    std::fs::write(&cir, format!("{body}.control\n{control}\n.endc\n.end\n")).expect("write");
-    let out = Command::new("ngspice")
-        .arg("-b")
-        .arg(&cir)
-        .current_dir(&dir)
-        .output()
-        .unwrap_or_else(|e| {
-            panic!("ngspice is not installed ({e}); install it with `apt-get install -y ngspice`")
-        });
-    let log =
-        String::from_utf8_lossy(&out.stdout).to_string() + &String::from_utf8_lossy(&out.stderr);
+    let log = ngspice_deck::run(&dir, &body, &control);
     assert!(
         !log.to_lowercase().contains("error"),
         "ngspice reported an error on {name}:\n{log}"
@@ -149,15 +119,7 @@ fn ngspice_step(
         .unwrap_or_else(|e| panic!("no wrdata output for {name} ({e}):\n{log}"));
     let _ = std::fs::remove_dir_all(&dir);
     let (mut t, mut y) = (Vec::new(), Vec::new());
-    for line in text.lines() {
-        let cols: Vec<f64> = match line
-            .split_whitespace()
-            .map(|c| c.parse::<f64>())
-            .collect::<Result<_, _>>()
-        {
-            Ok(c) => c,
-            Err(_) => continue,
-        };
+    for cols in ngspice_deck::rows(&text) {
         if cols.len() >= 2 {
             t.push(cols[0]);
             y.push(cols[1]);

@@ -5,19 +5,8 @@
 //! stage's polynomials underflow, so a span from 1e-300 Hz made every figure of the tolerance
 //! study NaN; the bounds themselves are the automatic span's (`pipeline::compose`).
 
-use std::process::Command;
-
-fn rolloff(args: &[&str]) -> (i32, String, String) {
-    let output = Command::new(env!("CARGO_BIN_EXE_rolloff"))
-        .args(args)
-        .output()
-        .expect("the rolloff binary runs");
-    (
-        output.status.code().unwrap_or(-1),
-        String::from_utf8_lossy(&output.stdout).into_owned(),
-        String::from_utf8_lossy(&output.stderr).into_owned(),
-    )
-}
+mod cli_run;
+use cli_run::rolloff;
 
 fn json(args: &[&str]) -> serde_json::Value {
     let (code, out, err) = rolloff(args);
