@@ -134,6 +134,11 @@ impl PageModel {
                 ));
             }
         }
+        // Where the runs' responses come from, in the words of the command line's study.
+        if summary.loaded_runs {
+            parts.push("each run solved on the loaded board".to_string());
+        }
+        parts.extend(summary.warnings.iter().cloned());
         parts.join(" · ")
     }
 

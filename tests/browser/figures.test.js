@@ -95,6 +95,10 @@ for (const link of LINKS) {
       assert.ok(y, `the page shows no yield: “${shown.study}”`);
       sameAtDecimals(y[1], spread.yield * 100, 1, 'yield %');
     }
+    // Where the runs' responses come from: the loaded board for every run exactly when the
+    // command line's study says so.
+    assert.equal(shown.study.includes('each run solved on the loaded board'), spread.loaded_runs === true,
+      `loaded runs: page “${shown.study}”, spread ${spread.loaded_runs}`);
 
     // Noise RMS and SNR.
     if (a.noise) {
