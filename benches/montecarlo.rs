@@ -31,6 +31,7 @@ fn board() -> Board {
                 f0_hz: 1000.0,
                 q: Some(q),
                 gain: 1.0,
+                fz_hz: None,
             }
         })
         .rev()

@@ -114,12 +114,16 @@ pub struct Stage {
     pub achieved_q: Option<f64>,
     /// Passband gain of the parts on the board, V/V, signed.
     pub achieved_gain: f64,
+    /// Frequency of the jω-axis zeros of the parts on the board, Hz; `None` without zeros.
+    pub achieved_fz_hz: Option<f64>,
     /// achieved f0 / target f0 − 1.
     pub f0_error: f64,
     /// achieved Q / target Q − 1; `None` for first order.
     pub q_error: Option<f64>,
     /// |achieved gain| / |target gain| − 1.
     pub gain_error: f64,
+    /// achieved fz / target fz − 1; `None` without zeros.
+    pub fz_error: Option<f64>,
     /// What had to give for this stage, in sentences.
     pub warnings: Vec<String>,
 }
@@ -216,7 +220,7 @@ pub fn place_gains(sections: &[Section], topology: Topology) -> Vec<Section> {
 }
 
 impl Stage {
-    /// Reads f0, Q and gain back from the stage's netlist values and updates the errors.
+    /// Reads f0, Q, gain and fz back from the stage's netlist values and updates the errors.
     fn analyse(&mut self) {
         let target = Target::from_section(&self.section);
         match topology::achieved(self.circuit, &self.netlist.passive_values()) {
@@ -225,17 +229,21 @@ impl Stage {
                 self.achieved_f0_hz = a.f0_hz;
                 self.achieved_q = a.q;
                 self.achieved_gain = a.gain;
+                self.achieved_fz_hz = a.fz_hz;
                 self.f0_error = ef;
                 self.q_error = eq;
                 self.gain_error = eg;
+                self.fz_error = a.fz_error(&target);
             }
             None => {
                 self.achieved_f0_hz = f64::NAN;
                 self.achieved_q = self.section.q.map(|_| f64::NAN);
                 self.achieved_gain = f64::NAN;
+                self.achieved_fz_hz = self.section.fz_hz.map(|_| f64::NAN);
                 self.f0_error = f64::NAN;
                 self.q_error = self.section.q.map(|_| f64::NAN);
                 self.gain_error = f64::NAN;
+                self.fz_error = self.section.fz_hz.map(|_| f64::NAN);
             }
         }
     }
@@ -286,9 +294,11 @@ impl Board {
                 achieved_f0_hz: 0.0,
                 achieved_q: None,
                 achieved_gain: 0.0,
+                achieved_fz_hz: None,
                 f0_error: 0.0,
                 q_error: None,
                 gain_error: 0.0,
+                fz_error: None,
                 warnings: design.warnings,
             };
             stage.analyse();

@@ -146,6 +146,7 @@ mod tests {
             f0_hz: 1000.0,
             q,
             gain: 1.0,
+            fz_hz: None,
         }
     }
 

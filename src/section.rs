@@ -23,6 +23,24 @@ pub enum SectionKind {
     HighPass,
     /// H(s) = g·(w0/Q)·s / (s² + s·w0/Q + w0²): gain g at f0. Second order only.
     BandPass,
+    /// A pair of zeros on the jω axis at `wz = 2π·fz_hz`:
+    /// H(s) = g·k·(s² + wz²) / (s² + s·w0/Q + w0²) with `k = min(1, w0²/wz²)`, so that `g` is the
+    /// larger of the two far-side gains: the DC gain of a low-pass notch (fz > f0), the
+    /// high-frequency gain of a high-pass notch (fz < f0), both for a symmetric notch (fz = f0).
+    /// Second order only; [`Section::fz_hz`] holds the zero frequency.
+    Notch,
+}
+
+/// Which side of its pole frequency a notch section's zeros sit on.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub enum NotchSide {
+    /// fz > f0: passes low frequencies at the full gain (the zeros of an elliptic or inverse
+    /// Chebyshev low-pass, the upper half of a band-stop).
+    LowPassNotch,
+    /// fz < f0: passes high frequencies at the full gain.
+    HighPassNotch,
+    /// fz = f0 (within 1e-9 relative): the same gain on both sides, as a mains notch.
+    Symmetric,
 }
 
 /// One section of the cascade.
@@ -35,8 +53,11 @@ pub struct Section {
     /// Pole quality factor; `None` for a first-order section.
     pub q: Option<f64>,
     /// Passband gain, V/V, signed: DC gain (low-pass), high-frequency gain (high-pass), gain at f0
-    /// (band-pass).
+    /// (band-pass), the larger far-side gain (notch, see [`SectionKind::Notch`]).
     pub gain: f64,
+    /// Frequency of the section's pair of jω-axis zeros, Hz: `Some` exactly for
+    /// [`SectionKind::Notch`].
+    pub fz_hz: Option<f64>,
 }
 
 impl Section {
@@ -46,6 +67,31 @@ impl Section {
             2
         } else {
             1
+        }
+    }
+
+    /// Where a notch section's zeros sit against its pole frequency; `None` for other kinds.
+    pub fn notch_side(&self) -> Option<NotchSide> {
+        let fz = self.fz_hz?;
+        if self.kind != SectionKind::Notch {
+            return None;
+        }
+        let relative = (fz - self.f0_hz) / self.f0_hz;
+        Some(if relative.abs() <= 1e-9 {
+            NotchSide::Symmetric
+        } else if relative > 0.0 {
+            NotchSide::LowPassNotch
+        } else {
+            NotchSide::HighPassNotch
+        })
+    }
+
+    /// The notch numerator's scale `k = min(1, w0²/wz²)` (see [`SectionKind::Notch`]), with
+    /// `wz² = (2π·fz)²`; 1 without a zero frequency.
+    pub fn notch_scale(&self) -> f64 {
+        match self.fz_hz {
+            Some(fz) if fz > self.f0_hz => (self.f0_hz / fz) * (self.f0_hz / fz),
+            _ => 1.0,
         }
     }
 
@@ -61,6 +107,10 @@ impl Section {
                     SectionKind::LowPass => Complex64::new(w0 * w0, 0.0),
                     SectionKind::HighPass => s * s,
                     SectionKind::BandPass => s * (w0 / q),
+                    SectionKind::Notch => {
+                        let wz = TWO_PI * self.fz_hz.unwrap_or(self.f0_hz);
+                        Complex64::new((wz * wz - w * w) * self.notch_scale(), 0.0)
+                    }
                 };
                 num * self.gain / den
             }
@@ -69,8 +119,9 @@ impl Section {
                 let num = match self.kind {
                     SectionKind::LowPass => Complex64::new(w0, 0.0),
                     // A first-order band-pass does not exist; a first-order section in a band-pass
-                    // cascade can only be a high-pass (s) piece, so treat it like one.
-                    SectionKind::HighPass | SectionKind::BandPass => s,
+                    // cascade can only be a high-pass (s) piece, so treat it like one; a notch
+                    // needs two zeros, so a first-order one cannot be built and is read the same.
+                    SectionKind::HighPass | SectionKind::BandPass | SectionKind::Notch => s,
                 };
                 num * self.gain / den
             }
@@ -87,13 +138,25 @@ impl Section {
                     SectionKind::LowPass => 0.0,
                     SectionKind::HighPass => std::f64::consts::PI,
                     SectionKind::BandPass => std::f64::consts::FRAC_PI_2,
+                    // The real numerator wz² − ω² changes sign at the zero: the phase steps up by
+                    // π there (a jump, not a slope, so it adds nothing to the group delay).
+                    SectionKind::Notch => {
+                        let wz = TWO_PI * self.fz_hz.unwrap_or(self.f0_hz);
+                        if w > wz {
+                            std::f64::consts::PI
+                        } else {
+                            0.0
+                        }
+                    }
                 };
                 (num, fmath::atan2(w * w0 / q, w0 * w0 - w * w))
             }
             None => {
                 let num = match self.kind {
                     SectionKind::LowPass => 0.0,
-                    SectionKind::HighPass | SectionKind::BandPass => std::f64::consts::FRAC_PI_2,
+                    SectionKind::HighPass | SectionKind::BandPass | SectionKind::Notch => {
+                        std::f64::consts::FRAC_PI_2
+                    }
                 };
                 (num, fmath::atan2(w, w0))
             }
@@ -131,6 +194,7 @@ mod tests {
             f0_hz: 1000.0,
             q,
             gain: 1.0,
+            fz_hz: (kind == SectionKind::Notch).then_some(1300.0),
         }
     }
 
@@ -143,14 +207,59 @@ mod tests {
             sec(SectionKind::BandPass, Some(5.0)),
             sec(SectionKind::LowPass, None),
             sec(SectionKind::HighPass, None),
+            sec(SectionKind::Notch, Some(8.0)),
+            Section {
+                fz_hz: Some(700.0),
+                ..sec(SectionKind::Notch, Some(2.0))
+            },
         ];
         for s in kinds {
-            for f in [1.0, 300.0, 999.0, 1000.0, 1001.0, 5e4] {
+            for f in [
+                1.0, 300.0, 699.0, 701.0, 999.0, 1000.0, 1001.0, 1299.0, 1301.0, 5e4,
+            ] {
                 let analytic = s.phase_rad(f);
                 let direct = fmath::carg(s.response(f));
                 let diff = (analytic - direct).rem_euclid(2.0 * std::f64::consts::PI);
                 assert!(diff < 1e-9 || (2.0 * std::f64::consts::PI - diff) < 1e-9);
             }
         }
+    }
+}
+
+#[cfg(test)]
+mod notch_tests {
+    use super::*;
+
+    /// The notch's gain convention (physics of the transfer function written in
+    /// [`SectionKind::Notch`]): the DC gain of a low-pass notch and the high-frequency gain of a
+    /// high-pass notch equal `g`, the other side is `g·(fz/f0)²` or `g·(f0/fz)²`, and the zero
+    /// frequency gives exactly 0.
+    #[test]
+    fn far_side_gains_and_the_zero() {
+        let low = Section {
+            kind: SectionKind::Notch,
+            f0_hz: 1000.0,
+            q: Some(4.0),
+            gain: 2.0,
+            fz_hz: Some(2000.0),
+        };
+        assert_eq!(low.notch_side(), Some(NotchSide::LowPassNotch));
+        assert!((fmath::cnorm(low.response(1e-3)) - 2.0).abs() < 1e-9);
+        assert!((fmath::cnorm(low.response(1e9)) - 2.0 * 0.25).abs() < 1e-6);
+        assert_eq!(fmath::cnorm(low.response(2000.0)), 0.0);
+        let high = Section {
+            fz_hz: Some(500.0),
+            ..low
+        };
+        assert_eq!(high.notch_side(), Some(NotchSide::HighPassNotch));
+        assert!((fmath::cnorm(high.response(1e9)) - 2.0).abs() < 1e-6);
+        assert!((fmath::cnorm(high.response(1e-3)) - 2.0 * 0.25).abs() < 1e-9);
+        let both = Section {
+            fz_hz: Some(1000.0),
+            ..low
+        };
+        assert_eq!(both.notch_side(), Some(NotchSide::Symmetric));
+        assert!((fmath::cnorm(both.response(1e-3)) - 2.0).abs() < 1e-9);
+        assert!((fmath::cnorm(both.response(1e9)) - 2.0).abs() < 1e-6);
     }
 }

@@ -45,6 +45,7 @@ pub fn from_target(target: &crate::transform::Target) -> Vec<Section> {
             f0_hz: g.w0() / (2.0 * std::f64::consts::PI),
             q: g.q(),
             gain: 1.0,
+            fz_hz: None,
         })
         .collect();
     sort_ascending_q(&mut sections);
@@ -181,6 +182,7 @@ mod tests {
             f0_hz,
             q,
             gain: 1.0,
+            fz_hz: None,
         }
     }
 

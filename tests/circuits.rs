@@ -320,6 +320,11 @@ fn achieved_values_follow_the_target_and_the_sign_of_the_circuit() {
             SectionKind::LowPass => Complex64::new(0.0, 0.0),
             SectionKind::HighPass => jw(section.f0_hz * 1e6),
             SectionKind::BandPass => jw(stage.achieved_f0_hz),
+            // The larger far side carries the gain (see `SectionKind::Notch`).
+            SectionKind::Notch => match section.fz_hz {
+                Some(fz) if fz > section.f0_hz => Complex64::new(0.0, 0.0),
+                _ => jw(section.f0_hz * 1e6),
+            },
         };
         let h = textbook(&stage.netlist, probe);
         assert!(

@@ -457,6 +457,7 @@ fn lp_section(f0_hz: f64, q: f64) -> Section {
         f0_hz,
         q: Some(q),
         gain: 1.0,
+        fz_hz: None,
     }
 }
 

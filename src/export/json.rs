@@ -1,7 +1,7 @@
 //! Design JSON: the `rolloff design --format json` output and the page's export (same bytes).
 //!
 //! The shape is a contract (see the README): top-level `order`, `family`, `resp`, `stages` in
-//! signal order (each with `order`, `f0_hz`, `q`, `gain`, `topology`, `parts`, `achieved`), `parts`
+//! signal order (each with `order`, `f0_hz`, `q`, `fz_hz` (`null` without zeros), `gain`, `topology`, `parts`, `achieved`), `parts`
 //! (every part of the board) and `warnings`, plus the requirement, the mask, the poles, the family
 //! comparison and the analyses. Non-finite numbers are written as `null`.
 
@@ -76,19 +76,22 @@ pub fn design_value(design: &Design) -> Value {
             json!({
                 "index": index + 1,
                 "order": stage.section.order(),
-                "kind": format!("{:?}", stage.section.kind).to_lowercase(),
+                "kind": section_kind_key(&stage.section),
                 "f0_hz": finite(stage.section.f0_hz),
                 "q": stage.section.q.and_then(finite),
+                "fz_hz": stage.section.fz_hz.and_then(finite),
                 "gain": finite(stage.section.gain),
                 "topology": stage.circuit.key(),
                 "parts": parts,
                 "achieved": {
                     "f0_hz": finite(stage.achieved_f0_hz),
                     "q": stage.achieved_q.and_then(finite),
+                    "fz_hz": stage.achieved_fz_hz.and_then(finite),
                     "gain": finite(stage.achieved_gain),
                     "f0_error": finite(stage.f0_error),
                     "q_error": stage.q_error.and_then(finite),
                     "gain_error": finite(stage.gain_error),
+                    "fz_error": stage.fz_error.and_then(finite),
                 },
                 "warnings": stage.warnings,
             })
@@ -202,4 +205,18 @@ fn to_text(value: &Value) -> String {
         serde_json::to_string_pretty(value).unwrap_or_else(|e| format!("{{\"error\": \"{e}\"}}"));
     text.push('\n');
     text
+}
+
+/// The stage JSON's `kind`: `lowpass`, `highpass`, `bandpass`, and for a section with zeros the
+/// side they sit on: `lowpassnotch` (fz > f0), `highpassnotch` (fz < f0) or `notch` (fz = f0).
+fn section_kind_key(section: &crate::section::Section) -> &'static str {
+    use crate::section::{NotchSide, SectionKind};
+    match (section.kind, section.notch_side()) {
+        (SectionKind::LowPass, _) => "lowpass",
+        (SectionKind::HighPass, _) => "highpass",
+        (SectionKind::BandPass, _) => "bandpass",
+        (SectionKind::Notch, Some(NotchSide::LowPassNotch)) => "lowpassnotch",
+        (SectionKind::Notch, Some(NotchSide::HighPassNotch)) => "highpassnotch",
+        (SectionKind::Notch, _) => "notch",
+    }
 }

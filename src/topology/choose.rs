@@ -101,6 +101,12 @@ pub fn choose(
                 format!("stage {stage_no}: a band-pass section must be second order"),
             ))
         }
+        (_, SectionKind::Notch, _) => {
+            return Err(InputError::new(
+                "family",
+                format!("stage {stage_no}: no circuit here realises a section with zeros yet"),
+            ))
+        }
     };
     Ok((circuit, note))
 }

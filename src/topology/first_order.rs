@@ -74,6 +74,7 @@ impl Realization for BufferedLowPass {
             f0_hz: 1.0 / (2.0 * PI * v[0] * v[1]),
             q: None,
             gain: divider_gain(v, 2)?,
+            fz_hz: None,
         })
     }
     fn set_capacitors(&self, _t: &Target, v: &mut [f64], trial: &CapacitorTrial) {
@@ -106,6 +107,7 @@ impl Realization for BufferedHighPass {
             f0_hz: 1.0 / (2.0 * PI * v[0] * v[1]),
             q: None,
             gain: divider_gain(v, 2)?,
+            fz_hz: None,
         })
     }
     fn set_capacitors(&self, _t: &Target, v: &mut [f64], trial: &CapacitorTrial) {
@@ -146,6 +148,7 @@ impl Realization for InvertingLowPass {
             f0_hz: 1.0 / (2.0 * PI * r2 * c1),
             q: None,
             gain: -r2 / r1,
+            fz_hz: None,
         })
     }
     fn set_capacitors(&self, _t: &Target, v: &mut [f64], trial: &CapacitorTrial) {
@@ -186,6 +189,7 @@ impl Realization for InvertingHighPass {
             f0_hz: 1.0 / (2.0 * PI * r1 * c1),
             q: None,
             gain: -r2 / r1,
+            fz_hz: None,
         })
     }
     fn set_capacitors(&self, _t: &Target, v: &mut [f64], trial: &CapacitorTrial) {

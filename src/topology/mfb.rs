@@ -101,6 +101,7 @@ impl Realization for LowPass {
             f0_hz: w0 / (2.0 * PI),
             q: Some(1.0 / inv_q),
             gain: -r3 / r1,
+            fz_hz: None,
         })
     }
 
@@ -170,6 +171,7 @@ impl Realization for HighPass {
             f0_hz: w0 / (2.0 * PI),
             q: Some(w0 / w0_over_q),
             gain: -ci / cf,
+            fz_hz: None,
         })
     }
 
@@ -253,6 +255,7 @@ impl Realization for BandPass {
             f0_hz: w0 / (2.0 * PI),
             q: Some(w0 / w0_over_q),
             gain: -g1 * cm * rf / (cf + cm),
+            fz_hz: None,
         })
     }
 

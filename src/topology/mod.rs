@@ -182,15 +182,18 @@ pub struct Target {
     pub q: Option<f64>,
     /// Magnitude of the passband gain, V/V (> 0). The sign follows from the circuit.
     pub gain: f64,
+    /// Frequency of the pair of jω-axis zeros, rad/s (wz = 2π·fz); `None` without.
+    pub wz: Option<f64>,
 }
 
 impl Target {
-    /// w0 = 2π·f0, Q and |gain| of a section.
+    /// w0 = 2π·f0, Q, |gain| and wz = 2π·fz of a section.
     pub fn from_section(section: &Section) -> Target {
         Target {
             w0: 2.0 * PI * section.f0_hz,
             q: section.q,
             gain: section.gain.abs(),
+            wz: section.fz_hz.map(|fz| 2.0 * PI * fz),
         }
     }
 
@@ -214,8 +217,11 @@ pub struct Achieved {
     /// unstable stage, possible only after part overrides).
     pub q: Option<f64>,
     /// Passband gain, V/V, signed (negative for inverting stages): DC gain (low-pass),
-    /// high-frequency gain (high-pass), gain at f0 (band-pass).
+    /// high-frequency gain (high-pass), gain at f0 (band-pass), the larger far-side gain (notch,
+    /// see [`crate::section::SectionKind::Notch`]).
     pub gain: f64,
+    /// Frequency of the stage's pair of jω-axis zeros, Hz; `None` for circuits without.
+    pub fz_hz: Option<f64>,
 }
 
 impl Achieved {
@@ -230,10 +236,20 @@ impl Achieved {
         (f0_error, q_error, gain_error)
     }
 
-    /// The figure the combination search minimizes: e_f0² + e_Q² + e_gain² (relative errors).
+    /// fz/fz_target − 1 when both the stage and the target have zeros.
+    pub fn fz_error(&self, target: &Target) -> Option<f64> {
+        match (self.fz_hz, target.wz) {
+            (Some(fz), Some(wz)) => Some(fz * 2.0 * PI / wz - 1.0),
+            _ => None,
+        }
+    }
+
+    /// The figure the combination search minimizes: e_f0² + e_Q² + e_gain² + e_fz² (relative
+    /// errors; the last only for stages with zeros).
     pub fn cost(&self, target: &Target) -> f64 {
         let (ef, eq, eg) = self.errors(target);
-        let cost = ef * ef + eq.map_or(0.0, |e| e * e) + eg * eg;
+        let ez = self.fz_error(target).unwrap_or(0.0);
+        let cost = ef * ef + eq.map_or(0.0, |e| e * e) + eg * eg + ez * ez;
         if cost.is_finite() {
             cost
         } else {

@@ -139,6 +139,7 @@ impl Realization for LowPass {
             f0_hz: w0 / (2.0 * PI),
             q: Some(1.0 / (w0 * s1)),
             gain: k,
+            fz_hz: None,
         })
     }
 
@@ -241,6 +242,7 @@ impl Realization for HighPass {
             f0_hz: w0 / (2.0 * PI),
             q: Some(w0 / w0_over_q),
             gain: k,
+            fz_hz: None,
         })
     }
 

@@ -16,6 +16,7 @@ pub fn section(kind: SectionKind, f0_hz: f64, q: Option<f64>, gain: f64) -> Sect
         f0_hz,
         q,
         gain,
+        fz_hz: None,
     }
 }
 

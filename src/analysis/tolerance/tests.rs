@@ -259,6 +259,7 @@ fn butterworth(kind: SectionKind, n: usize, fc_hz: f64, gain: f64) -> Vec<Sectio
             f0_hz: fc_hz,
             q,
             gain: g,
+            fz_hz: None,
         })
         .collect()
 }
@@ -281,6 +282,7 @@ fn butterworth_band_pass(n: usize, f0_hz: f64, bw_hz: f64) -> Vec<Section> {
                     f0_hz: fmath::cnorm(s) / (2.0 * PI),
                     q: Some(fmath::cnorm(s) / (-2.0 * s.re)),
                     gain: 1.0,
+                    fz_hz: None,
                 });
             }
         }
