@@ -158,15 +158,17 @@ window.Rolloff = (function () {
     var values = { resp: radioValue('resp'), ordermode: radioValue('ordermode'), family: form.elements.family.value };
     $$('[data-show]', form).forEach(function (el) {
       var hidden = !el.getAttribute('data-show').split('&').every(function (rule) {
+        // `key=a|b`: shown when the key has any of the listed values.
         var pair = rule.split('=');
-        return values[pair[0]] === pair[1];
+        return pair[1].split('|').indexOf(values[pair[0]]) >= 0;
       });
       if (el.hidden !== hidden) el.hidden = hidden;
     });
     $$('[data-text-resp]', form).forEach(function (el) {
+      // `a|b:First|Other`: the first text when the response is one of a, b.
       var parts = el.getAttribute('data-text-resp').split(':');
       var texts = parts[1].split('|');
-      R.setText(el, values.resp === parts[0] ? texts[0] : texts[1]);
+      R.setText(el, parts[0].split('|').indexOf(values.resp) >= 0 ? texts[0] : texts[1]);
     });
   }
 

@@ -14,6 +14,7 @@ pub mod levels;
 pub mod magnitude;
 pub mod multilinear;
 pub mod noise;
+pub mod notch;
 pub mod opamp_need;
 pub mod poles;
 pub mod poly;

@@ -24,6 +24,8 @@ pub(super) struct PageWords {
     needs: Vec<String>,
     step_figures: Option<crate::analysis::timeresp::StepFigures>,
     sensitivities: Vec<Vec<SensitivityRow>>,
+    /// Each stage's notch sentence (empty for a stage without zeros), by stage index.
+    notches: Vec<String>,
     problems: Vec<String>,
 }
 
@@ -75,10 +77,18 @@ impl PageWords {
                     .collect()
             })
             .collect();
+        let required = pipeline::required_notch_depth_db(design);
+        let mut notches = vec![String::new(); design.board.stages.len()];
+        for n in analyses.notches.iter().flatten() {
+            if let Some(slot) = notches.get_mut(n.stage.wrapping_sub(1)) {
+                *slot = words::notch_sentence(n, required);
+            }
+        }
         PageWords {
             noise_line,
             headroom,
             needs,
+            notches,
             step_figures: analyses.step,
             sensitivities,
             problems,
@@ -97,6 +107,9 @@ impl PageWords {
             }
             if let Some(room) = self.headroom.get(index) {
                 needs.push(format!("Output {room}."));
+            }
+            if let Some(notch) = self.notches.get(index).filter(|n| !n.is_empty()) {
+                needs.push(format!("Board {notch}."));
             }
             stage.needs = needs.join(" ");
         }
@@ -219,6 +232,20 @@ pub(super) fn text_view(design: &Design, data: &PlotData) -> View {
                     achieved: format!("{aq:.4}"),
                     error: pct(q_error),
                     large: q_error.abs() > 0.02,
+                });
+            }
+            if let Some(fz) = section.fz_hz {
+                let fz_error = stage.fz_error.unwrap_or(f64::NAN);
+                rows.push(TargetRow {
+                    what: "fz".into(),
+                    target: engineering_unit(fz, 4, "Hz"),
+                    achieved: stage
+                        .achieved_fz_hz
+                        .map_or_else(|| "–".to_string(), |a| engineering_unit(a, 4, "Hz")),
+                    error: pct(fz_error),
+                    // A notch is only as deep as its zero frequency is right: 0.5 % off leaves
+                    // a Q = 10 notch some 30 dB deep (physics of the second-order numerator).
+                    large: fz_error.abs() > 0.005,
                 });
             }
             rows.push(TargetRow {

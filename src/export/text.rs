@@ -312,6 +312,14 @@ fn analysis_text(out: &mut String, design: &Design) {
             );
         }
     }
+    for n in a.notches.iter().flatten() {
+        let _ = writeln!(
+            out,
+            "  stage {} {}",
+            n.stage,
+            super::words::notch_sentence(n, crate::pipeline::required_notch_depth_db(design))
+        );
+    }
     if let Some(needs) = &a.opamp_needs {
         let _ = writeln!(
             out,

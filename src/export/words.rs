@@ -187,3 +187,35 @@ mod tests {
         );
     }
 }
+
+/// A notch of the built board in words: its depth below the passband gain, where, the stage's
+/// zero frequency from its parts, and against the depth the limits ask for when they ask:
+/// "notch 52.3 dB deep at 49.97 Hz (parts on an ideal op amp: 50 Hz); the limits ask 40 dB:
+/// met".
+pub fn notch_sentence(
+    notch: &crate::analysis::notch::NotchDepth,
+    required_db: Option<f64>,
+) -> String {
+    let depth = if notch.depth_db.is_finite() {
+        format!("{:.1} dB deep", notch.depth_db)
+    } else {
+        "bottomless (an exact zero)".to_string()
+    };
+    let mut line = format!(
+        "notch {depth} at {} (parts on an ideal op amp: {})",
+        crate::units::format_si_unit_with(notch.at_hz, 4, "Hz", crate::units::Minus::Typographic),
+        crate::units::format_si_unit_with(notch.fz_hz, 4, "Hz", crate::units::Minus::Typographic)
+    );
+    if let Some(required) = required_db {
+        let verdict = if notch.depth_db >= required {
+            "met".to_string()
+        } else {
+            format!("short by {:.1} dB", required - notch.depth_db)
+        };
+        line.push_str(&format!(
+            "; the limits ask {} dB: {verdict}",
+            decibels(required)
+        ));
+    }
+    line
+}

@@ -26,7 +26,7 @@ use crate::analysis::noise::{self, NoiseKind, NoiseReport};
 use crate::analysis::poles::{self, StagePoles};
 use crate::analysis::sensitivity::{self, StageSensitivity};
 use crate::analysis::timeresp::{self, StepFigures, TimeResponse, TimeSettings};
-use crate::analysis::{levels, opamp_need};
+use crate::analysis::{levels, notch, opamp_need};
 use crate::board::Board;
 use crate::fmath;
 use crate::netlist::StageNetlist;
@@ -62,6 +62,15 @@ pub fn passband_ref_hz(design: &Design) -> f64 {
         ResponseClass::LowPass => 0.0,
         ResponseClass::HighPass => design.synthesis.fc_hz * 10.0,
         ResponseClass::BandPass => design.synthesis.fc_hz,
+    }
+}
+
+/// The depth the limits ask of a notch, dB below the passband gain: the stopband depth of a
+/// band-stop's mask (its stopband is the notch); `None` for the other classes, whose zeros only
+/// serve the stopband the verdict checks as a whole.
+pub fn required_notch_depth_db(design: &Design) -> Option<f64> {
+    match design.state.requirement.class {
+        ResponseClass::LowPass | ResponseClass::HighPass | ResponseClass::BandPass => None,
     }
 }
 
@@ -186,6 +195,9 @@ pub struct Analyses {
     pub levels: Option<Vec<LevelSummary>>,
     /// The board's least input impedance over the signal band and where.
     pub input_impedance: Option<InputImpedance>,
+    /// The built board's notch near each stage's zero frequency: where, and its depth below the
+    /// passband gain (empty without stages with zeros).
+    pub notches: Option<Vec<notch::NotchDepth>>,
     /// Target and achieved poles per stage.
     pub poles: Option<Vec<StagePoles>>,
     /// Soft problems found by the analyses (a stage that clips, …).
@@ -339,6 +351,14 @@ pub fn analyses(design: &Design) -> Analyses {
         .as_mut()
         .and_then(|solver| least_input_impedance(solver, &freqs, band));
     warnings.extend(input_impedance.as_ref().and_then(input_impedance_warning));
+    let notches = match (solver.as_mut(), gain) {
+        (Some(solver), Some(gain)) => Some(notch::notch_depths(
+            board,
+            solver,
+            20.0 * fmath::log10(gain),
+        )),
+        _ => None,
+    };
     let opamp_needs = match (solver.as_mut(), sweep.as_ref(), gain) {
         (Some(solver), Some(sweep), Some(gain)) => {
             let slew = opamp_need::slew_points(solver, sweep, band, signal.vin_pk);
@@ -401,6 +421,7 @@ pub fn analyses(design: &Design) -> Analyses {
                 .collect()
         }),
         input_impedance,
+        notches,
         poles,
         warnings,
         errors,

@@ -26,8 +26,9 @@ mod analyses;
 pub mod verdict;
 
 pub use analyses::{
-    analyses, gbw_band_hz, passband_ref_hz, plot_grid, signal_band_hz, Analyses, LevelSummary,
-    NoiseShare, NoiseSummary, HIGH_PASS_TOP, NOISE_EVERY, PLOT_POINTS, STEP_POINTS,
+    analyses, gbw_band_hz, passband_ref_hz, plot_grid, required_notch_depth_db, signal_band_hz,
+    Analyses, LevelSummary, NoiseShare, NoiseSummary, HIGH_PASS_TOP, NOISE_EVERY, PLOT_POINTS,
+    STEP_POINTS,
 };
 
 /// A composed design: the state it came from, the synthesis, the board and its context.
