@@ -243,8 +243,10 @@ pub(super) fn text_view(design: &Design, data: &PlotData) -> View {
                         .achieved_fz_hz
                         .map_or_else(|| "–".to_string(), |a| engineering_unit(a, 4, "Hz")),
                     error: pct(fz_error),
-                    // A notch is only as deep as its zero frequency is right: 0.5 % off leaves
-                    // a Q = 10 notch some 30 dB deep (physics of the second-order numerator).
+                    // A notch is only as deep as its zero frequency is right: with the zero
+                    // δ off, |H| at the intended frequency is about 2·δ·Q of the passband
+                    // (physics of the second-order section), so 0.5 % off leaves a Q = 10
+                    // notch there only some 20 dB deep.
                     large: fz_error.abs() > 0.005,
                 });
             }
