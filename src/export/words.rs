@@ -195,14 +195,14 @@ pub fn dc_line(dc: &crate::analysis::dc::DcErrors) -> String {
     if !dc.modelled {
         let (per_volt, per_amp) = dc.worst_per_unit();
         return format!(
-            "DC errors not modelled (vos = ib = 0): each 1 mV of op-amp offset moves the output \
-             by up to {}, each 1 nA of bias current by up to {}",
+            "DC errors not modelled (vos = ib = 0): at most {} out per 1 mV of offset, {} per \
+             1 nA of bias current",
             eng(per_volt * 1e-3, "V"),
             eng(per_amp * 1e-9, "V")
         );
     }
     let mut line = format!(
-        "DC offset at the output {} for vos = {}, ib = {} (worst case over signs ±{}",
+        "DC offset {} out for vos = {}, ib = {} (worst case ±{} over signs",
         signed_eng(dc.offset_v, "V"),
         eng(dc.vos_v, "V"),
         eng(dc.ib_a, "A"),

@@ -605,7 +605,7 @@ pub(crate) const TABLE: [Row; 46] = [
         num(
             -MAX_VOS_V,
             MAX_VOS_V,
-            "op-amp input offset voltage in V (signed)",
+            "signed op-amp input offset voltage in V",
         ),
         Some(|s, v| s.op_amp.vos_v = number(&v)),
         |s| Some(number_text(s.op_amp.vos_v)),
@@ -616,7 +616,7 @@ pub(crate) const TABLE: [Row; 46] = [
         num(
             -MAX_IB_A,
             MAX_IB_A,
-            "op-amp input bias current in A (signed, into each input)",
+            "signed op-amp input bias current into each input in A",
         ),
         Some(|s, v| s.op_amp.ib_a = number(&v)),
         |s| Some(number_text(s.op_amp.ib_a)),
