@@ -20,11 +20,23 @@ pub struct OpAmp {
     pub in_a_per_rthz: f64,
     /// Slew rate, V/s, used for the slew check.
     pub slew_v_per_s: f64,
+    /// Input offset voltage, V, signed (`vos`): the op amp amplifies `V+ + vos − V−`, as if a
+    /// source of `vos` sat in series with its non-inverting input. 0 when not modelled.
+    pub vos_v: f64,
+    /// Input bias current, A, signed (`ib`): the current each input draws from its node (positive
+    /// into the pin). Both inputs draw the same current; the offset current between them is not
+    /// modelled. 0 when not modelled.
+    pub ib_a: f64,
 }
 
 impl OpAmp {
     /// The documented default: a generic general-purpose part (1 MHz GBW, 100 dB, 50 Ω, 10 nV/√Hz,
-    /// 1 pA/√Hz, 0.5 V/µs). Not any vendor's part.
+    /// 1 pA/√Hz, 0.5 V/µs). Not any vendor's part. Its DC errors are not modelled (`vos = 0`,
+    /// `ib = 0`): offset and bias current differ by a factor of a thousand between part families
+    /// (a chopper's microvolts, a general-purpose bipolar part's millivolts; a CMOS input's
+    /// picoamperes, a bipolar input's hundreds of nanoamperes), so a default would invent the
+    /// figure that decides the DC report. The report still gives each source's gain per volt or
+    /// ampere, so the board's DC sensitivity shows without a part chosen.
     pub const GENERIC: OpAmp = OpAmp {
         gbw_hz: 1.0e6,
         a0_db: 100.0,
@@ -32,9 +44,12 @@ impl OpAmp {
         en_v_per_rthz: 10.0e-9,
         in_a_per_rthz: 1.0e-12,
         slew_v_per_s: 0.5e6,
+        vos_v: 0.0,
+        ib_a: 0.0,
     };
 
-    /// The ideal op amp: infinite gain and bandwidth, zero output resistance, noiseless.
+    /// The ideal op amp: infinite gain and bandwidth, zero output resistance, noiseless, without
+    /// offset or bias current.
     pub fn ideal() -> OpAmp {
         OpAmp {
             gbw_hz: f64::INFINITY,
@@ -43,7 +58,14 @@ impl OpAmp {
             en_v_per_rthz: 0.0,
             in_a_per_rthz: 0.0,
             slew_v_per_s: f64::INFINITY,
+            vos_v: 0.0,
+            ib_a: 0.0,
         }
+    }
+
+    /// True when the DC errors are modelled: a non-zero offset or bias current.
+    pub fn has_dc_errors(&self) -> bool {
+        self.vos_v != 0.0 || self.ib_a != 0.0
     }
 
     /// True when the gain is infinite (the nodal analysis then uses a nullor).

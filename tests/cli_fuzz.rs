@@ -588,7 +588,13 @@ fn fuzzed_version_2_links_survive_writing_and_reading() {
     // that say `v=2` and use the current names.
     let mut g = Gen(0x0002_0002);
     let mut n_checked = 0;
-    let names = rolloff::link::KEYS.to_vec();
+    // A second `v` after the prefix would make it another version's link (`v=2&passloss=0.5&v=1`
+    // reads `passloss` as unknown), so `v` is not drawn here.
+    let names: Vec<&str> = rolloff::link::KEYS
+        .iter()
+        .copied()
+        .filter(|k| *k != "v")
+        .collect();
     for _ in 0..10_000 {
         let link = keyed_link(&mut g, "?v=2", &names);
         let report = rolloff::link::parse(&link);

@@ -1,5 +1,5 @@
 //! Analysis of the board as built: tolerance study, sensitivities, noise, time response, poles,
-//! stage levels and op-amp requirements.
+//! stage levels, op-amp requirements and DC errors.
 //!
 //! Leaves that the analyses share: [`circuit`] (the fast assembler and solver), `lanes` (the
 //! SIMD lanes of the tolerance study's batches), `roots` (root finders of a stage's
@@ -8,6 +8,7 @@
 
 pub mod built;
 pub mod circuit;
+pub mod dc;
 pub mod fastfit;
 pub(crate) mod lanes;
 pub mod levels;

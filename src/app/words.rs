@@ -47,6 +47,7 @@ impl PageWords {
                     .as_ref()
                     .map(|needs| words::board_gbw_sentence(needs, design.board.op_amp.gbw_hz)),
             )
+            .chain(analyses.dc.as_ref().map(words::dc_line))
             .collect::<Vec<String>>()
             .join(" · ");
         let headroom = analyses

@@ -144,6 +144,8 @@ pub fn design_value(design: &Design) -> Value {
             "vnoise_v_per_rthz": op.en_v_per_rthz,
             "inoise_a_per_rthz": op.in_a_per_rthz,
             "slew_v_per_s": finite(op.slew_v_per_s),
+            "vos_v": op.vos_v,
+            "ib_a": op.ib_a,
         },
         "series": {"resistors": design.board.r_series.key(), "capacitors": design.board.c_series.key()},
         "tolerance_pct": {"resistors": design.state.rtol_pct, "capacitors": design.state.ctol_pct},

@@ -9,6 +9,12 @@
 //! GBW), a unity-gain E source buffers that node, and Rout sits in series with the output.
 //! An infinite A0 is written as 1e12 (240 dB), since a capacitor alone would leave the node
 //! without a DC path; an infinite GBW leaves the capacitor out.
+//!
+//! When the op amp's DC errors are set (`vos`, `ib`), the subcircuit also carries them: a DC
+//! source `Vos` between the pin `inp` and the amplifier's own non-inverting node (`inq` = `inp` +
+//! vos) and a DC current source `Ibp`, `Ibn` from each input pin to ground (positive `ib` flows
+//! into the pin), so `.op` shows the board's output offset. Without them the subcircuit is the
+//! plain one.
 
 use crate::board::Board;
 use crate::error::InputError;
@@ -159,8 +165,13 @@ pub fn netlist(board: &Board, sweep: &AcSweep) -> Result<String, InputError> {
 }
 
 fn describe_op_amp(op: &crate::opamp::OpAmp) -> String {
+    let dc = if op.has_dc_errors() {
+        format!(", Vos {} V, Ib {} A", num(op.vos_v), num(op.ib_a))
+    } else {
+        String::new()
+    };
     if op.is_ideal_gain() && op.rout_ohm == 0.0 {
-        return "ideal".into();
+        return format!("ideal{dc}");
     }
     let gbw = if op.gbw_hz.is_finite() {
         format!("{} Hz", num(op.gbw_hz))
@@ -172,7 +183,7 @@ fn describe_op_amp(op: &crate::opamp::OpAmp) -> String {
     } else {
         "infinite".into()
     };
-    format!("GBW {gbw}, A0 {a0}, Rout {} Ohm", num(op.rout_ohm))
+    format!("GBW {gbw}, A0 {a0}, Rout {} Ohm{dc}", num(op.rout_ohm))
 }
 
 /// The op-amp subcircuit `rolloff_opamp inp inn out`.
@@ -188,7 +199,21 @@ fn subcircuit(op: &crate::opamp::OpAmp) -> String {
         s,
         "* A(s) = A0/(1 + s*A0/(2*pi*GBW)): 1 S into R = A0 Ohm || C = 1/(2*pi*GBW) F"
     );
-    let _ = writeln!(s, "Gamp 0 int inp inn 1");
+    // The DC errors, only when set (so a board without them exports as before): the offset in
+    // series with the non-inverting input, and each input's bias current drawn from its pin.
+    let plus = if op.has_dc_errors() {
+        let _ = writeln!(
+            s,
+            "* DC errors: Vos in series with inp, Ib drawn from each input"
+        );
+        let _ = writeln!(s, "Vos inq inp DC {}", num(op.vos_v));
+        let _ = writeln!(s, "Ibp inp 0 DC {}", num(op.ib_a));
+        let _ = writeln!(s, "Ibn inn 0 DC {}", num(op.ib_a));
+        "inq"
+    } else {
+        "inp"
+    };
+    let _ = writeln!(s, "Gamp 0 int {plus} inn 1");
     let _ = writeln!(s, "Ramp int 0 {}", num(a0));
     if op.gbw_hz.is_finite() {
         let _ = writeln!(s, "Camp int 0 {}", num(1.0 / (2.0 * PI * op.gbw_hz)));

@@ -151,6 +151,12 @@ pub fn design_text(design: &Design) -> String {
         },
         spaced(op.rout_ohm)
     );
+    if op.has_dc_errors() {
+        // The DC errors extend the op-amp line only when set, so a report without them is as it
+        // was.
+        out.pop();
+        let _ = writeln!(out, ", vos {}V, ib {}A", spaced(op.vos_v), spaced(op.ib_a));
+    }
     analysis_text(&mut out, design);
     if !design.warnings.is_empty() {
         let _ = writeln!(out, "\nWarnings:");
@@ -333,6 +339,12 @@ fn analysis_text(out: &mut String, design: &Design) {
                 n.stage,
                 super::words::needs_sentence(n, needs.drift_limit_pct, &design.board.op_amp)
             );
+        }
+    }
+    if let Some(dc) = &a.dc {
+        let _ = writeln!(out, "  {}", super::words::dc_line(dc));
+        for b in dc.balance.iter().filter(|_| dc.ib_a != 0.0) {
+            let _ = writeln!(out, "  DC balance: {}", super::words::dc_balance_line(b));
         }
     }
     for w in &a.warnings {

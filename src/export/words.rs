@@ -219,3 +219,61 @@ pub fn notch_sentence(
     }
     line
 }
+
+/// The board's DC errors in one line: the output offset for the given `vos` and `ib`, the worst
+/// case over their signs and the largest share; when they are not modelled, what one millivolt of
+/// offset and one nanoampere of bias current would do at most.
+pub fn dc_line(dc: &crate::analysis::dc::DcErrors) -> String {
+    if !dc.modelled {
+        let (per_volt, per_amp) = dc.worst_per_unit();
+        return format!(
+            "DC errors not modelled (vos = ib = 0): at most {} out per 1 mV of offset, {} per \
+             1 nA of bias current",
+            eng(per_volt * 1e-3, "V"),
+            eng(per_amp * 1e-9, "V")
+        );
+    }
+    let mut line = format!(
+        "DC offset {} out for vos = {}, ib = {} (worst case ±{} over signs",
+        signed_eng(dc.offset_v, "V"),
+        eng(dc.vos_v, "V"),
+        eng(dc.ib_a, "A"),
+        eng(dc.worst_v, "V")
+    );
+    let largest = dc
+        .sources
+        .iter()
+        .max_by(|a, b| a.share_v.abs().total_cmp(&b.share_v.abs()));
+    if let Some(s) = largest.filter(|s| s.share_v != 0.0) {
+        line.push_str(&format!(
+            "; largest {} {}, {}",
+            s.reference,
+            s.what.label(),
+            eng(s.share_v, "V")
+        ));
+    }
+    line.push(')');
+    line
+}
+
+/// A value as [`eng`] writes it, with a `+` before a positive one.
+fn signed_eng(value: f64, unit: &str) -> String {
+    if value > 0.0 {
+        format!("+{}", eng(value, unit))
+    } else {
+        eng(value, unit)
+    }
+}
+
+/// A balancing resistor as a suggestion: its value, where it goes and what it cancels.
+pub fn dc_balance_line(b: &crate::analysis::dc::Balance) -> String {
+    format!(
+        "a {} resistor (nearest standard {}) in series with {}'s {} input makes the DC \
+         resistances its inputs see equal and cancels its bias-current share ({} now)",
+        eng(b.ohm, "Ω"),
+        eng(b.standard_ohm, "Ω"),
+        b.reference,
+        b.pin.label(),
+        eng(b.nulls_v, "V")
+    )
+}

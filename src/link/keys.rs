@@ -51,6 +51,8 @@ pub(crate) enum Key {
     Vnoise,
     Inoise,
     Slew,
+    Vos,
+    Ib,
     Rlevel,
     Cratio,
     Rratio,
@@ -68,6 +70,14 @@ pub(crate) enum Key {
     NoiseBand,
     Span,
 }
+
+/// The largest |vos| a link accepts, V: ten times a poor general-purpose part's worst offset
+/// (a few millivolts, common practice), so a typing slip of a unit is refused.
+pub(crate) const MAX_VOS_V: f64 = 0.1;
+
+/// The largest |ib| a link accepts, A: far beyond any op amp's input bias current (bipolar inputs
+/// draw up to a microampere, common practice), so a typing slip of a unit is refused.
+pub(crate) const MAX_IB_A: f64 = 1e-3;
 
 /// How a key's text is read; [`super::read`] implements each way once.
 #[derive(Debug, Clone, Copy)]
@@ -373,7 +383,7 @@ fn parts(value: Value) -> Vec<(String, f64)> {
 }
 
 /// Every key, in the order the writer puts them in a link.
-pub(crate) const TABLE: [Row; 44] = [
+pub(crate) const TABLE: [Row; 46] = [
     row(Key::V, "v", Parse::Version, None, |_| {
         Some(FORMAT_VERSION.to_string())
     })
@@ -588,6 +598,28 @@ pub(crate) const TABLE: [Row; 44] = [
         num_or_ideal(1.0, 1e12, "op-amp slew rate in V/s (or ideal)"),
         Some(|s, v| s.op_amp.slew_v_per_s = number(&v)),
         |s| Some(number_text(s.op_amp.slew_v_per_s)),
+    ),
+    row(
+        Key::Vos,
+        "vos",
+        num(
+            -MAX_VOS_V,
+            MAX_VOS_V,
+            "signed op-amp input offset voltage in V",
+        ),
+        Some(|s, v| s.op_amp.vos_v = number(&v)),
+        |s| Some(number_text(s.op_amp.vos_v)),
+    ),
+    row(
+        Key::Ib,
+        "ib",
+        num(
+            -MAX_IB_A,
+            MAX_IB_A,
+            "signed op-amp input bias current into each input in A",
+        ),
+        Some(|s, v| s.op_amp.ib_a = number(&v)),
+        |s| Some(number_text(s.op_amp.ib_a)),
     ),
     row(
         Key::Rlevel,

@@ -125,7 +125,7 @@ pub struct LinkState {
     pub rtol_pct: f64,
     /// Capacitor tolerance, % (`ctol`, default 5).
     pub ctol_pct: f64,
-    /// The op-amp model (`gbw`, `a0`, `rout`, `vnoise`, `inoise`, `slew`).
+    /// The op-amp model (`gbw`, `a0`, `rout`, `vnoise`, `inoise`, `slew`, `vos`, `ib`).
     pub op_amp: OpAmp,
     /// Resistor impedance level the stages aim at, Ω (`rlevel`); `None` = automatic.
     pub r_level_ohm: Option<f64>,
@@ -543,6 +543,8 @@ mod tests {
             ("vnoise", "10n"),
             ("inoise", "1p"),
             ("slew", "500k"),
+            ("vos", "0"),
+            ("ib", "0"),
             ("round", "search"),
             ("stageorder", "q-up"),
             ("runs", "1000"),

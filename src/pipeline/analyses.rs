@@ -200,6 +200,8 @@ pub struct Analyses {
     pub notches: Option<Vec<notch::NotchDepth>>,
     /// Target and achieved poles per stage.
     pub poles: Option<Vec<StagePoles>>,
+    /// The output's DC offset from the op amps' `vos` and `ib`, each source's share.
+    pub dc: Option<crate::analysis::dc::DcErrors>,
     /// Soft problems found by the analyses (a stage that clips, …).
     pub warnings: Vec<String>,
     /// Analyses that could not be done, with the reason.
@@ -423,6 +425,12 @@ pub fn analyses(design: &Design) -> Analyses {
         input_impedance,
         notches,
         poles,
+        dc: keep(
+            &mut errors,
+            board,
+            "DC errors",
+            crate::analysis::dc::board_dc(board),
+        ),
         warnings,
         errors,
         sweep,
