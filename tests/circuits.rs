@@ -1932,3 +1932,17 @@ fn a_high_q_band_pass_leaves_multiple_feedback_only_when_asked_to_stay() {
     let sk_low = one_stage(low_q, Topology::SallenKey, OpAmp::GENERIC);
     assert_eq!(sk_low.stages[0].circuit, Circuit::MfbBandPass);
 }
+
+#[test]
+fn a_state_variable_notch_without_its_zero_frequency_is_refused_under_fc() {
+    // A notch section must say where its zeros are; without fz (or with fz ≤ 0) the build is
+    // refused under the key that sets the frequencies, with a message, not a nonsense value.
+    let ch = choices(Topology::StateVariable, OpAmp::ideal());
+    for fz in [None, Some(0.0), Some(f64::NAN)] {
+        let bad = Section {
+            fz_hz: fz,
+            ..notch(1e3, 1.0, 1.0, 2e3)
+        };
+        assert_eq!(build_err(&[bad], &ch), "fc", "fz = {fz:?}");
+    }
+}

@@ -53,7 +53,8 @@ impl GainShape {
 ///
 /// # Errors
 /// `order` for a first-order band-pass section; `gain` for a zero or non-finite gain; `fc` for a
-/// frequency that is not finite and positive; `order` for a Q that is not finite and positive.
+/// frequency that is not finite and positive (under `topo=statevar` also a notch's fz);
+/// `order` for a Q that is not finite and positive.
 pub fn choose(
     topology: Topology,
     section: &Section,
@@ -91,7 +92,19 @@ pub fn choose(
             SectionKind::LowPass => Circuit::StateVariableLowPass,
             SectionKind::HighPass => Circuit::StateVariableHighPass,
             SectionKind::BandPass => Circuit::StateVariableBandPass,
-            SectionKind::Notch => Circuit::StateVariableNotch,
+            SectionKind::Notch => {
+                if !section.fz_hz.is_some_and(|fz| fz.is_finite() && fz > 0.0) {
+                    return Err(InputError::new(
+                        "fc",
+                        format!(
+                            "stage {stage_no}: a notch section needs the frequency of its zeros \
+                             as a positive number (fz = {:?})",
+                            section.fz_hz
+                        ),
+                    ));
+                }
+                Circuit::StateVariableNotch
+            }
         };
         return Ok((circuit, None));
     }
