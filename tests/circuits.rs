@@ -285,6 +285,9 @@ fn cases() -> Vec<(Circuit, Section, Topology, Textbook)> {
             rc_hp_divided,
         ),
     ]
+    .into_iter()
+    .chain(state_variable_cases())
+    .collect()
 }
 
 #[test]
@@ -1745,5 +1748,201 @@ fn demo_links_design_without_error() {
                 .any(|p| p.role == "input divider, upper"),
             "{link}: stage 1 has the divider"
         );
+    }
+}
+
+/// State-variable (two-integrator loop) stage, from the node equations at the three virtual
+/// grounds m1, m2, m3 (ideal op amps, V− = 0): with v3 = −(Rf/Ri)·v2 and G = Rf/(Ri·R1),
+/// v1/vin = −(s²·Ca/C1 + s/(Rb·C1) + G/(Rd·C1·C2)) / (s² + s/(Rq·C1) + G/(R2·C1·C2)); the
+/// feed-forward parts a stage lacks drop out of the numerator.
+fn state_variable(n: &StageNetlist, s: Complex64) -> Complex64 {
+    use rolloff::topology::state_variable::roles;
+    let (rq, c1, r1) = (role(n, roles::RQ), role(n, roles::C1), role(n, roles::R1));
+    let (r2, c2) = (role(n, roles::R2), role(n, roles::C2));
+    let (ri, rf) = (role(n, roles::RI), role(n, roles::RF));
+    let g = rf / (ri * r1);
+    let a2 = role_opt(n, roles::CA).map_or(0.0, |ca| ca / c1);
+    let a1 = role_opt(n, roles::RB).map_or(0.0, |rb| 1.0 / (rb * c1));
+    let a0 = role_opt(n, roles::RD).map_or(0.0, |rd| g / (rd * c1 * c2));
+    -(s * s * a2 + s * a1 + a0) / (s * s + s / (rq * c1) + g / (r2 * c1 * c2))
+}
+
+/// A notch section: zeros at `fz_hz`, `gain` the larger far-side gain.
+fn notch(f0_hz: f64, q: f64, gain: f64, fz_hz: f64) -> Section {
+    Section {
+        fz_hz: Some(fz_hz),
+        ..section(SectionKind::Notch, f0_hz, Some(q), gain)
+    }
+}
+
+/// The state-variable stage on every kind of second-order section under `topo=statevar`:
+/// low-pass, high-pass, band-pass at Q = 0.7, 5 and 28 (the 40 kHz case of a narrow band-pass),
+/// and notches with the zeros above, below and at f0.
+fn state_variable_cases() -> Vec<(Circuit, Section, Topology, Textbook)> {
+    use SectionKind::*;
+    let sv = Topology::StateVariable;
+    vec![
+        (
+            Circuit::StateVariableLowPass,
+            section(LowPass, 1e3, Some(FRAC_1_SQRT_2), 1.0),
+            sv,
+            state_variable as Textbook,
+        ),
+        (
+            Circuit::StateVariableLowPass,
+            section(LowPass, 2e3, Some(3.0), 4.0),
+            sv,
+            state_variable,
+        ),
+        (
+            Circuit::StateVariableHighPass,
+            section(HighPass, 500.0, Some(1.3), 1.0),
+            sv,
+            state_variable,
+        ),
+        (
+            Circuit::StateVariableBandPass,
+            section(BandPass, 1e3, Some(0.7), 1.0),
+            sv,
+            state_variable,
+        ),
+        (
+            Circuit::StateVariableBandPass,
+            section(BandPass, 10e3, Some(5.0), 2.0),
+            sv,
+            state_variable,
+        ),
+        (
+            Circuit::StateVariableBandPass,
+            section(BandPass, 40e3, Some(28.0), 1.0),
+            sv,
+            state_variable,
+        ),
+        (
+            Circuit::StateVariableNotch,
+            notch(1e3, 0.9, 1.0, 2.2e3),
+            sv,
+            state_variable,
+        ),
+        (
+            Circuit::StateVariableNotch,
+            notch(2e3, 1.4, 1.0, 900.0),
+            sv,
+            state_variable,
+        ),
+        (
+            Circuit::StateVariableNotch,
+            notch(50.0, 5.0, 1.0, 50.0),
+            sv,
+            state_variable,
+        ),
+    ]
+}
+
+#[test]
+fn state_variable_stages_dense_and_banded_solves_equal_the_textbook_transfer_function() {
+    // Source: the textbook transfer function of the two-integrator loop from the circuit's nodal
+    // equations (ideal op amps), evaluated on the board's part values; the dense reference solve
+    // (`mna::transfer`) and the banded production path (`analysis::built::sweep`) both within
+    // 1e-9 relative, 10 Hz – 10 MHz, E-series parts.
+    use rolloff::analysis::built::{self, BoardSolver};
+    for (circuit, section, topology, textbook) in state_variable_cases() {
+        let board = one_stage(section, topology, OpAmp::ideal());
+        let stage = &board.stages[0];
+        assert_eq!(stage.circuit, circuit, "{section:?}");
+        assert_eq!(
+            stage.netlist.op_amps().count(),
+            3,
+            "{circuit:?}: three op amps"
+        );
+        let freqs = log_sweep(10.0, 10e6, 121);
+        let mut solver = BoardSolver::of_board(&board).expect("the production solver takes it");
+        let banded = built::sweep(&mut solver, &freqs).expect("the production path solves");
+        for (&f, production) in freqs.iter().zip(banded.h) {
+            let s = jw(f);
+            let dense = mna::transfer(&stage.netlist, &board.op_amp, s).expect("solves");
+            let expect = textbook(&stage.netlist, s);
+            for (path, ours) in [("dense", dense), ("banded", production)] {
+                let err = rel_err(ours, expect);
+                assert!(
+                    err < 1e-9,
+                    "{circuit:?} at {f} Hz ({path}): {ours} vs textbook {expect} (rel {err:e})"
+                );
+            }
+        }
+        // The notch zeros: the textbook numerator vanishes at the reported fz (to the arithmetic
+        // of the closed form), and the reported fz holds the target within 1 % on E-series parts.
+        if let (Some(fz), Some(target)) = (stage.achieved_fz_hz, section.fz_hz) {
+            let h = textbook(&stage.netlist, jw(fz)).norm();
+            let far = stage.achieved_gain.abs();
+            assert!(h < 1e-9 * far, "{circuit:?}: |H(fz)| = {h:e}");
+            assert!(
+                (fz / target - 1.0).abs() < 0.01,
+                "{circuit:?}: fz {fz} vs {target}"
+            );
+        }
+    }
+}
+
+#[test]
+fn a_high_q_band_pass_leaves_multiple_feedback_only_when_asked_to_stay() {
+    // Common practice: a multiple-feedback band-pass needs a resistor spread of about 4Q² (with
+    // equal capacitors, R3 over R1‖R2 is w0²C²R3² = 4Q²); past Q = 10 the default (topo=sk)
+    // builds the band-pass as a state-variable stage, whose spread is Q, and says so; topo=mfb
+    // keeps the multiple-feedback stage and suggests topo=statevar.
+    let high_q = section(SectionKind::BandPass, 40e3, Some(28.0), 1.0);
+    let low_q = section(SectionKind::BandPass, 10e3, Some(5.0), 2.0);
+    let sk = one_stage(high_q, Topology::SallenKey, OpAmp::GENERIC);
+    assert_eq!(sk.stages[0].circuit, Circuit::StateVariableBandPass);
+    let words = |b: &Board| [b.warnings.clone(), b.stages[0].warnings.clone()].concat();
+    assert!(
+        words(&sk)
+            .iter()
+            .any(|w| w.contains("state-variable band-pass")),
+        "{:?}",
+        words(&sk)
+    );
+    let spread = |b: &Board| {
+        let r: Vec<f64> = b.stages[0]
+            .netlist
+            .parts
+            .iter()
+            .filter(|p| p.kind == PartKind::Resistor)
+            .map(|p| p.value)
+            .collect();
+        r.iter().cloned().fold(0.0, f64::max) / r.iter().cloned().fold(f64::INFINITY, f64::min)
+    };
+    assert!(
+        spread(&sk) < 2.0 * 28.0,
+        "state-variable spread {}",
+        spread(&sk)
+    );
+    let mfb = one_stage(high_q, Topology::MultipleFeedback, OpAmp::GENERIC);
+    assert_eq!(mfb.stages[0].circuit, Circuit::MfbBandPass);
+    assert!(
+        words(&mfb).iter().any(|w| w.contains("topo=statevar")),
+        "{:?}",
+        words(&mfb)
+    );
+    assert!(
+        spread(&mfb) > 4.0 * 28.0 * 28.0 * 0.9,
+        "MFB spread {}",
+        spread(&mfb)
+    );
+    let sk_low = one_stage(low_q, Topology::SallenKey, OpAmp::GENERIC);
+    assert_eq!(sk_low.stages[0].circuit, Circuit::MfbBandPass);
+}
+
+#[test]
+fn a_state_variable_notch_without_its_zero_frequency_is_refused_under_fc() {
+    // A notch section must say where its zeros are; without fz (or with fz ≤ 0) the build is
+    // refused under the key that sets the frequencies, with a message, not a nonsense value.
+    let ch = choices(Topology::StateVariable, OpAmp::ideal());
+    for fz in [None, Some(0.0), Some(f64::NAN)] {
+        let bad = Section {
+            fz_hz: fz,
+            ..notch(1e3, 1.0, 1.0, 2e3)
+        };
+        assert_eq!(build_err(&[bad], &ch), "fc", "fz = {fz:?}");
     }
 }

@@ -159,6 +159,7 @@ fn topology_words(topology: Topology, n: usize) -> String {
     let name = match topology {
         Topology::SallenKey => "Sallen-Key",
         Topology::MultipleFeedback => "multiple-feedback",
+        Topology::StateVariable => "state-variable",
     };
     if n == 1 {
         format!("1 {name} stage")

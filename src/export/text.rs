@@ -28,6 +28,7 @@ pub fn summary_line(design: &Design) -> String {
     let topology = match design.state.topology {
         crate::topology::Topology::SallenKey => "Sallen-Key",
         crate::topology::Topology::MultipleFeedback => "multiple-feedback",
+        crate::topology::Topology::StateVariable => "state-variable",
     };
     let stage_word = if n_stages == 1 { "stage" } else { "stages" };
     format!(

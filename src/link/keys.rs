@@ -279,11 +279,12 @@ pub(crate) const MARGINS: [(&str, MarginPlacement); 3] = [
 ];
 const MARGIN_NAMES: [&str; 3] = names(&MARGINS);
 
-const TOPOLOGIES: [(&str, Topology); 2] = [
+const TOPOLOGIES: [(&str, Topology); 3] = [
     ("sk", Topology::SallenKey),
     ("mfb", Topology::MultipleFeedback),
+    ("statevar", Topology::StateVariable),
 ];
-const TOPOLOGY_NAMES: [&str; 2] = names(&TOPOLOGIES);
+const TOPOLOGY_NAMES: [&str; 3] = names(&TOPOLOGIES);
 
 const SERIES: [(&str, Series); 7] = [
     ("e6", Series::E6),

@@ -9,6 +9,12 @@ use crate::section::{Section, SectionKind};
 /// A gain within this of 1 is built as a follower.
 const UNITY_TOLERANCE: f64 = 1e-3;
 
+/// The highest band-pass Q the multiple-feedback band-pass is given by default. Its resistor
+/// spread is 4Q² with equal capacitors (R3 over R1‖R2, from w0²·C²·R3² = 4Q²), so above Q = 10
+/// it passes 400:1, four times what the 1 kΩ–100 kΩ habit holds, and its Q needs an open-loop
+/// gain well above 2Q² at f0; the state-variable stage needs a spread of only Q.
+pub const MFB_BAND_PASS_MAX_Q: f64 = 10.0;
+
 /// How a non-inverting stage (Sallen-Key, buffered RC) sets its passband gain K.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub(crate) enum GainShape {
@@ -35,7 +41,10 @@ impl GainShape {
 
 /// The circuit for a section under a topology choice, and a note when the choice had to be
 /// changed (a band-pass section under `topo=sk` is built as multiple feedback: there is no
-/// Sallen-Key band-pass here).
+/// Sallen-Key band-pass here; above Q = [`MFB_BAND_PASS_MAX_Q`] it is built as a state-variable
+/// band-pass instead, and under `topo=mfb` such a section stays multiple feedback with a note
+/// that suggests `topo=statevar`). Under `topo=statevar` every second-order section is a
+/// state-variable stage and first-order sections get the buffered RC stages.
 ///
 /// Every circuit takes any gain magnitude > 0: inverting ones through their resistor (or
 /// capacitor) ratio, non-inverting ones (Sallen-Key, buffered RC) as a follower (|gain| = 1),
@@ -44,7 +53,8 @@ impl GainShape {
 ///
 /// # Errors
 /// `order` for a first-order band-pass section; `gain` for a zero or non-finite gain; `fc` for a
-/// frequency that is not finite and positive; `order` for a Q that is not finite and positive.
+/// frequency that is not finite and positive (under `topo=statevar` also a notch's fz);
+/// `order` for a Q that is not finite and positive.
 pub fn choose(
     topology: Topology,
     section: &Section,
@@ -77,23 +87,78 @@ pub fn choose(
         ));
     }
     let mut note = None;
+    if topology == Topology::StateVariable && section.order() == 2 {
+        let circuit = match section.kind {
+            SectionKind::LowPass => Circuit::StateVariableLowPass,
+            SectionKind::HighPass => Circuit::StateVariableHighPass,
+            SectionKind::BandPass => Circuit::StateVariableBandPass,
+            SectionKind::Notch => {
+                if !section.fz_hz.is_some_and(|fz| fz.is_finite() && fz > 0.0) {
+                    return Err(InputError::new(
+                        "fc",
+                        format!(
+                            "stage {stage_no}: a notch section needs the frequency of its zeros \
+                             as a positive number (fz = {:?})",
+                            section.fz_hz
+                        ),
+                    ));
+                }
+                Circuit::StateVariableNotch
+            }
+        };
+        return Ok((circuit, None));
+    }
     let circuit = match (section.order(), section.kind, topology) {
-        (2, SectionKind::LowPass, Topology::SallenKey) => Circuit::SallenKeyLowPass,
+        (2, SectionKind::LowPass, Topology::SallenKey | Topology::StateVariable) => {
+            Circuit::SallenKeyLowPass
+        }
         (2, SectionKind::LowPass, Topology::MultipleFeedback) => Circuit::MfbLowPass,
-        (2, SectionKind::HighPass, Topology::SallenKey) => Circuit::SallenKeyHighPass,
+        (2, SectionKind::HighPass, Topology::SallenKey | Topology::StateVariable) => {
+            Circuit::SallenKeyHighPass
+        }
         (2, SectionKind::HighPass, Topology::MultipleFeedback) => Circuit::MfbHighPass,
         (2, SectionKind::BandPass, topology) => {
-            if topology == Topology::SallenKey {
-                note = Some(format!(
-                    "stage {stage_no}: there is no Sallen-Key band-pass here; built as a \
-                     multiple-feedback band-pass (it inverts)"
-                ));
+            let q = section.q.unwrap_or(0.5);
+            let high_q = q > MFB_BAND_PASS_MAX_Q;
+            match topology {
+                Topology::MultipleFeedback if high_q => {
+                    note = Some(format!(
+                        "stage {stage_no}: a multiple-feedback band-pass at Q = {q:.3} needs a \
+                         resistor spread of about 4Q² = {:.0}:1 and an op amp with open-loop \
+                         gain well above 2Q² = {:.0} at f0; topo=statevar builds it with a \
+                         spread of Q",
+                        4.0 * q * q,
+                        2.0 * q * q
+                    ));
+                    Circuit::MfbBandPass
+                }
+                Topology::MultipleFeedback => Circuit::MfbBandPass,
+                _ if high_q => {
+                    note = Some(format!(
+                        "stage {stage_no}: there is no Sallen-Key band-pass here, and at Q = \
+                         {q:.3} (above {MFB_BAND_PASS_MAX_Q}) a multiple-feedback band-pass \
+                         would need a resistor spread of about 4Q² = {:.0}:1; built as a \
+                         state-variable band-pass (three op amps, it inverts)",
+                        4.0 * q * q
+                    ));
+                    Circuit::StateVariableBandPass
+                }
+                _ => {
+                    note = Some(format!(
+                        "stage {stage_no}: there is no Sallen-Key band-pass here; built as a \
+                         multiple-feedback band-pass (it inverts)"
+                    ));
+                    Circuit::MfbBandPass
+                }
             }
-            Circuit::MfbBandPass
         }
-        (_, SectionKind::LowPass, Topology::SallenKey) => Circuit::BufferedLowPass,
+        (_, SectionKind::LowPass, Topology::SallenKey | Topology::StateVariable) => {
+            Circuit::BufferedLowPass
+        }
         (_, SectionKind::LowPass, Topology::MultipleFeedback) => Circuit::InvertingLowPass,
-        (_, SectionKind::HighPass, Topology::SallenKey) => Circuit::BufferedHighPass,
+        (_, SectionKind::HighPass, Topology::SallenKey | Topology::StateVariable) => {
+            Circuit::BufferedHighPass
+        }
         (_, SectionKind::HighPass, Topology::MultipleFeedback) => Circuit::InvertingHighPass,
         (_, SectionKind::BandPass, _) => {
             return Err(InputError::new(

@@ -31,6 +31,7 @@ mod roots;
 pub mod sallen_key;
 pub mod search;
 mod stage;
+pub mod state_variable;
 
 pub use choose::choose;
 pub(crate) use roots::{pick_root, positive_roots};
@@ -51,6 +52,9 @@ pub enum Topology {
     SallenKey,
     /// Multiple feedback (infinite-gain), link value `mfb`.
     MultipleFeedback,
+    /// The three-op-amp state-variable (two-integrator loop) biquad for every second-order
+    /// section, link value `statevar` ([`state_variable`]).
+    StateVariable,
 }
 
 impl Topology {
@@ -59,6 +63,7 @@ impl Topology {
         match self {
             Topology::SallenKey => "sk",
             Topology::MultipleFeedback => "mfb",
+            Topology::StateVariable => "statevar",
         }
     }
 }
@@ -89,11 +94,21 @@ pub enum Circuit {
     InvertingLowPass,
     /// First-order inverting high-pass: series C–R in, R feedback ([`first_order`]).
     InvertingHighPass,
+    /// State-variable (two-integrator loop) low-pass, three op amps, inverting
+    /// ([`state_variable`]).
+    StateVariableLowPass,
+    /// State-variable high-pass, three op amps, inverting ([`state_variable`]).
+    StateVariableHighPass,
+    /// State-variable band-pass, three op amps, inverting; any Q ([`state_variable`]).
+    StateVariableBandPass,
+    /// State-variable notch (zeros above, below or at f0), three op amps, inverting
+    /// ([`state_variable`]).
+    StateVariableNotch,
 }
 
 impl Circuit {
     /// A short stable name for JSON and reports: `sk-lp`, `sk-hp`, `mfb-lp`, `mfb-hp`, `mfb-bp`,
-    /// `rc-lp`, `rc-hp`, `inv-lp`, `inv-hp`.
+    /// `rc-lp`, `rc-hp`, `inv-lp`, `inv-hp`, `sv-lp`, `sv-hp`, `sv-bp`, `sv-notch`.
     pub fn key(self) -> &'static str {
         match self {
             Circuit::SallenKeyLowPass => "sk-lp",
@@ -105,6 +120,10 @@ impl Circuit {
             Circuit::BufferedHighPass => "rc-hp",
             Circuit::InvertingLowPass => "inv-lp",
             Circuit::InvertingHighPass => "inv-hp",
+            Circuit::StateVariableLowPass => "sv-lp",
+            Circuit::StateVariableHighPass => "sv-hp",
+            Circuit::StateVariableBandPass => "sv-bp",
+            Circuit::StateVariableNotch => "sv-notch",
         }
     }
 
@@ -120,6 +139,10 @@ impl Circuit {
             Circuit::BufferedHighPass => "buffered CR high-pass",
             Circuit::InvertingLowPass => "inverting first-order low-pass",
             Circuit::InvertingHighPass => "inverting first-order high-pass",
+            Circuit::StateVariableLowPass => "state-variable low-pass",
+            Circuit::StateVariableHighPass => "state-variable high-pass",
+            Circuit::StateVariableBandPass => "state-variable band-pass",
+            Circuit::StateVariableNotch => "state-variable notch",
         }
     }
 
@@ -143,6 +166,10 @@ impl Circuit {
                 | Circuit::MfbBandPass
                 | Circuit::InvertingLowPass
                 | Circuit::InvertingHighPass
+                | Circuit::StateVariableLowPass
+                | Circuit::StateVariableHighPass
+                | Circuit::StateVariableBandPass
+                | Circuit::StateVariableNotch
         )
     }
 
@@ -169,6 +196,10 @@ impl Circuit {
             Circuit::BufferedHighPass => &first_order::BufferedHighPass,
             Circuit::InvertingLowPass => &first_order::InvertingLowPass,
             Circuit::InvertingHighPass => &first_order::InvertingHighPass,
+            Circuit::StateVariableLowPass => &state_variable::LOW_PASS,
+            Circuit::StateVariableHighPass => &state_variable::HIGH_PASS,
+            Circuit::StateVariableBandPass => &state_variable::BAND_PASS,
+            Circuit::StateVariableNotch => &state_variable::NOTCH,
         }
     }
 }
@@ -416,6 +447,11 @@ pub(crate) trait Realization: Sync {
     }
     /// Sets the free capacitors from one trial of the level scan ([`CapacitorTrial`]).
     fn set_capacitors(&self, target: &Target, values: &mut [f64], trial: &CapacitorTrial);
+    /// The stage netlist for these values; the default places the layout's one op amp
+    /// ([`Layout::netlist`]), a circuit with several op amps places them all.
+    fn netlist(&self, layout: &Layout, values: &[f64], ideal: &[f64]) -> StageNetlist {
+        layout.netlist(values, ideal)
+    }
 }
 
 /// The design freedoms a stage needs (the board's choices without the op amp and overrides).

@@ -214,7 +214,7 @@ pub fn design_stage(
         stage_no,
     );
     warnings.extend(round_warnings);
-    let netlist = layout.netlist(&values, &ideal);
+    let netlist = realization.netlist(&layout, &values, &ideal);
     Ok(StageDesign {
         circuit,
         ideal,
