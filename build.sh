@@ -15,6 +15,8 @@
 # Every install step runs only when its tool is missing. Environment knobs:
 #   ROLLOFF_WASM_OPT=0   skip wasm-opt (from the npm package `binaryen`; Debian's binaryen 108
 #                        corrupts wasm-bindgen 0.2.130 output, so it is never used)
+#   ROLLOFF_WASM_OPT_LEVEL=-O3   wasm-opt's level (-Oz made the core only 1 % smaller than -O3)
+#   ROLLOFF_PAGE_RUSTFLAGS=...   extra rustc flags for the page's wasm build (size experiments)
 #   PORT=8000            port for `serve`
 # Knobs of the long test runs (`test` runs the bounded defaults):
 #   ROLLOFF_FUZZ_LINKS=1000000         links of tests/cli_fuzz.rs's every-command fuzzer (1,200)
@@ -101,15 +103,27 @@ build_page() {
     need_wasm_target
     need_bindgen
     log "building the wasm core (release)"
-    cargo build --release --lib --target "$WASM_TARGET"
+    # ROLLOFF_PAGE_RUSTFLAGS adds code-generation flags to the page's build, for size experiments
+    # (RUSTFLAGS replaces the target's rustflags of .cargo/config.toml, so simd128 is repeated).
+    # The release settings stay the page's: measured against them in Chromium (DEVELOPERS.md,
+    # "The page's wasm"), `-C llvm-args=-inline-threshold=0 -C llvm-args=-unroll-threshold=30`
+    # with dependencies at opt-level z cut the wasm by 13 % but made the study's kernel about
+    # 1.4× slower; dependencies at opt-level z alone cut 2.5 % and made a plot's drawing 30 %
+    # slower.
+    if [ -n "${ROLLOFF_PAGE_RUSTFLAGS:-}" ]; then
+        RUSTFLAGS="-C target-feature=+simd128 $ROLLOFF_PAGE_RUSTFLAGS" \
+            cargo build --release --lib --target "$WASM_TARGET"
+    else
+        cargo build --release --lib --target "$WASM_TARGET"
+    fi
     rm -rf "$PKG_DIR"
     mkdir -p "$PKG_DIR"
     wasm-bindgen --target no-modules --no-typescript --out-dir "$PKG_DIR" --out-name rolloff \
         "target/$WASM_TARGET/release/rolloff.wasm"
     local wasm="$PKG_DIR/rolloff_bg.wasm"
     if need_wasm_opt; then
-        log "wasm-opt -O3"
-        "$BINARYEN_DIR/node_modules/.bin/wasm-opt" -O3 "$wasm" -o "$PKG_DIR/rolloff_opt.wasm"
+        log "wasm-opt ${ROLLOFF_WASM_OPT_LEVEL:--O3}"
+        "$BINARYEN_DIR/node_modules/.bin/wasm-opt" "${ROLLOFF_WASM_OPT_LEVEL:--O3}" "$wasm" -o "$PKG_DIR/rolloff_opt.wasm"
         wasm="$PKG_DIR/rolloff_opt.wasm"
     fi
     local tmp="$OUT_JS.tmp"
@@ -123,14 +137,48 @@ build_page() {
         cat <<'EOF'
 /* When each step of opening finished, ms since navigation start (read by the benchmark). */
 var rolloffOpening = { script: performance.now() };
+/* The wasm core starts while its bytes are still being decoded: the base64 text is decoded in
+ * pieces into a stream that V8 compiles as it arrives (streaming compilation works on other
+ * threads), so decoding and compiling overlap instead of following each other. A browser without
+ * streaming compilation or Uint8Array.fromBase64 decodes it whole and compiles the bytes. */
 var rolloffReady = (function () {
-  var text = atob(ROLLOFF_WASM_BASE64);
-  var bytes = new Uint8Array(text.length);
-  for (var i = 0; i < text.length; i++) bytes[i] = text.charCodeAt(i);
+  var text = ROLLOFF_WASM_BASE64;
   ROLLOFF_WASM_BASE64 = null;
-  rolloffOpening.decoded = performance.now();
-  return wasm_bindgen({ module_or_path: bytes }).then(function () {
+  var PIECE = 1 << 18;   // base64 characters per piece (a multiple of 4): 192 kB of wasm
+  function decodeWhole() {
+    if (typeof Uint8Array.fromBase64 === 'function') return Uint8Array.fromBase64(text);
+    var raw = atob(text);
+    var bytes = new Uint8Array(raw.length);
+    for (var i = 0; i < raw.length; i++) bytes[i] = raw.charCodeAt(i);
+    return bytes;
+  }
+  var compiled;
+  if (typeof WebAssembly.compileStreaming === 'function' && typeof Uint8Array.fromBase64 === 'function' &&
+      typeof ReadableStream === 'function' && typeof Response === 'function') {
+    var at = 0;
+    var stream = new ReadableStream({
+      pull: function (controller) {
+        controller.enqueue(Uint8Array.fromBase64(text.slice(at, at + PIECE)));
+        at += PIECE;
+        if (at >= text.length) {
+          text = null;
+          rolloffOpening.decoded = performance.now();
+          controller.close();
+        }
+      },
+    });
+    compiled = WebAssembly.compileStreaming(new Response(stream, { headers: { 'Content-Type': 'application/wasm' } }));
+  } else {
+    var bytes = decodeWhole();
+    text = null;
+    rolloffOpening.decoded = performance.now();
+    compiled = WebAssembly.compile(bytes);
+  }
+  return compiled.then(function (module) {
     rolloffOpening.compiled = performance.now();
+    return wasm_bindgen({ module_or_path: module });
+  }).then(function () {
+    rolloffOpening.instantiated = performance.now();
     return wasm_bindgen;
   });
 })();

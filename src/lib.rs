@@ -34,6 +34,7 @@ pub mod response;
 pub mod schematic;
 pub mod section;
 pub mod sections;
+pub mod sort;
 pub mod spec;
 pub mod topology;
 pub mod transform;

@@ -66,7 +66,7 @@ pub fn sort_ascending_q(sections: &mut [Section]) {
         const LOW: u64 = (1 << 20) - 1;
         f64::from_bits((q.to_bits() + (1 << 19)) & !LOW)
     }
-    sections.sort_by(|a, b| {
+    crate::sort::sort_by(sections, |a, b| {
         let qa = coarse(a.q.unwrap_or(f64::NEG_INFINITY));
         let qb = coarse(b.q.unwrap_or(f64::NEG_INFINITY));
         qa.total_cmp(&qb).then(a.f0_hz.total_cmp(&b.f0_hz))

@@ -16,6 +16,7 @@ use web_sys::HtmlCanvasElement;
 
 use crate::analysis::tolerance::MonteCarlo;
 use crate::app::{self as page, PageModel, View};
+use crate::fmath;
 use crate::plot::{self, Look, PlotKind, Theme};
 use crate::schematic;
 
@@ -436,4 +437,95 @@ pub fn profile_evaluate(query: &str) -> JsValue {
         .map(|&(step, ms)| Lap { step, ms })
         .collect();
     to_js(&laps)
+}
+
+/// The study-kernel benchmark's board: an 8th-order Butterworth low-pass as four unity-gain
+/// Sallen-Key stages at 1 kHz, the same as the native benchmark's (`benches/montecarlo.rs`), so
+/// that the two figures are of one computation.
+fn kernel_bench_study(runs: usize) -> Option<(MonteCarlo, usize, usize)> {
+    use crate::analysis::tolerance::{
+        CutoffDefinition, MonteCarloSettings, PartDistribution, Tolerances,
+    };
+    use crate::board::{Board, BuildChoices};
+    use crate::section::{Section, SectionKind};
+    use crate::spec::{Edge, Mask, ResponseClass};
+    const N_POINTS: usize = 200;
+    // Butterworth pole Q values of order 8: 1 / (2 sin((2k − 1)π/16)), k = 1..4.
+    let sections: Vec<Section> = (1..=4)
+        .map(|k| Section {
+            kind: SectionKind::LowPass,
+            f0_hz: 1000.0,
+            q: Some(1.0 / (2.0 * fmath::sin((2 * k - 1) as f64 * std::f64::consts::PI / 16.0))),
+            gain: 1.0,
+        })
+        .rev()
+        .collect();
+    let board = Board::build(&sections, &BuildChoices::default()).ok()?;
+    let settings = MonteCarloSettings {
+        runs,
+        seed: 1,
+        tolerances: Tolerances {
+            distribution: PartDistribution::Gaussian { sigmas: 3.0 },
+            resistor_pct: 1.0,
+            capacitor_pct: 5.0,
+            overrides: vec![],
+        },
+        freqs_hz: (0..N_POINTS)
+            .map(|i| fmath::powf(10.0, 1.0 + 4.0 * i as f64 / (N_POINTS - 1) as f64))
+            .collect(),
+        percentiles: vec![5.0, 50.0, 95.0],
+        cutoff: CutoffDefinition::Attenuation { db: 3.0103 },
+        class: ResponseClass::LowPass,
+        reference_gain: 1.0,
+        passband_ref_hz: 0.0,
+    };
+    let mask = Mask {
+        pass: Edge::Single(800.0),
+        apass_db: 1.0,
+        stop: Edge::Single(3000.0),
+        astop_db: 60.0,
+    };
+    let n_stages = board.stages.len();
+    let study = MonteCarlo::new(&board, Some(&mask), settings).ok()?;
+    Some((study, n_stages, N_POINTS))
+}
+
+#[derive(Serialize)]
+struct KernelBench {
+    runs: usize,
+    stages: usize,
+    points: usize,
+    /// The time of each `step(runs)`, ms, in order: the first ones run before V8 has optimised
+    /// the kernel.
+    ms: Vec<f64>,
+}
+
+/// Times the tolerance-study kernel as the native criterion benchmark `montecarlo_kernel` does:
+/// `repeats` fresh studies of the benchmark board, each timed over one `step(runs)` (set-up
+/// excluded). Stage-evaluations per second = runs × stages × points / time, the figure the
+/// native benchmark prints (for the page's benchmark, tests/browser/bench.js).
+#[wasm_bindgen]
+pub fn bench_study_kernel(runs: usize, repeats: usize) -> JsValue {
+    let performance = web_sys::window().and_then(|w| w.performance());
+    let clock = move || performance.as_ref().map_or(0.0, |p| p.now());
+    let mut out = KernelBench {
+        runs,
+        stages: 0,
+        points: 0,
+        ms: Vec::new(),
+    };
+    for _ in 0..repeats {
+        let Some((mut study, n_stages, n_points)) = kernel_bench_study(runs) else {
+            return failure("the benchmark board does not build");
+        };
+        out.stages = n_stages;
+        out.points = n_points;
+        let t0 = clock();
+        let progress = study.step(runs);
+        out.ms.push(clock() - t0);
+        if progress.done != runs {
+            return failure("the benchmark study did not run every run");
+        }
+    }
+    to_js(&out)
 }

@@ -290,7 +290,7 @@ pub fn stages_noise(
             },
         })
         .collect();
-    out_sources.sort_by(|a, b| {
+    crate::sort::sort_by(&mut out_sources, |a, b| {
         b.share
             .partial_cmp(&a.share)
             .unwrap_or(std::cmp::Ordering::Equal)
@@ -392,7 +392,7 @@ pub(crate) fn integrate_log_f<E>(
                 .filter(|u| *u > ua && *u < ub),
         )
         .collect();
-    edges.sort_by(f64::total_cmp);
+    crate::sort::sort_floats(&mut edges);
     edges.dedup_by(|x, y| (*x - *y).abs() <= 1e-12 * (ub - ua));
     let mut value = vec![0.0; n];
     let mut panel = |a: f64, b: f64| -> Result<Panel, E> {

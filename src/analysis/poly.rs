@@ -341,7 +341,7 @@ fn merge_clusters(z: &mut [Complex64]) {
 }
 
 fn sorted(mut v: Vec<Complex64>) -> Vec<Complex64> {
-    v.sort_by(|a, b| {
+    crate::sort::sort_by(&mut v, |a, b| {
         fmath::cnorm(*a)
             .partial_cmp(&fmath::cnorm(*b))
             .unwrap_or(std::cmp::Ordering::Equal)

@@ -89,7 +89,7 @@ pub(crate) fn newton_real(d: &[f64], mut z: f64) -> Option<f64> {
 /// f0 (rad/s) and Q of the `order` smallest poles among `poles` (rad/s). Q is NaN for order 1.
 pub(crate) fn dominant_w0_q(poles: &[Complex64], order: usize) -> Option<(f64, f64)> {
     let mut p: Vec<Complex64> = poles.to_vec();
-    p.sort_by(|a, b| {
+    crate::sort::sort_by(&mut p, |a, b| {
         fmath::cnorm(*a)
             .partial_cmp(&fmath::cnorm(*b))
             .unwrap_or(std::cmp::Ordering::Equal)

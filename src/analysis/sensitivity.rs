@@ -93,7 +93,7 @@ pub fn stage_sensitivities(
     })?;
     // The dominant poles themselves (in z = s/ρ).
     let mut sorted = roots.clone();
-    sorted.sort_by(|a, b| {
+    crate::sort::sort_by(&mut sorted, |a, b| {
         fmath::cnorm(*a)
             .partial_cmp(&fmath::cnorm(*b))
             .unwrap_or(std::cmp::Ordering::Equal)

@@ -306,7 +306,7 @@ pub fn analyses(design: &Design) -> Analyses {
                 share: s.share,
             })
             .collect();
-        sources.sort_by(|a, b| b.share.total_cmp(&a.share));
+        crate::sort::sort_by(&mut sources, |a, b| b.share.total_cmp(&a.share));
         NoiseSummary {
             band_hz: report.band_hz,
             rms_v: report.rms_v,

@@ -112,7 +112,7 @@ pub fn as_built(design: &Design, solver: &mut BoardSolver, passband_gain_db: f64
         }
     }
     grid.retain(|f| f.is_finite() && *f > 0.0);
-    grid.sort_by(f64::total_cmp);
+    crate::sort::sort_floats(&mut grid);
     grid.dedup();
     // The band's outer edges: inside an equiripple passband the troughs touch the cutoff level
     // (and, built, may dip through it), which is not a corner.

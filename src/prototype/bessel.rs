@@ -219,7 +219,7 @@ fn bessel_delay_roots(order: usize) -> Vec<Complex64> {
             }
         }
     }
-    roots.sort_by(|a, b| a.im.total_cmp(&b.im));
+    crate::sort::sort_by(&mut roots, |a, b| a.im.total_cmp(&b.im));
     let mut out: Vec<Complex64> = roots[order - order / 2..].to_vec();
     if order % 2 == 1 {
         let middle = roots[order / 2];

@@ -380,7 +380,7 @@ fn chebyshev_groups(order: usize, ripple_db: f64) -> Vec<PoleGroup> {
 
 /// Orders conjugate pairs by increasing imaginary part and puts real poles last.
 pub(super) fn sort_pairs(groups: &mut [PoleGroup]) {
-    groups.sort_by(|a, b| {
+    crate::sort::sort_by(groups, |a, b| {
         let key = |g: &PoleGroup| match g {
             PoleGroup::Conjugate(p) => (0, p.im),
             PoleGroup::RealPair(x, _) => (1, -x),

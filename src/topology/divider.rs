@@ -310,7 +310,9 @@ pub(crate) fn pair_choices(
             pairs.extend(near(u_star, 2).into_iter().map(|u| (u, l)));
         }
     }
-    pairs.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.total_cmp(&b.1)));
+    crate::sort::sort_by(&mut pairs, |a, b| {
+        a.0.total_cmp(&b.0).then(a.1.total_cmp(&b.1))
+    });
     pairs.dedup();
     pairs
         .into_iter()

@@ -7,10 +7,14 @@
 //     when the new pixels are on screen),
 //   - a 10,000-run tolerance study: its duration and the longest gap between animation frames
 //     while it runs (the page stays responsive when that gap stays near one frame),
+//   - the tolerance-study kernel's stage-evaluations/s in wasm, on the native criterion
+//     benchmark's board (ROLLOFF_BENCH_NATIVE=1 also runs `cargo bench --bench montecarlo` after
+//     it and prints both, measured in the same minutes),
 //   - the size of the wasm core (raw and gzipped) and of the page's script.
 // Run: ./build.sh bench   (or: ./build.sh && node tests/browser/bench.js)
 'use strict';
 
+const { execFileSync } = require('node:child_process');
 const fs = require('node:fs');
 const path = require('node:path');
 const zlib = require('node:zlib');
@@ -20,6 +24,10 @@ const h = require('./helpers');
 const LINK = 'v=1&title=Geophone+front+end&fsample=2k&adcbits=24&fsignal=200&family=butterworth&topo=mfb';
 const N_OPEN = 5;
 const N_EDITS = 40;
+// The study-kernel figure: step(2000) as the native benchmark, 9 fresh studies, 2 of warm-up.
+const KERNEL_RUNS = 2000;
+const KERNEL_REPEATS = 9;
+const KERNEL_WARMUP = 2;
 
 function median(values) {
   const sorted = values.slice().sort((a, b) => a - b);
@@ -49,7 +57,7 @@ async function main() {
   // script running, the wasm bytes decoded, the core compiled, the page's code started, and the
   // first design drawn.
   results.opening_steps_ms = {};
-  for (const key of ['script', 'decoded', 'compiled', 'started', 'drawn']) {
+  for (const key of ['script', 'decoded', 'compiled', 'instantiated', 'started', 'drawn', 'all_drawn']) {
     results.opening_steps_ms[key] = median(phases.map((p) => p[key]).filter(Number.isFinite));
   }
 
@@ -119,6 +127,18 @@ async function main() {
   results.study_10000_runs_ms = Number(await page.getAttribute('body', 'data-study-ms'));
   results.study_frame_gap_ms = { max: Math.max(...gaps), p99: percentile(gaps, 99), frames: gaps.length };
   results.study_status = await page.textContent('#study-status');
+  // The study kernel alone in wasm, as the native criterion benchmark `montecarlo_kernel`
+  // times it (the same board, grid and parts: src/wasm.rs bench_study_kernel): fresh studies of
+  // KERNEL_RUNS runs, each timed over one step. The first repeats run before V8 has optimised the
+  // kernel; the figure is the median of the rest.
+  const kernel = await page.evaluate(([runs, repeats]) => wasm_bindgen.bench_study_kernel(runs, repeats), [KERNEL_RUNS, KERNEL_REPEATS]);
+  const perS = (ms) => (kernel.runs * kernel.stages * kernel.points) / (ms / 1000);
+  results.wasm_study_kernel = {
+    stage_evals_per_s: Number(perS(median(kernel.ms.slice(KERNEL_WARMUP))).toPrecision(3)),
+    first_step_per_s: Number(perS(kernel.ms[0]).toPrecision(3)),
+    runs: kernel.runs, stages: kernel.stages, points: kernel.points,
+    step_ms: kernel.ms.map((ms) => Number(ms.toFixed(1))),
+  };
   await context.close();
   await browser.close();
 
@@ -131,6 +151,17 @@ async function main() {
     results.wasm_file = path.relative(h.ROOT, wasmFile);
   }
   results.page_script_bytes = fs.statSync(path.join(h.WWW, 'rolloff-wasm.js')).size;
+  if (process.env.ROLLOFF_BENCH_NATIVE === '1') {
+    // The native figure in the same minutes: criterion's throughput of the same step(2000), its
+    // median estimate (the middle of the three 'thrpt' values), in elements = stage-evaluations/s.
+    const out = execFileSync('cargo', ['bench', '--bench', 'montecarlo', '--', 'montecarlo_kernel'], { cwd: h.ROOT, encoding: 'utf8', stdio: ['ignore', 'pipe', 'inherit'] });
+    const m = /thrpt:\s*\[[^\]]*?\s([\d.]+)\s*([KMG]?)elem\/s\s+[\d.]+\s*[KMG]?elem\/s\]/.exec(out);
+    if (m) {
+      const native = Number(m[1]) * { '': 1, K: 1e3, M: 1e6, G: 1e9 }[m[2]];
+      results.native_study_kernel_stage_evals_per_s = Number(native.toPrecision(3));
+      results.wasm_over_native = Number((results.wasm_study_kernel.stage_evals_per_s / native).toFixed(2));
+    }
+  }
   console.log(JSON.stringify(results, null, 2));
 }
 
