@@ -279,6 +279,11 @@ impl MonteCarlo {
         let block = group_run / SAMPLE_BLOCK;
         let base = block * SAMPLE_BLOCK * n_grid + group_run % SAMPLE_BLOCK;
         let table = &mut self.envelope.table;
+        if table.capacity() == 0 {
+            // The whole table at once, from the runs asked for: grown block by block it would be
+            // copied and faulted in again at every doubling.
+            table.reserve_exact(self.settings.runs.div_ceil(SAMPLE_BLOCK) * SAMPLE_BLOCK * n_grid);
+        }
         if table.len() < (block + 1) * SAMPLE_BLOCK * n_grid {
             table.resize((block + 1) * SAMPLE_BLOCK * n_grid, f32::NAN);
         }

@@ -226,22 +226,14 @@ impl MonteCarlo {
         let n = grid.len();
         let floor = V::splat(0.25 * self.cutoff_level);
         let mut peak = V::splat(-1.0);
-        let visit = |i: usize, peak: &mut V| {
-            let v = V::load(&grid[i]);
-            let is_max = V::and(
-                V::and(v.ge(V::load(&grid[i - 1])), v.ge(V::load(&grid[i + 1]))),
-                v.ge(floor),
-            );
-            *peak = V::select(is_max, V::splat(i as f64), *peak);
-        };
         if n >= 3 {
             if first {
                 for i in (1..n - 1).rev() {
-                    visit(i, &mut peak);
+                    peak = peak_step(grid, i, floor, peak);
                 }
             } else {
                 for i in 1..n - 1 {
-                    visit(i, &mut peak);
+                    peak = peak_step(grid, i, floor, peak);
                 }
             }
         }
@@ -412,9 +404,45 @@ impl MonteCarlo {
         if !(x > x0 && x1 > x0 && c0 > 0.0 && c1 > 0.0) {
             return c1;
         }
-        let w = fmath::ln(x / x0) / fmath::ln(x1 / x0);
-        fmath::exp(fmath::ln(c0) + w * fmath::ln(c1 / c0))
+        // The logarithms of the interval's ends, worked out once per study (the same numbers
+        // as taking them here).
+        let [ln_dx, ln_c0, ln_dc] = self
+            .loading_logs
+            .get(i)
+            .copied()
+            .unwrap_or_else(|| [fmath::ln(x1 / x0), fmath::ln(c0), fmath::ln(c1 / c0)]);
+        let w = fmath::ln(x / x0) / ln_dx;
+        fmath::exp(ln_c0 + w * ln_dc)
     }
+}
+
+/// Per grid interval `i` (between points `i − 1` and `i`; entry 0 unused), the logarithms
+/// [`MonteCarlo::loading_at`] interpolates with: `ln(x_i/x_{i−1})`, `ln c_{i−1}`,
+/// `ln(c_i/c_{i−1})` of the correction `corr` on the grid `grid`.
+pub(super) fn loading_logs(grid: &[f64], corr: &[f64]) -> Vec<[f64; 3]> {
+    let mut out = vec![[f64::NAN; 3]; grid.len().min(corr.len())];
+    for (i, v) in out.iter_mut().enumerate().skip(1) {
+        *v = [
+            fmath::ln(grid[i] / grid[i - 1]),
+            fmath::ln(corr[i - 1]),
+            fmath::ln(corr[i] / corr[i - 1]),
+        ];
+    }
+    out
+}
+
+/// One grid point of [`MonteCarlo::last_peak`]: index `i` replaces `peak` in the lanes where
+/// `grid[i]` is an interior local maximum at or above `floor`. A function rather than a closure
+/// so that it is inlined into each compiled form of the batch (a closure is compiled once without
+/// the form's instruction set, and every lane operation in it becomes a call).
+#[inline(always)]
+fn peak_step<V: Lane8>(grid: &[RunLanes], i: usize, floor: V, peak: V) -> V {
+    let v = V::load(&grid[i]);
+    let is_max = V::and(
+        V::and(v.ge(V::load(&grid[i - 1])), v.ge(V::load(&grid[i + 1]))),
+        v.ge(floor),
+    );
+    V::select(is_max, V::splat(i as f64), peak)
 }
 
 /// Grid indices carried in f64 lanes (exact), −1 for none, as indices.
