@@ -47,8 +47,8 @@ pub(super) struct Batch {
 impl MonteCarlo {
     /// Draws the runs of lanes `first..last`, run after run, part after part (the order of the
     /// module docs). The other lanes keep values of earlier runs: they are analysed (the lanes are
-    /// computed together) but not recorded.
-    #[inline(always)]
+    /// computed together) but not recorded. Scalar work, so a call of its own (it is used by the
+    /// batch and by the loading probe) rather than a copy in each.
     pub(super) fn draw(&mut self, first: usize, last: usize) {
         let b = &mut self.batch;
         for l in 0..RUN_LANES {

@@ -221,7 +221,9 @@ impl MonteCarlo {
     /// Each lane's grid index of the passband's outermost peak: the last (or, with `first`,
     /// the first) interior local maximum of |H|² that lies within 6 dB of the cutoff level;
     /// without one, the grid's end on that side (a monotone response has no ripple to follow).
-    #[inline(always)]
+    // Inlined into each compiled form natively (it must run with the form's instruction set);
+    // on wasm, where there is one form, a call: it is used in several places.
+    #[cfg_attr(not(target_arch = "wasm32"), inline(always))]
     fn last_peak<V: Lane8>(&self, grid: &[RunLanes], first: bool) -> V {
         let n = grid.len();
         let floor = V::splat(0.25 * self.cutoff_level);
@@ -272,7 +274,9 @@ impl MonteCarlo {
     /// `|H|²/level − 1` over x, with `level` the cutoff level (smooth there, and no exponentials per step). The lanes iterate
     /// together, each one frozen once it has converged, so each lane's result is the one a
     /// scalar iteration of that run gives.
-    #[inline(always)]
+    // Inlined into each compiled form natively (it must run with the form's instruction set);
+    // on wasm, where there is one form, a call: it is used in several places.
+    #[cfg_attr(not(target_arch = "wasm32"), inline(always))]
     fn refine_crossing_lanes<V: Lane8>(
         &self,
         mut a: RunLanes,
@@ -351,7 +355,9 @@ impl MonteCarlo {
     /// zero the cutoff search finds, with `inv` the inverse of the cutoff level). With `loaded`
     /// the lanes in `want` are solved on their loaded boards (the others are NaN: the search
     /// does not read them), without it every lane comes from the corrected product.
-    #[inline(always)]
+    // Inlined into each compiled form natively (it must run with the form's instruction set);
+    // on wasm, where there is one form, a call: it is used in several places.
+    #[cfg_attr(not(target_arch = "wasm32"), inline(always))]
     fn level_gap<V: Lane8>(
         &self,
         x: &RunLanes,
@@ -615,22 +621,31 @@ fn cascade_kernel_lanes_body<V: Lane8>(
         let row_d = &coef_d[k * width..(k + 1) * width];
         let nn = deg_n[k].min(width - 1) + 1;
         let nd = deg_d[k].min(width - 1) + 1;
-        // The common sizes with fixed coefficient counts (unrolled Horner loops).
-        macro_rules! fixed {
-            ($($a:literal, $b:literal);*) => {
-                match (nn, nd) {
-                    $(($a, $b) => stage_pass::<V, $a, $b>(x, row_n, row_d, pass, den, out),)*
-                    _ => stage_pass_any::<V>(x, &row_n[..nn], &row_d[..nd], pass, den, out),
-                }
-            };
+        // Natively the common sizes get fixed coefficient counts (unrolled Horner loops). The
+        // page's wasm takes the one loop for any size: sixteen copies of the pass were most of
+        // the study's code there, and the loop's count costs little beside eight lanes of work.
+        // Both do the same operations in the same order, so the results are the same bits.
+        #[cfg(not(target_arch = "wasm32"))]
+        {
+            macro_rules! fixed {
+                ($($a:literal, $b:literal);*) => {
+                    match (nn, nd) {
+                        $(($a, $b) => stage_pass::<V, $a, $b>(x, row_n, row_d, pass, den, out),)*
+                        _ => stage_pass_any::<V>(x, &row_n[..nn], &row_d[..nd], pass, den, out),
+                    }
+                };
+            }
+            fixed!(1, 1; 1, 2; 1, 3; 1, 4; 2, 1; 2, 2; 2, 3; 2, 4;
+                   3, 1; 3, 2; 3, 3; 3, 4; 4, 1; 4, 2; 4, 3; 4, 4);
         }
-        fixed!(1, 1; 1, 2; 1, 3; 1, 4; 2, 1; 2, 2; 2, 3; 2, 4;
-               3, 1; 3, 2; 3, 3; 3, 4; 4, 1; 4, 2; 4, 3; 4, 4);
+        #[cfg(target_arch = "wasm32")]
+        stage_pass_any::<V>(x, &row_n[..nn], &row_d[..nd], pass, den, out);
     }
 }
 
 /// One stage's pass of [`cascade_kernel_lanes`] with `NN` numerator and `ND` denominator
-/// coefficients.
+/// coefficients (native builds; see `cascade_kernel_lanes_body`).
+#[cfg(not(target_arch = "wasm32"))]
 #[inline(always)]
 fn stage_pass<V: Lane8, const NN: usize, const ND: usize>(
     x: &[f64],
