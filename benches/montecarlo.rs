@@ -1,13 +1,19 @@
-//! How fast is the tolerance-study kernel? An 8th-order Butterworth low-pass built as four
-//! unity-gain Sallen-Key stages (1 kHz, generic op amp, E96/E12 parts), 200 log-spaced frequencies
-//! from 10 Hz to 100 kHz, 1 % resistors and 5 % capacitors. The figure of merit is
-//! stage-evaluations per second = runs × points × stages / time (criterion reports it as
-//! "elements/s"). `tools/bench_numpy.py` runs the same textbook computation vectorised in numpy
-//! for comparison. A second group times a whole study of 20,000 runs including set-up and the
-//! statistics of `finish()`, the work behind one `rolloff spread`; a third times the
-//! per-frequency kernel alone for one batch of eight runs side by side (the study works its runs
-//! in batches of eight SIMD lanes), to show how the time of a run divides between its 200 points
-//! and its per-run work (draws, stage polynomials, f0 and Q, cutoff search, statistics).
+//! How fast is the tolerance study, and the command-line sweep?
+//!
+//! `montecarlo_kernel`: the stage-evaluations per second (runs × points × stages / time; criterion
+//! reports them as "elements/s") of `step(2000)` on an 8th-order Butterworth low-pass built as four
+//! unity-gain Sallen-Key stages with exact parts (the board of `?v=2&order=8&fc=1k&rser=exact&
+//! cser=exact`, generic op amp), 200 log-spaced frequencies from 10 Hz to 100 kHz, 1 % resistors
+//! and 5 % capacitors: the cascade product with the nominal loading correction (the bench prints
+//! the board's loading residual; it stays below the threshold, so the runs are not solved loaded).
+//! `montecarlo_eseries`: the same study on the board built from the four sections with E96/E12
+//! parts (the board the first version of this bench used).
+//! `cascade_kernel_only`: the per-frequency kernel alone for one batch of eight runs side by side.
+//! `montecarlo_whole`: `pipeline::spread` of 20,000 runs of the first board, new + step + finish,
+//! the work of one `rolloff spread` without start-up and output. `sweep`: `pipeline::sweep` of
+//! 100,000 points of a 20th-order Butterworth (`?v=2&order=20&fc=1k`), one banded factorization
+//! per point. `tools/bench_numpy.py` and `tools/bench_sweep.py` time numpy's vectorised magnitude
+//! kernel and scipy's `freqs_zpk` for the ratios.
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use rolloff::analysis::tolerance::{
@@ -69,18 +75,30 @@ fn mask() -> Mask {
     }
 }
 
-fn bench(c: &mut Criterion) {
-    let board = board();
+/// The composed design of `link`.
+fn design(link: &str) -> rolloff::pipeline::Design {
+    let report = rolloff::link::parse(link);
+    assert!(report.errors.is_empty(), "{link}: {:?}", report.errors);
+    rolloff::pipeline::compose(&report.state).expect("the benchmark design composes")
+}
+
+/// `step(chunk)` of a fresh study of `board`, timed without the set-up.
+fn bench_step(c: &mut Criterion, name: &str, label: &str, board: &Board, chunk: usize) {
     let n_stages = board.stages.len();
-    let chunk = 2000;
-    let mut group = c.benchmark_group("montecarlo_kernel");
+    let probe = MonteCarlo::new(board, Some(&mask()), settings(16)).expect("the study starts");
+    let summary = probe.finish();
+    eprintln!(
+        "{name}: loading residual {:?} dB, every run solved loaded: {}",
+        summary.loading_residual_db, summary.loaded_runs
+    );
+    let mut group = c.benchmark_group(name);
     group.throughput(Throughput::Elements((chunk * N_POINTS * n_stages) as u64));
     group.sample_size(20);
-    group.bench_function("8th-order SK low-pass, 200 points, step(2000)", |b| {
+    group.bench_function(label, |b| {
         b.iter_custom(|iters| {
             let mut total = Duration::ZERO;
             for _ in 0..iters {
-                let mut mc = MonteCarlo::new(&board, Some(&mask()), settings(chunk))
+                let mut mc = MonteCarlo::new(board, Some(&mask()), settings(chunk))
                     .expect("the study starts");
                 let t = Instant::now();
                 mc.step(chunk);
@@ -91,6 +109,25 @@ fn bench(c: &mut Criterion) {
         })
     });
     group.finish();
+}
+
+fn bench(c: &mut Criterion) {
+    let exact = design("?v=2&order=8&fc=1k&rser=exact&cser=exact");
+    let n_stages = exact.board.stages.len();
+    bench_step(
+        c,
+        "montecarlo_kernel",
+        "8th-order SK low-pass, exact parts, 200 points, step(2000)",
+        &exact.board,
+        2000,
+    );
+    bench_step(
+        c,
+        "montecarlo_eseries",
+        "8th-order SK low-pass, E96/E12 parts, 200 points, step(2000)",
+        &board(),
+        2000,
+    );
 
     // The per-frequency kernel alone (what each run spends on its 200 points once its stage
     // polynomials are formed), for one batch of RUN_LANES runs side by side: |N|² of degree 2
@@ -144,18 +181,31 @@ fn bench(c: &mut Criterion) {
     });
     kernel.finish();
 
+    let mut whole_design = design("?v=2&order=8&fc=1k&rser=exact&cser=exact&runs=20000");
+    whole_design.state.study.runs = 20_000;
     let mut whole = c.benchmark_group("montecarlo_whole");
-    whole.throughput(Throughput::Elements((20_000 * N_POINTS * n_stages) as u64));
+    whole.throughput(Throughput::Elements(
+        (20_000 * rolloff::pipeline::PLOT_POINTS * n_stages) as u64,
+    ));
     whole.sample_size(10);
-    whole.bench_function("20000 runs: new + step + finish", |b| {
-        b.iter(|| {
-            let mut mc =
-                MonteCarlo::new(&board, Some(&mask()), settings(20_000)).expect("the study starts");
-            mc.step(20_000);
-            criterion::black_box(mc.finish())
-        })
+    whole.bench_function("pipeline::spread, 20000 runs: new + step + finish", |b| {
+        b.iter(|| criterion::black_box(rolloff::pipeline::spread(&whole_design).expect("study")))
     });
     whole.finish();
+
+    let butterworth = design("?v=2&order=20&fc=1k");
+    let (from, to) = butterworth.span_hz;
+    let mut sweep = c.benchmark_group("sweep");
+    sweep.throughput(Throughput::Elements(100_000));
+    sweep.sample_size(10);
+    sweep.bench_function("20th-order Butterworth, 100000 points", |b| {
+        b.iter(|| {
+            criterion::black_box(
+                rolloff::pipeline::sweep(&butterworth, from, to, 100_000, false).expect("sweep"),
+            )
+        })
+    });
+    sweep.finish();
 }
 
 criterion_group!(benches, bench);

@@ -11,6 +11,7 @@
 
 use crate::link::{self, quoted, LinkReport};
 use crate::pipeline::{self, Design};
+use std::fmt::Write as _;
 use std::io::Write;
 
 /// What went wrong, and so which exit status to give.
@@ -371,12 +372,15 @@ fn cmd_sweep(report: &LinkReport, flags: &Flags, out: &mut dyn Write) -> Result<
     }
     let points = flags.points.unwrap_or(200);
     let rows = pipeline::sweep(&design, from, to, points, flags.ideal).map_err(Failure::Other)?;
-    let mut text = String::from("freq_hz,gain_db,phase_deg,delay_s\n");
+    let mut text = String::with_capacity(96 * (rows.len() + 1));
+    text.push_str("freq_hz,gain_db,phase_deg,delay_s\n");
     for row in rows {
-        text.push_str(&format!(
-            "{},{},{},{}\n",
+        // Written into the one buffer (a String's fmt::Write does not fail).
+        let _ = writeln!(
+            text,
+            "{},{},{},{}",
             row.freq_hz, row.gain_db, row.phase_deg, row.delay_s
-        ));
+        );
     }
     out.write_all(text.as_bytes()).map_err(io_failure)
 }

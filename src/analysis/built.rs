@@ -32,6 +32,8 @@ pub struct BoardSolver {
     spans: Vec<(usize, usize)>,
     /// The non-zero entries `(row, column, value)` of `C`, for the derivative's `C·x`.
     c_entries: Vec<(usize, usize, f64)>,
+    /// Work space of [`BoardSolver::solve_with_slope`]'s second right-hand side.
+    slope_rhs: Vec<Complex64>,
 }
 
 impl BoardSolver {
@@ -85,6 +87,7 @@ impl BoardSolver {
             last_s: Complex64::new(0.0, 0.0),
             spans,
             c_entries,
+            slope_rhs: Vec::with_capacity(n),
         })
     }
 
@@ -131,16 +134,14 @@ impl BoardSolver {
     pub fn solve_with_slope(&mut self, f_hz: f64) -> Result<(Complex64, Complex64), AnalysisError> {
         let h = self.solve_at(f_hz)?;
         let x = self.solver.solution();
-        let mut rhs: Vec<Complex64> = self
-            .assembled
-            .c_in
-            .iter()
-            .map(|&c| Complex64::new(-c, 0.0))
-            .collect();
+        // The right-hand side is built in a buffer kept between points (no allocation per point).
+        let rhs = &mut self.slope_rhs;
+        rhs.clear();
+        rhs.extend(self.assembled.c_in.iter().map(|&c| Complex64::new(-c, 0.0)));
         for &(r, k, v) in &self.c_entries {
             rhs[r] -= x[k] * v;
         }
-        self.solver.solve_again(&mut rhs);
+        self.solver.solve_again(rhs);
         Ok((h, rhs[self.compiled.output_col]))
     }
 

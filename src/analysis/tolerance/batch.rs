@@ -47,8 +47,8 @@ pub(super) struct Batch {
 impl MonteCarlo {
     /// Draws the runs of lanes `first..last`, run after run, part after part (the order of the
     /// module docs). The other lanes keep values of earlier runs: they are analysed (the lanes are
-    /// computed together) but not recorded.
-    #[inline(always)]
+    /// computed together) but not recorded. Scalar work, so a call of its own (it is used by the
+    /// batch and by the loading probe) rather than a copy in each.
     pub(super) fn draw(&mut self, first: usize, last: usize) {
         let b = &mut self.batch;
         for l in 0..RUN_LANES {
@@ -279,6 +279,11 @@ impl MonteCarlo {
         let block = group_run / SAMPLE_BLOCK;
         let base = block * SAMPLE_BLOCK * n_grid + group_run % SAMPLE_BLOCK;
         let table = &mut self.envelope.table;
+        if table.capacity() == 0 {
+            // The whole table at once, from the runs asked for: grown block by block it would be
+            // copied and faulted in again at every doubling.
+            table.reserve_exact(self.settings.runs.div_ceil(SAMPLE_BLOCK) * SAMPLE_BLOCK * n_grid);
+        }
         if table.len() < (block + 1) * SAMPLE_BLOCK * n_grid {
             table.resize((block + 1) * SAMPLE_BLOCK * n_grid, f32::NAN);
         }

@@ -221,27 +221,21 @@ impl MonteCarlo {
     /// Each lane's grid index of the passband's outermost peak: the last (or, with `first`,
     /// the first) interior local maximum of |H|² that lies within 6 dB of the cutoff level;
     /// without one, the grid's end on that side (a monotone response has no ripple to follow).
-    #[inline(always)]
+    // Inlined into each compiled form natively (it must run with the form's instruction set);
+    // on wasm, where there is one form, a call: it is used in several places.
+    #[cfg_attr(not(target_arch = "wasm32"), inline(always))]
     fn last_peak<V: Lane8>(&self, grid: &[RunLanes], first: bool) -> V {
         let n = grid.len();
         let floor = V::splat(0.25 * self.cutoff_level);
         let mut peak = V::splat(-1.0);
-        let visit = |i: usize, peak: &mut V| {
-            let v = V::load(&grid[i]);
-            let is_max = V::and(
-                V::and(v.ge(V::load(&grid[i - 1])), v.ge(V::load(&grid[i + 1]))),
-                v.ge(floor),
-            );
-            *peak = V::select(is_max, V::splat(i as f64), *peak);
-        };
         if n >= 3 {
             if first {
                 for i in (1..n - 1).rev() {
-                    visit(i, &mut peak);
+                    peak = peak_step(grid, i, floor, peak);
                 }
             } else {
                 for i in 1..n - 1 {
-                    visit(i, &mut peak);
+                    peak = peak_step(grid, i, floor, peak);
                 }
             }
         }
@@ -280,7 +274,9 @@ impl MonteCarlo {
     /// `|H|²/level − 1` over x, with `level` the cutoff level (smooth there, and no exponentials per step). The lanes iterate
     /// together, each one frozen once it has converged, so each lane's result is the one a
     /// scalar iteration of that run gives.
-    #[inline(always)]
+    // Inlined into each compiled form natively (it must run with the form's instruction set);
+    // on wasm, where there is one form, a call: it is used in several places.
+    #[cfg_attr(not(target_arch = "wasm32"), inline(always))]
     fn refine_crossing_lanes<V: Lane8>(
         &self,
         mut a: RunLanes,
@@ -359,7 +355,9 @@ impl MonteCarlo {
     /// zero the cutoff search finds, with `inv` the inverse of the cutoff level). With `loaded`
     /// the lanes in `want` are solved on their loaded boards (the others are NaN: the search
     /// does not read them), without it every lane comes from the corrected product.
-    #[inline(always)]
+    // Inlined into each compiled form natively (it must run with the form's instruction set);
+    // on wasm, where there is one form, a call: it is used in several places.
+    #[cfg_attr(not(target_arch = "wasm32"), inline(always))]
     fn level_gap<V: Lane8>(
         &self,
         x: &RunLanes,
@@ -412,9 +410,45 @@ impl MonteCarlo {
         if !(x > x0 && x1 > x0 && c0 > 0.0 && c1 > 0.0) {
             return c1;
         }
-        let w = fmath::ln(x / x0) / fmath::ln(x1 / x0);
-        fmath::exp(fmath::ln(c0) + w * fmath::ln(c1 / c0))
+        // The logarithms of the interval's ends, worked out once per study (the same numbers
+        // as taking them here).
+        let [ln_dx, ln_c0, ln_dc] = self
+            .loading_logs
+            .get(i)
+            .copied()
+            .unwrap_or_else(|| [fmath::ln(x1 / x0), fmath::ln(c0), fmath::ln(c1 / c0)]);
+        let w = fmath::ln(x / x0) / ln_dx;
+        fmath::exp(ln_c0 + w * ln_dc)
     }
+}
+
+/// Per grid interval `i` (between points `i − 1` and `i`; entry 0 unused), the logarithms
+/// [`MonteCarlo::loading_at`] interpolates with: `ln(x_i/x_{i−1})`, `ln c_{i−1}`,
+/// `ln(c_i/c_{i−1})` of the correction `corr` on the grid `grid`.
+pub(super) fn loading_logs(grid: &[f64], corr: &[f64]) -> Vec<[f64; 3]> {
+    let mut out = vec![[f64::NAN; 3]; grid.len().min(corr.len())];
+    for (i, v) in out.iter_mut().enumerate().skip(1) {
+        *v = [
+            fmath::ln(grid[i] / grid[i - 1]),
+            fmath::ln(corr[i - 1]),
+            fmath::ln(corr[i] / corr[i - 1]),
+        ];
+    }
+    out
+}
+
+/// One grid point of [`MonteCarlo::last_peak`]: index `i` replaces `peak` in the lanes where
+/// `grid[i]` is an interior local maximum at or above `floor`. A function rather than a closure
+/// so that it is inlined into each compiled form of the batch (a closure is compiled once without
+/// the form's instruction set, and every lane operation in it becomes a call).
+#[inline(always)]
+fn peak_step<V: Lane8>(grid: &[RunLanes], i: usize, floor: V, peak: V) -> V {
+    let v = V::load(&grid[i]);
+    let is_max = V::and(
+        V::and(v.ge(V::load(&grid[i - 1])), v.ge(V::load(&grid[i + 1]))),
+        v.ge(floor),
+    );
+    V::select(is_max, V::splat(i as f64), peak)
 }
 
 /// Grid indices carried in f64 lanes (exact), −1 for none, as indices.
@@ -587,22 +621,31 @@ fn cascade_kernel_lanes_body<V: Lane8>(
         let row_d = &coef_d[k * width..(k + 1) * width];
         let nn = deg_n[k].min(width - 1) + 1;
         let nd = deg_d[k].min(width - 1) + 1;
-        // The common sizes with fixed coefficient counts (unrolled Horner loops).
-        macro_rules! fixed {
-            ($($a:literal, $b:literal);*) => {
-                match (nn, nd) {
-                    $(($a, $b) => stage_pass::<V, $a, $b>(x, row_n, row_d, pass, den, out),)*
-                    _ => stage_pass_any::<V>(x, &row_n[..nn], &row_d[..nd], pass, den, out),
-                }
-            };
+        // Natively the common sizes get fixed coefficient counts (unrolled Horner loops). The
+        // page's wasm takes the one loop for any size: sixteen copies of the pass were most of
+        // the study's code there, and the loop's count costs little beside eight lanes of work.
+        // Both do the same operations in the same order, so the results are the same bits.
+        #[cfg(not(target_arch = "wasm32"))]
+        {
+            macro_rules! fixed {
+                ($($a:literal, $b:literal);*) => {
+                    match (nn, nd) {
+                        $(($a, $b) => stage_pass::<V, $a, $b>(x, row_n, row_d, pass, den, out),)*
+                        _ => stage_pass_any::<V>(x, &row_n[..nn], &row_d[..nd], pass, den, out),
+                    }
+                };
+            }
+            fixed!(1, 1; 1, 2; 1, 3; 1, 4; 2, 1; 2, 2; 2, 3; 2, 4;
+                   3, 1; 3, 2; 3, 3; 3, 4; 4, 1; 4, 2; 4, 3; 4, 4);
         }
-        fixed!(1, 1; 1, 2; 1, 3; 1, 4; 2, 1; 2, 2; 2, 3; 2, 4;
-               3, 1; 3, 2; 3, 3; 3, 4; 4, 1; 4, 2; 4, 3; 4, 4);
+        #[cfg(target_arch = "wasm32")]
+        stage_pass_any::<V>(x, &row_n[..nn], &row_d[..nd], pass, den, out);
     }
 }
 
 /// One stage's pass of [`cascade_kernel_lanes`] with `NN` numerator and `ND` denominator
-/// coefficients.
+/// coefficients (native builds; see `cascade_kernel_lanes_body`).
+#[cfg(not(target_arch = "wasm32"))]
 #[inline(always)]
 fn stage_pass<V: Lane8, const NN: usize, const ND: usize>(
     x: &[f64],

@@ -59,7 +59,8 @@
 //! missed. The loaded path costs a banded solve per run and point, so it is taken only when needed.
 //!
 //! Memory: the envelope's percentiles are exact order statistics of every run's |H|² in single
-//! precision. A study of up to 2^20 values (runs × frequencies, 4 MB) keeps them all, in blocks
+//! precision. A study of up to 2^20 values on the page (runs × frequencies, 4 MB), 2^23 natively
+//! (32 MB), keeps them all, in blocks
 //! of sixteen runs stored frequency-major (a batch writes eight contiguous values per frequency);
 //! a larger one keeps only each frequency's key range and finds the order statistics by replaying
 //! the runs (`envelope.rs`: a bound of 4096 counts per frequency, then at most 2048 values or 256
@@ -254,6 +255,9 @@ pub struct MonteCarlo {
     /// The nominal loading correction |H_loaded|²/|H_product|² at each evaluation point (`None`
     /// with `Rout = 0`, where the product is exact).
     loading_h2: Option<Vec<f64>>,
+    /// The logarithms the correction is interpolated with between grid points, per interval
+    /// (`kernel::loading_logs`; empty without a correction).
+    loading_logs: Vec<[f64; 3]>,
     /// The largest difference of the probe runs from their loaded solves, dB (see the module docs).
     loading_residual_db: Option<f64>,
     /// Set when the residual is above [`LOADING_RESIDUAL_WARN_DB`]: every run is then solved on

@@ -400,6 +400,7 @@ impl MonteCarlo {
             },
             settings,
             loading_h2: None,
+            loading_logs: Vec::new(),
             loading_residual_db: None,
             loaded_runs: None,
         };
@@ -413,7 +414,7 @@ impl MonteCarlo {
             let offsets: Vec<usize> = mc.stages.iter().map(|s| s.value_offset).collect();
             let mut loaded = LoadedBoard::new(stages, op, &offsets)?;
             let target = loaded.h2(&mc.nominal_values, &eval_f)?;
-            let corr = target
+            let corr: Vec<f64> = target
                 .iter()
                 .zip(&mc.batch.h2)
                 .map(|(&t, p)| {
@@ -425,6 +426,7 @@ impl MonteCarlo {
                     }
                 })
                 .collect();
+            mc.loading_logs = super::kernel::loading_logs(&mc.x_eval[..n_grid], &corr);
             mc.loading_h2 = Some(corr);
             mc.run_batch(None);
             if mc.batch.failed[0] {

@@ -195,15 +195,24 @@ impl MonteCarlo {
                 let row0 = b * SAMPLE_BLOCK * n_grid + f0 * SAMPLE_BLOCK;
                 let rows = &self.envelope.table[row0..row0 + group * SAMPLE_BLOCK];
                 for (c, row) in columns.iter_mut().zip(rows.chunks_exact(SAMPLE_BLOCK)) {
-                    c.extend_from_slice(&row[..count]);
+                    // A whole block is one fixed-size copy (inlined), not a call to memmove
+                    // for 64 bytes.
+                    match <&[f32; SAMPLE_BLOCK]>::try_from(row) {
+                        Ok(full) if count == SAMPLE_BLOCK => c.extend_from_slice(full),
+                        _ => c.extend_from_slice(&row[..count]),
+                    }
                 }
             }
             for c in columns.iter_mut().take(group) {
-                // NaN marks a run without readings (and a reading that is not a number).
-                if c.iter().any(|v| v.is_nan()) {
+                // NaN marks a run without readings (and a reading that is not a number). Its
+                // order key lies outside the keys of ±∞, so the key range found first tells
+                // whether there is one, without a pass of its own.
+                let mut keys = key_range(c);
+                if keys.0 < order_key(f32::NEG_INFINITY) || keys.1 > order_key(f32::INFINITY) {
                     c.retain(|v| !v.is_nan());
+                    keys = key_range(c);
                 }
-                let values = percentiles_f32_with(c, pct, &mut scratch);
+                let values = percentiles_f32_keyed(c, pct, &mut scratch, keys);
                 for (curve, v) in self.curves.iter_mut().zip(values) {
                     curve.db.push(power_db(v));
                 }
@@ -425,14 +434,28 @@ fn percentiles_f32_with(
     percentiles: &[f64],
     scratch: &mut PercentileScratch,
 ) -> Vec<f64> {
+    percentiles_f32_keyed(data, percentiles, scratch, key_range(data))
+}
+
+/// The smallest and largest order key of `data` (`(u32::MAX, 0)` when empty).
+fn key_range(data: &[f32]) -> (u32, u32) {
+    data.iter().fold((u32::MAX, 0u32), |(lo, hi), &v| {
+        let k = order_key(v);
+        (lo.min(k), hi.max(k))
+    })
+}
+
+/// [`percentiles_f32_with`] with the key range of `data` ([`key_range`]) already known.
+fn percentiles_f32_keyed(
+    data: &[f32],
+    percentiles: &[f64],
+    scratch: &mut PercentileScratch,
+    (kmin, kmax): (u32, u32),
+) -> Vec<f64> {
     let n = data.len();
     if n == 0 {
         return vec![f64::NAN; percentiles.len()];
     }
-    let (kmin, kmax) = data.iter().fold((u32::MAX, 0u32), |(lo, hi), &v| {
-        let k = order_key(v);
-        (lo.min(k), hi.max(k))
-    });
     let mut shift = 0u32;
     while ((kmax - kmin) >> shift) as usize >= PCT_BUCKETS {
         shift += 1;
