@@ -457,6 +457,7 @@ fn kernel_bench_study(runs: usize) -> Option<(MonteCarlo, usize, usize)> {
             f0_hz: 1000.0,
             q: Some(1.0 / (2.0 * fmath::sin((2 * k - 1) as f64 * std::f64::consts::PI / 16.0))),
             gain: 1.0,
+            fz_hz: None,
         })
         .rev()
         .collect();
