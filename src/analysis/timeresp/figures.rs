@@ -50,6 +50,10 @@ fn cross_time(t: &[f64], y: &[f64], i: usize, level: f64) -> f64 {
     }
 }
 
+/// The least final value, relative to the largest |y|, that a step response is measured against
+/// (overshoot, rise); below it the response counts as returning to zero.
+pub const FINAL_VALUE_FLOOR: f64 = 1e-3;
+
 /// Overshoot, rise and settling figures of a sampled step response with final value `fv` (the
 /// peak by a parabola through the largest sample and its neighbours).
 pub fn step_figures(t: &[f64], y: &[f64], fv: f64) -> StepFigures {
@@ -69,7 +73,10 @@ pub(super) fn figures_with_peaks(
     let peak_abs = peak_abs_refined
         .filter(|p| p.is_finite())
         .map_or(sampled_abs, |p| p.max(sampled_abs));
-    let has_final = fv.abs() > 1e-9 * peak_abs.max(1e-300);
+    // A final value below a thousandth of the peak (−60 dB) is a response that returns to zero
+    // (a band-pass, or a high-pass whose op amps leak a trace of DC through their finite gain):
+    // an overshoot against it would read as millions of percent.
+    let has_final = fv.abs() > FINAL_VALUE_FLOOR * peak_abs.max(1e-300);
     // Work with the response normalized to a positive final value.
     let (yn, height): (Vec<f64>, f64) = if has_final {
         (y.iter().map(|v| v / fv).collect(), 1.0)
