@@ -419,17 +419,19 @@ impl Reader {
         let range = range_text(TARGET_HZ);
         let text = quoted(text);
         match (self.class, parts.as_slice()) {
-            (ResponseClass::BandPass, [lo, hi]) => match (read(lo), read(hi)) {
-                (Some(lo), Some(hi)) if lo < hi => Some(Edge::Pair(lo, hi)),
-                _ => {
-                    self.fail(key, format!("{text} is not accepted; band-pass needs two edges lo,hi in Hz with lo < hi ({range})"));
-                    None
+            (ResponseClass::BandPass | ResponseClass::BandStop, [lo, hi]) => {
+                match (read(lo), read(hi)) {
+                    (Some(lo), Some(hi)) if lo < hi => Some(Edge::Pair(lo, hi)),
+                    _ => {
+                        self.fail(key, format!("{text} is not accepted; band-pass and band-stop need two edges lo,hi in Hz with lo < hi ({range})"));
+                        None
+                    }
                 }
-            },
-            (ResponseClass::BandPass, _) => {
+            }
+            (ResponseClass::BandPass | ResponseClass::BandStop, _) => {
                 self.fail(
                     key,
-                    format!("{text} is not accepted; band-pass needs two edges lo,hi in Hz"),
+                    format!("{text} is not accepted; band-pass and band-stop need two edges lo,hi in Hz"),
                 );
                 None
             }
@@ -542,7 +544,31 @@ impl Reader {
         let order = self.read_number(Key::Order).map(|n| n as usize);
         let fc = self.read_number(Key::Fc);
         let bw = self.read_number(Key::Bw);
-        let mask = self.read_mask(class, &mut state);
+        let with_zeros = matches!(
+            family_index.map(|i| FAMILY_NAMES[i]),
+            Some("inverse-chebyshev" | "elliptic")
+        );
+        // Inverse Chebyshev and elliptic read stopdepth alone (no edges) as their equiripple
+        // depth; with edges it is the mask's depth, as for every family.
+        let edges_given = [
+            Key::PassEdge,
+            Key::StopEdge,
+            Key::Fsample,
+            Key::Adcbits,
+            Key::Fsignal,
+        ]
+        .iter()
+        .any(|k| self.given(*k));
+        let family_depth = if with_zeros && !edges_given {
+            self.read_number(Key::StopDepth)
+        } else {
+            None
+        };
+        let mask = if family_depth.is_some() {
+            None
+        } else {
+            self.read_mask(class, &mut state)
+        };
         if let Some(i) = self.read_choice(Key::Margin) {
             state.requirement.margin = MARGINS[i].1;
         }
@@ -555,20 +581,40 @@ impl Reader {
             (None, Some(m)) if (0.02..=6.0).contains(&m.apass_db) => m.apass_db / 2.0,
             _ => DEFAULT_RIPPLE_DB,
         };
+        let astop_db = family_depth
+            .or(mask.map(|m| m.astop_db))
+            .unwrap_or(crate::prototype::DEFAULT_STOP_DEPTH_DB);
         let family = match family_index.map(|i| FAMILY_NAMES[i]) {
             Some("chebyshev") => Family::Chebyshev { ripple_db },
             Some("bessel") => Family::Bessel,
             Some("linkwitz-riley") => Family::LinkwitzRiley,
             Some("critical") => Family::Critical,
+            Some("inverse-chebyshev") => Family::InverseChebyshev { astop_db },
+            Some("elliptic") => Family::Elliptic {
+                ripple_db,
+                astop_db,
+            },
             _ => Family::Butterworth,
         };
-        if ripple.is_some() && !matches!(family, Family::Chebyshev { .. }) {
+        if let Family::Elliptic {
+            ripple_db,
+            astop_db,
+        } = family
+        {
+            if astop_db <= ripple_db {
+                self.fail(
+                    Key::StopDepth,
+                    format!("{astop_db} dB is not above the ripple {ripple_db} dB; an elliptic stopband must be deeper than its passband ripple"),
+                );
+            }
+        }
+        if ripple.is_some() && family.ripple_db().is_none() {
             self.notes
-                .push("ripple: only Chebyshev uses a ripple; ignored".into());
+                .push("ripple: only Chebyshev and elliptic use a ripple; ignored".into());
         }
         let order = match order {
-            Some(n) if class == ResponseClass::BandPass && n % 2 == 1 => {
-                self.fail(Key::Order, format!("{n} is not accepted; a band-pass order counts the poles of the whole filter and is even, 2 to {MAX_ORDER}"));
+            Some(n) if class.is_band() && n % 2 == 1 => {
+                self.fail(Key::Order, format!("{n} is not accepted; a band-pass or band-stop order counts the poles of the whole filter and is even, 2 to {MAX_ORDER}"));
                 None
             }
             Some(n)
@@ -623,14 +669,16 @@ impl Reader {
             (None, false, false) => Some(DEFAULT_FC_HZ),
         };
         state.requirement.bw_hz = match class {
-            ResponseClass::BandPass if state.requirement.fc_hz.is_some() => {
+            ResponseClass::BandPass | ResponseClass::BandStop
+                if state.requirement.fc_hz.is_some() =>
+            {
                 Some(bw.unwrap_or_else(|| state.requirement.fc_hz.unwrap_or(DEFAULT_FC_HZ)))
             }
-            ResponseClass::BandPass => None,
+            ResponseClass::BandPass | ResponseClass::BandStop => None,
             _ => {
                 if bw.is_some() {
                     self.notes.push(format!(
-                        "{}: only band-pass uses a bandwidth; ignored",
+                        "{}: only band-pass and band-stop use a bandwidth; ignored",
                         name(Key::Bw)
                     ));
                 }
@@ -758,6 +806,7 @@ impl Reader {
             (ResponseClass::LowPass, Edge::Single(p), Edge::Single(s)) => s > p,
             (ResponseClass::HighPass, Edge::Single(p), Edge::Single(s)) => s < p,
             (ResponseClass::BandPass, Edge::Pair(pl, ph), Edge::Pair(sl, sh)) => sl < pl && sh > ph,
+            (ResponseClass::BandStop, Edge::Pair(pl, ph), Edge::Pair(sl, sh)) => pl < sl && sh < ph,
             _ => false,
         };
         if !consistent {
@@ -773,10 +822,19 @@ impl Reader {
                     s = name(Key::StopEdge),
                     p = name(Key::PassEdge)
                 ),
+                ResponseClass::BandStop => format!(
+                    "band-stop stopband edges lie inside the passband edges ({p} lo < {s} lo, {s} hi < {p} hi)",
+                    s = name(Key::StopEdge),
+                    p = name(Key::PassEdge)
+                ),
             };
             self.fail(
                 Key::StopEdge,
-                format!("the stopband edge lies inside the passband; {rule}"),
+                if class == ResponseClass::BandStop {
+                    format!("the stopband edges do not lie inside the passband edges; {rule}")
+                } else {
+                    format!("the stopband edge lies inside the passband; {rule}")
+                },
             );
             return None;
         }
