@@ -272,6 +272,27 @@ mod tests {
     }
 
     #[test]
+    fn zero_pairs_go_to_the_nearest_pole_pair_highest_q_first() {
+        // scipy.signal.ellipap(4, 1, 40): pole pairs |p| = 0.6015 (Q 0.826) and 0.9993 (Q 4.75),
+        // zero pairs at 1.610 and 3.525 rad/s. The Q 4.75 pair takes the nearer zero, 1.610.
+        let family = crate::spec::Family::Elliptic {
+            ripple_db: 1.0,
+            astop_db: 40.0,
+        };
+        let proto = crate::prototype::prototype(family, 4).unwrap();
+        let target =
+            crate::transform::transform(&proto, crate::transform::Band::LowPass { wc: 1.0 });
+        let sections = from_target(&target);
+        let to_rad = |f: f64| f * 2.0 * std::f64::consts::PI;
+        assert_eq!(sections.len(), 2);
+        assert!(sections.iter().all(|s| s.kind == SectionKind::Notch));
+        // Ascending Q: the second section is the high-Q one.
+        assert!((to_rad(sections[1].f0_hz) - 0.999_272_395_792_773_4).abs() < 1e-9);
+        assert!((to_rad(sections[1].fz_hz.unwrap()) - 1.609_550_401_225_153_8).abs() < 1e-9);
+        assert!((to_rad(sections[0].fz_hz.unwrap()) - 3.525_287_432_996_002).abs() < 1e-9);
+    }
+
+    #[test]
     fn gain_is_split_evenly_in_db() {
         let mut s = vec![lp(None, 1.0), lp(Some(0.7), 1.0), lp(Some(2.0), 1.0)];
         distribute_gain(
