@@ -46,9 +46,12 @@ pub struct Synthesis {
     pub prototype_poles: Vec<Complex64>,
     /// Poles of the filter, rad/s, conjugate pairs as `p, p*`.
     pub poles: Vec<Complex64>,
-    /// Number of zeros at the origin (lp 0, hp `order`, bp `order/2`); every other zero is at
-    /// infinity.
+    /// Number of zeros at the origin (lp and bs 0, hp `order`, bp `order/2`, less the
+    /// prototype's jω-axis zeros); the zeros not here or in `zeros` are at infinity.
     pub zeros_at_origin: usize,
+    /// Every finite zero of the filter, rad/s: the ones at the origin, then each jω-axis pair as
+    /// `+jω, −jω` (as scipy's `zpk` output lists them).
+    pub zeros: Vec<Complex64>,
     /// The sections in stage (signal) order, with the overall gain distributed.
     pub sections: Vec<Section>,
     /// Soft problems: values that were ignored, a fixed order that misses its mask, and the like.
@@ -84,7 +87,11 @@ pub fn synthesize(req: &Requirement, stage_order: &StageOrder) -> Result<Synthes
         ));
     }
     let class = req.class;
-    let family = req.family;
+    // With limits, inverse Chebyshev and elliptic take their stopband depth from the mask.
+    let family = match req.mask.as_ref() {
+        Some(mask) => req.family.with_stop_depth(mask.astop_db),
+        None => req.family,
+    };
 
     // 1. Prototype order.
     let prototype_order = match req.order {
@@ -163,7 +170,7 @@ pub fn synthesize(req: &Requirement, stage_order: &StageOrder) -> Result<Synthes
 
     let (fc_hz, bw_hz) = match band {
         Band::LowPass { wc } | Band::HighPass { wc } => (wc / TWO_PI, None),
-        Band::BandPass { w0, bw } => (w0 / TWO_PI, Some(bw / TWO_PI)),
+        Band::BandPass { w0, bw } | Band::BandStop { w0, bw } => (w0 / TWO_PI, Some(bw / TWO_PI)),
     };
     Ok(Synthesis {
         order: order::total_order(class, prototype_order),
@@ -174,6 +181,7 @@ pub fn synthesize(req: &Requirement, stage_order: &StageOrder) -> Result<Synthes
         prototype_poles: proto.poles(),
         poles: target.poles(),
         zeros_at_origin: target.zeros_at_origin,
+        zeros: target.zeros(),
         sections: staged,
         warnings,
     })
@@ -191,13 +199,13 @@ fn fixed_prototype_order(
             format!("order must be 1–{}, got {n}", prototype::MAX_ORDER),
         ));
     }
-    if class == ResponseClass::BandPass {
+    if class.is_band() {
         if n % 2 != 0 {
             return Err(InputError::new(
                 "order",
                 format!(
-                    "a band-pass order counts the poles of the whole filter and must be even \
-                     (2–20), got {n}"
+                    "a band-pass or band-stop order counts the poles of the whole filter and \
+                     must be even (2–20), got {n}"
                 ),
             ));
         }
@@ -248,19 +256,29 @@ fn given_band(req: &Requirement) -> Result<Option<Band>, InputError> {
             }),
             _ => None,
         },
+        ResponseClass::BandStop => match (req.fc_hz, req.bw_hz) {
+            (Some(fc), Some(bw)) => Some(Band::BandStop {
+                w0: TWO_PI * positive("fc", fc)?,
+                bw: TWO_PI * positive("bw", bw)?,
+            }),
+            _ => None,
+        },
     })
 }
 
 fn missing_band_error(class: ResponseClass, req: &Requirement) -> InputError {
     match class {
-        ResponseClass::BandPass if req.fc_hz.is_some() => InputError::new(
-            "bw",
-            "a band-pass with a fixed order needs bw (Hz) beside fc, or a specification",
-        ),
-        ResponseClass::BandPass => InputError::new(
+        ResponseClass::BandPass | ResponseClass::BandStop if req.fc_hz.is_some() => {
+            InputError::new(
+                "bw",
+                "a band-pass or band-stop with a fixed order needs bw (Hz) beside fc, or a \
+                 specification",
+            )
+        }
+        ResponseClass::BandPass | ResponseClass::BandStop => InputError::new(
             "fc",
-            "a band-pass with a fixed order needs fc (geometric centre, Hz) and bw (Hz), or a \
-             specification",
+            "a band-pass or band-stop with a fixed order needs fc (geometric centre, Hz) and bw \
+             (Hz), or a specification",
         ),
         _ => InputError::new(
             "fc",
@@ -323,6 +341,18 @@ pub fn band_from_mask(
             w0: TWO_PI * (lo * hi).sqrt(),
             bw: TWO_PI * (hi - lo) / u,
         },
+        (ResponseClass::BandStop, Edge::Pair(lo, hi)) => {
+            // The passband edges the minimum order was found for (order::bandstop_passband).
+            let (s_lo, s_hi) = match mask.stop {
+                Edge::Pair(a, b) => (a, b),
+                Edge::Single(f) => (f, f),
+            };
+            let (q_lo, q_hi) = order::bandstop_passband(lo, hi, s_lo, s_hi);
+            Band::BandStop {
+                w0: TWO_PI * (q_lo * q_hi).sqrt(),
+                bw: TWO_PI * (q_hi - q_lo) * u,
+            }
+        }
         // selectivity() has already rejected every other combination.
         _ => {
             return Err(InputError::new(
@@ -336,11 +366,16 @@ pub fn band_from_mask(
 /// The normalized frequency `w_s` at which the prototype's attenuation reaches `astop_db` (its
 /// attenuation rises monotonically past the passband for every family).
 fn stop_edge(proto: &Prototype, astop_db: f64) -> f64 {
-    solve_in_ln(|w| proto.attenuation_db(w) - astop_db, 1e-30, 1e30)
+    proto.stop_edge_for(astop_db)
 }
 
 /// The `Split` placement of [`band_from_mask`]: the `u` where `m_pass(u)/P = m_stop(u)/S`.
 fn split_edge(proto: &Prototype, mask: &Mask, selectivity: f64, w_pass: f64) -> f64 {
+    if proto.stop_edge.is_some() {
+        // With zeros the depth is the mask's own, so the stopband has no dB to spare: the spare
+        // is frequency room, shared as the geometric mean of the two placements.
+        return (w_pass * stop_edge(proto, mask.astop_db) / selectivity).sqrt();
+    }
     let m_pass = |u: f64| mask.apass_db - proto.attenuation_db(u);
     let m_stop = |u: f64| proto.attenuation_db(selectivity * u) - mask.astop_db;
     let mut u_lo = stop_edge(proto, mask.astop_db) / selectivity;

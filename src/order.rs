@@ -9,18 +9,29 @@
 //! * band-pass with passband edges `(p_lo, p_hi)`: each stopband edge `f_s` maps to
 //!   `|(f_s² − p_lo·p_hi) / (f_s·(p_lo − p_hi))|` under the low-pass → band-pass transform centred
 //!   on `√(p_lo·p_hi)` with bandwidth `p_hi − p_lo`, and `ν` is the smaller of the two, so that
-//!   asymmetric stopband edges are handled as scipy does.
+//!   asymmetric stopband edges are handled as scipy does;
+//! * band-stop with passband edges `(p_lo, p_hi)` (outer) and stopband edges (inner): each
+//!   stopband edge maps to `|f_s·(p_lo − p_hi) / (f_s² − p_lo·p_hi)|` under the low-pass →
+//!   band-stop transform, `ν` the smaller; as scipy's `buttord` … `ellipord` do, each passband
+//!   edge is first moved towards its stopband edge (the other held where the mask puts it) to the
+//!   place that makes `ν` largest, because an asymmetric mask is met by a geometrically symmetric
+//!   band-stop with a lower order when its centre moves (see [`bandstop_passband`]).
 //!
 //! Butterworth and Chebyshev (ripple = `apass`) then have closed forms:
 //! `n = ⌈log10((10^(As/10) − 1)/(10^(Ap/10) − 1)) / (2·log10 ν)⌉` and
-//! `n = ⌈acosh(√((10^(As/10) − 1)/(10^(Ap/10) − 1))) / acosh ν⌉`.
+//! `n = ⌈acosh(√((10^(As/10) − 1)/(10^(Ap/10) − 1))) / acosh ν⌉`; inverse Chebyshev (its depth
+//! = `astop`) has the Chebyshev form too, and elliptic (ripple = `apass`, depth = `astop`) the
+//! degree equation `n = ⌈K(1/ν²)·K'(k1²) / (K'(1/ν²)·K(k1²))⌉` with
+//! `k1² = (10^(Ap/10) − 1)/(10^(As/10) − 1)` (scipy `cheb2ord`, `ellipord`).
 //! Bessel, Linkwitz-Riley (even orders), critically damped, and Chebyshev with a ripple below
 //! `apass` are found by a search over the orders: for each order the prototype's passband edge
 //! `w_p` (where its attenuation is `apass`) is placed on the mask's passband edge, and the order is
 //! accepted when the attenuation at `ν·w_p` reaches `astop`.
 //!
-//! Orders are counted as the link key `order` counts them: a band-pass filter has twice the poles
-//! of its prototype, so its prototype order is at most 10.
+//! Inverse Chebyshev and elliptic take their stopband depth from the mask's `astop`.
+//!
+//! Orders are counted as the link key `order` counts them: a band-pass or band-stop filter has
+//! twice the poles of its prototype, so its prototype order is at most 10.
 
 use crate::error::InputError;
 use crate::fmath;
@@ -113,6 +124,8 @@ pub fn family_name(family: Family) -> String {
         Family::Bessel => "Bessel".into(),
         Family::LinkwitzRiley => "Linkwitz-Riley".into(),
         Family::Critical => "critically damped".into(),
+        Family::InverseChebyshev { .. } => "inverse Chebyshev".into(),
+        Family::Elliptic { ripple_db, .. } => format!("elliptic {ripple_db} dB"),
     }
 }
 
@@ -181,13 +194,18 @@ pub fn selectivity(class: ResponseClass, mask: &Mask) -> Result<f64, InputError>
             let map = |ws: f64| ((ws * ws - p_lo * p_hi) / (ws * (p_lo - p_hi))).abs();
             Ok(map(s_lo).min(map(s_hi)))
         }
-        (ResponseClass::BandPass, _, _) => Err(InputError::new(
+        (ResponseClass::BandStop, Edge::Pair(..), Edge::Pair(s_lo, s_hi)) => {
+            let (p_lo, p_hi) = check_bandstop(mask)?;
+            let (q_lo, q_hi) = bandstop_passband(p_lo, p_hi, s_lo, s_hi);
+            Ok(bandstop_selectivity(q_lo, q_hi, s_lo, s_hi))
+        }
+        (ResponseClass::BandPass | ResponseClass::BandStop, _, _) => Err(InputError::new(
             if matches!(mask.pass, Edge::Pair(..)) {
                 "stopedge"
             } else {
                 "passedge"
             },
-            "a band-pass mask needs two edges, lo,hi, for passedge and for stopedge",
+            "a band-pass or band-stop mask needs two edges, lo,hi, for passedge and for stopedge",
         )),
         (_, _, _) => Err(InputError::new(
             if matches!(mask.pass, Edge::Single(_)) {
@@ -197,6 +215,104 @@ pub fn selectivity(class: ResponseClass, mask: &Mask) -> Result<f64, InputError>
             },
             "a low-pass or high-pass mask needs one frequency for passedge and one for stopedge",
         )),
+    }
+}
+
+/// Checks a band-stop mask's edges: four positive frequencies, the stopband edges strictly inside
+/// the passband edges. Returns the passband edges.
+fn check_bandstop(mask: &Mask) -> Result<(f64, f64), InputError> {
+    let (Edge::Pair(p_lo, p_hi), Edge::Pair(s_lo, s_hi)) = (mask.pass, mask.stop) else {
+        return Err(InputError::new(
+            "passedge",
+            "a band-stop mask needs two edges, lo,hi, for passedge and for stopedge",
+        ));
+    };
+    for (key, f) in [
+        ("passedge", p_lo),
+        ("passedge", p_hi),
+        ("stopedge", s_lo),
+        ("stopedge", s_hi),
+    ] {
+        check_frequency(key, f)?;
+    }
+    if p_lo >= p_hi || s_lo >= s_hi {
+        return Err(InputError::new(
+            if p_lo >= p_hi { "passedge" } else { "stopedge" },
+            "band-stop edges must be lo,hi with lo < hi",
+        ));
+    }
+    if !(p_lo < s_lo && s_hi < p_hi) {
+        return Err(InputError::new(
+            "stopedge",
+            format!(
+                "band-stop stopband edges must lie inside the passband edges ({p_lo}–{p_hi} Hz): \
+                 lo above {p_lo} Hz, hi below {p_hi} Hz; got {s_lo},{s_hi}"
+            ),
+        ));
+    }
+    Ok((p_lo, p_hi))
+}
+
+/// `ν` of a band-stop with passband edges `(p_lo, p_hi)` and stopband edges `(s_lo, s_hi)`:
+/// the smaller of `|f_s·(p_lo − p_hi) / (f_s² − p_lo·p_hi)|` over both stopband edges (scipy's
+/// expression).
+pub fn bandstop_selectivity(p_lo: f64, p_hi: f64, s_lo: f64, s_hi: f64) -> f64 {
+    let map = |ws: f64| (ws * (p_lo - p_hi) / (ws * ws - p_lo * p_hi)).abs();
+    map(s_lo).min(map(s_hi))
+}
+
+/// The passband edges a band-stop is designed for: `p_lo` moved within `[p_lo, s_lo)` (with
+/// `p_hi` where the mask puts it) and `p_hi` within `(s_hi, p_hi]` (with `p_lo` where the mask
+/// puts it) to where [`bandstop_selectivity`] is largest, then both moved — the procedure of
+/// scipy's `_find_nat_freq` for band-stop. Each search is a scan of 64 points refined by golden
+/// sections; the moved edges lie inside the mask's passband edges, so a filter that meets them
+/// meets the mask.
+pub fn bandstop_passband(p_lo: f64, p_hi: f64, s_lo: f64, s_hi: f64) -> (f64, f64) {
+    let q_lo = maximize(
+        |x| bandstop_selectivity(x, p_hi, s_lo, s_hi),
+        p_lo,
+        s_lo - 1e-12 * s_lo,
+    );
+    let q_hi = maximize(
+        |x| bandstop_selectivity(p_lo, x, s_lo, s_hi),
+        s_hi + 1e-12 * s_hi,
+        p_hi,
+    );
+    (q_lo, q_hi)
+}
+
+/// The `x` in `[a, b]` where `f` is largest: a scan, then golden sections around the best point.
+fn maximize(f: impl Fn(f64) -> f64, a: f64, b: f64) -> f64 {
+    if !(a < b) {
+        return a;
+    }
+    const SCAN: usize = 64;
+    let at = |i: usize| a + (b - a) * i as f64 / SCAN as f64;
+    let mut best = 0;
+    for i in 1..=SCAN {
+        if f(at(i)) > f(at(best)) {
+            best = i;
+        }
+    }
+    let (mut lo, mut hi) = (at(best.saturating_sub(1)), at((best + 1).min(SCAN)));
+    let ratio = 0.618_033_988_749_894_9;
+    for _ in 0..200 {
+        if hi - lo <= 1e-15 * hi.abs() {
+            break;
+        }
+        let x1 = hi - ratio * (hi - lo);
+        let x2 = lo + ratio * (hi - lo);
+        if f(x1) < f(x2) {
+            lo = x1;
+        } else {
+            hi = x2;
+        }
+    }
+    let mid = 0.5 * (lo + hi);
+    if f(at(best)) > f(mid) {
+        at(best)
+    } else {
+        mid
     }
 }
 
@@ -233,19 +349,22 @@ fn check_attenuations(mask: &Mask) -> Result<(), InputError> {
     Ok(())
 }
 
-/// Largest prototype order for a class: 20 for lp/hp, 10 for band-pass (20 poles in all).
+/// Largest prototype order for a class: 20 for lp/hp, 10 for band-pass and band-stop (20 poles
+/// in all).
 pub fn max_prototype_order(class: ResponseClass) -> usize {
-    match class {
-        ResponseClass::BandPass => MAX_ORDER / 2,
-        _ => MAX_ORDER,
+    if class.is_band() {
+        MAX_ORDER / 2
+    } else {
+        MAX_ORDER
     }
 }
 
-/// Poles of the whole filter for a prototype order (×2 for band-pass).
+/// Poles of the whole filter for a prototype order (×2 for band-pass and band-stop).
 pub fn total_order(class: ResponseClass, prototype_order: usize) -> usize {
-    match class {
-        ResponseClass::BandPass => 2 * prototype_order,
-        _ => prototype_order,
+    if class.is_band() {
+        2 * prototype_order
+    } else {
+        prototype_order
     }
 }
 
@@ -263,6 +382,7 @@ pub fn min_order(
     class: ResponseClass,
     mask: &Mask,
 ) -> Result<MinOrder, OrderError> {
+    let family = family.with_stop_depth(mask.astop_db);
     let nu = selectivity(class, mask)?;
     let max_proto = max_prototype_order(class);
     let too_high = |needed: Option<usize>| OrderError::AboveLimit {
@@ -314,7 +434,42 @@ pub fn min_order(
         Family::Bessel | Family::Critical => {
             search(family, 1, 1, max_proto, nu, mask).map_or(Err(too_high(None)), accept)
         }
+        Family::InverseChebyshev { .. } => {
+            prototype::validate(family, 1)?;
+            let real = fmath::acosh(((g_stop - 1.0) / (g_pass - 1.0)).sqrt()) / fmath::acosh(nu);
+            accept(closed_form_order(real))
+        }
+        Family::Elliptic { ripple_db, .. } => {
+            prototype::validate(family, 1)?;
+            let same = (ripple_db - mask.apass_db).abs() <= 1e-9 * ripple_db.max(1.0);
+            if same {
+                accept(closed_form_order(elliptic_degree(nu, mask)))
+            } else if ripple_db > mask.apass_db {
+                Err(OrderError::Input(InputError::new(
+                    "ripple",
+                    format!(
+                        "ripple {ripple_db} dB is larger than passloss {} dB, so the passband \
+                         ripple alone breaks the mask; set ripple at most passloss",
+                        mask.apass_db
+                    ),
+                )))
+            } else {
+                search(family, 1, 1, max_proto, nu, mask).map_or(Err(too_high(None)), accept)
+            }
+        }
     }
+}
+
+/// The real order the elliptic degree equation asks for (scipy's `ellipord`):
+/// `K(1/ν²)·K'(k1²) / (K'(1/ν²)·K(k1²))`, `k1² = (10^(Ap/10) − 1)/(10^(As/10) − 1)`.
+fn elliptic_degree(nu: f64, mask: &Mask) -> f64 {
+    use prototype::elliptic::{ellipk, ellipkm1};
+    let ln10 = std::f64::consts::LN_10;
+    let arg1_sq =
+        fmath::exp_m1(0.1 * mask.apass_db * ln10) / fmath::exp_m1(0.1 * mask.astop_db * ln10);
+    let arg0 = 1.0 / nu;
+    let m0 = arg0 * arg0;
+    ellipk(m0) * ellipkm1(arg1_sq) / (ellipkm1(m0) * ellipk(arg1_sq))
 }
 
 /// `⌈x⌉` as an order, at least 1; saturates for absurd values instead of wrapping.
@@ -345,16 +500,17 @@ fn search(
             .ok()
             .and_then(|proto| {
                 let w_pass = proto.passband_edge(mask.apass_db).ok()?;
-                Some(proto.attenuation_db(nu * w_pass) >= mask.astop_db)
+                Some(proto.stopband_floor_db(nu * w_pass) >= mask.astop_db)
             })
             .unwrap_or(false)
     })
 }
 
-/// The minimum order of all five families for one mask, side by side (the family comparison).
+/// The minimum order of all seven families for one mask, side by side (the family comparison).
 ///
-/// Chebyshev uses `chebyshev_ripple_db`, or when `None` the mask's `apass` clamped to 0.01–3 dB
-/// (the usual choice: the ripple band is the allowed passband loss).
+/// Chebyshev and elliptic use `chebyshev_ripple_db`, or when `None` the mask's `apass` clamped to
+/// 0.01–3 dB (the usual choice: the ripple band is the allowed passband loss); inverse Chebyshev
+/// and elliptic take the mask's `astop` as their depth.
 pub fn compare_families(
     class: ResponseClass,
     mask: &Mask,
@@ -370,6 +526,13 @@ pub fn compare_families(
         Family::Bessel,
         Family::LinkwitzRiley,
         Family::Critical,
+        Family::InverseChebyshev {
+            astop_db: mask.astop_db,
+        },
+        Family::Elliptic {
+            ripple_db,
+            astop_db: mask.astop_db,
+        },
     ]
     .into_iter()
     .map(|family| FamilyOrder {

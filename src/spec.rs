@@ -14,16 +14,26 @@ pub enum ResponseClass {
     HighPass,
     /// Passes between two edges around a geometric centre (link value `bp`).
     BandPass,
+    /// Stops between two edges around a geometric centre, passes below and above (link value
+    /// `bs`); a second-order band-stop is a single notch.
+    BandStop,
 }
 
 impl ResponseClass {
-    /// The link value: `lp`, `hp` or `bp`.
+    /// The link value: `lp`, `hp`, `bp` or `bs`.
     pub fn key(self) -> &'static str {
         match self {
             Self::LowPass => "lp",
             Self::HighPass => "hp",
             Self::BandPass => "bp",
+            Self::BandStop => "bs",
         }
+    }
+
+    /// Whether the class is a band (pass or stop) whose edges come in pairs and whose order
+    /// counts twice the prototype's poles.
+    pub fn is_band(self) -> bool {
+        matches!(self, Self::BandPass | Self::BandStop)
     }
 }
 
@@ -43,10 +53,25 @@ pub enum Family {
     LinkwitzRiley,
     /// Coincident real poles (critically damped), scaled so the cutoff is the −3.01 dB point.
     Critical,
+    /// Inverse Chebyshev (Chebyshev type II): monotone passband, equiripple stopband of depth
+    /// `astop_db`; the cutoff is where that depth is first reached.
+    InverseChebyshev {
+        /// Equiripple stopband depth in dB (`stopdepth`, default 40; from the mask when there is one).
+        astop_db: f64,
+    },
+    /// Elliptic (Cauer): equiripple passband of `ripple_db` and stopband of depth `astop_db`; the
+    /// cutoff is the ripple-band edge.
+    Elliptic {
+        /// Peak-to-peak passband ripple in dB, 0.01–3.
+        ripple_db: f64,
+        /// Equiripple stopband depth in dB (`stopdepth`, default 40; from the mask when there is one).
+        astop_db: f64,
+    },
 }
 
 impl Family {
-    /// The link value: `butterworth`, `chebyshev`, `bessel`, `linkwitz-riley`, `critical`.
+    /// The link value: `butterworth`, `chebyshev`, `bessel`, `linkwitz-riley`, `critical`,
+    /// `inverse-chebyshev`, `elliptic`.
     pub fn key(self) -> &'static str {
         match self {
             Self::Butterworth => "butterworth",
@@ -54,16 +79,49 @@ impl Family {
             Self::Bessel => "bessel",
             Self::LinkwitzRiley => "linkwitz-riley",
             Self::Critical => "critical",
+            Self::InverseChebyshev { .. } => "inverse-chebyshev",
+            Self::Elliptic { .. } => "elliptic",
+        }
+    }
+
+    /// The passband ripple of Chebyshev and elliptic, dB; `None` for the other families.
+    pub fn ripple_db(self) -> Option<f64> {
+        match self {
+            Self::Chebyshev { ripple_db } | Self::Elliptic { ripple_db, .. } => Some(ripple_db),
+            _ => None,
+        }
+    }
+
+    /// The equiripple stopband depth of inverse Chebyshev and elliptic, dB; `None` otherwise.
+    pub fn stop_depth_db(self) -> Option<f64> {
+        match self {
+            Self::InverseChebyshev { astop_db } | Self::Elliptic { astop_db, .. } => Some(astop_db),
+            _ => None,
+        }
+    }
+
+    /// The family with its stopband depth set to `astop_db` (a mask's depth); the all-pole
+    /// families are returned unchanged.
+    pub fn with_stop_depth(self, astop_db: f64) -> Self {
+        match self {
+            Self::InverseChebyshev { .. } => Self::InverseChebyshev { astop_db },
+            Self::Elliptic { ripple_db, .. } => Self::Elliptic {
+                ripple_db,
+                astop_db,
+            },
+            other => other,
         }
     }
 }
 
-/// A frequency edge of the specification: one frequency for low- and high-pass, a pair for band-pass.
+/// A frequency edge of the specification: one frequency for low- and high-pass, a pair for
+/// band-pass and band-stop (band-stop: the passband edges are the outer pair, the stopband edges
+/// the inner pair).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub enum Edge {
     /// Low-pass or high-pass edge, Hz.
     Single(f64),
-    /// Band-pass edges `(lo, hi)`, Hz, `lo < hi`.
+    /// Band edges `(lo, hi)`, Hz, `lo < hi`.
     Pair(f64, f64),
 }
 

@@ -1,4 +1,5 @@
-//! Frequency transforms of the normalized low-pass prototype: low-pass, high-pass, band-pass.
+//! Frequency transforms of the normalized low-pass prototype: low-pass, high-pass, band-pass,
+//! band-stop.
 //!
 //! With the prototype variable `S` (characteristic frequency 1 rad/s) and the target `s` (rad/s):
 //!
@@ -6,7 +7,15 @@
 //! * high-pass at `wc`: `S = wc/s`, each pole `p → wc/p`, `n` zeros at the origin;
 //! * band-pass with centre `W0` and bandwidth `B`: `S = (s² + W0²)/(B·s)`; each prototype pole `p`
 //!   becomes the two roots of `s² − p·B·s + W0² = 0`, and `n` zeros sit at the origin (and `n` at
-//!   infinity).
+//!   infinity);
+//! * band-stop with centre `W0` and bandwidth `B`: `S = B·s/(s² + W0²)`; each prototype pole `p`
+//!   becomes the two roots of `s² − (B/p)·s + W0² = 0`.
+//!
+//! The prototype's jω-axis zeros `±jωz` move the same way: low-pass to `±jωz·wc`, high-pass to
+//! `±j·wc/ωz`, band-pass to the two pairs `±jy` with `y² ∓ ωz·B·y − W0² = 0`, band-stop to the two
+//! pairs with `y² ∓ (B/ωz)·y − W0² = 0` (in each case `y_a·y_b = W0²`). The prototype's zeros at
+//! infinity (`n − 2·⌊zeros⌋` of them) go to infinity (low-pass), the origin (high-pass), the origin
+//! and infinity (band-pass, one each) and `±jW0` (band-stop, one pair each).
 //!
 //! Band-pass pairing: a complex prototype pair `p, p*` gives four poles `q1, q2, q1*, q2*`; the
 //! sections are `{q1, q1*}` and `{q2, q2*}` (conjugate pairs, so each is a real second-order
@@ -41,6 +50,15 @@ pub enum Band {
         /// Bandwidth between the edges the prototype's 1 rad/s maps to, rad/s.
         bw: f64,
     },
+    /// Band-stop with geometric centre `w0` and bandwidth `bw` (both rad/s): the prototype's
+    /// ±1 rad/s map to the two edges `w_lo·w_hi = w0²`, `w_hi − w_lo = bw`, between which the
+    /// filter stops.
+    BandStop {
+        /// Geometric centre, rad/s.
+        w0: f64,
+        /// Bandwidth between the edges the prototype's 1 rad/s maps to, rad/s.
+        bw: f64,
+    },
 }
 
 impl Band {
@@ -50,6 +68,7 @@ impl Band {
             Self::LowPass { .. } => ResponseClass::LowPass,
             Self::HighPass { .. } => ResponseClass::HighPass,
             Self::BandPass { .. } => ResponseClass::BandPass,
+            Self::BandStop { .. } => ResponseClass::BandStop,
         }
     }
 }
@@ -63,15 +82,29 @@ pub struct Target {
     pub band: Band,
     /// One group per section (conjugate pair, real pair or single real pole), rad/s.
     pub groups: Vec<PoleGroup>,
-    /// Zeros at the origin: 0 (lp), `n` (hp), `n` prototype order (bp). All other zeros are at
-    /// infinity.
+    /// Zeros at the origin: the prototype's zeros at infinity `n − 2·m` (`m` its jω-axis pairs)
+    /// for hp and bp, none for lp and bs. All zeros not here or in `zero_pairs` are at infinity.
     pub zeros_at_origin: usize,
+    /// Frequencies `ω` of the pairs of zeros `±jω` on the jω axis, rad/s, ascending.
+    pub zero_pairs: Vec<f64>,
 }
 
 impl Target {
     /// All poles, rad/s, each conjugate pair as `p, p*`.
     pub fn poles(&self) -> Vec<Complex64> {
         crate::prototype::flatten(&self.groups)
+    }
+
+    /// All finite zeros, rad/s: the origin ones first, then each jω-axis pair as `+jω, −jω`
+    /// (the zeros scipy's `zpk` output lists).
+    pub fn zeros(&self) -> Vec<Complex64> {
+        let mut out = vec![Complex64::new(0.0, 0.0); self.zeros_at_origin];
+        out.extend(
+            self.zero_pairs
+                .iter()
+                .flat_map(|&w| [Complex64::new(0.0, w), Complex64::new(0.0, -w)]),
+        );
+        out
     }
 }
 
@@ -80,19 +113,21 @@ impl Target {
 /// The caller guarantees positive finite `wc`, `w0`, `bw` (see `design::synthesize`); a zero
 /// or non-finite value gives non-finite poles, never a panic.
 pub fn transform(proto: &Prototype, band: Band) -> Target {
-    let n = proto.order;
-    match band {
+    let at_infinity = proto.order - 2 * proto.zeros.len();
+    let mut target = match band {
         Band::LowPass { wc } => Target {
             class: ResponseClass::LowPass,
             band,
             groups: proto.groups.iter().map(|g| scale(*g, wc)).collect(),
             zeros_at_origin: 0,
+            zero_pairs: proto.zeros.iter().map(|wz| wz * wc).collect(),
         },
         Band::HighPass { wc } => Target {
             class: ResponseClass::HighPass,
             band,
             groups: proto.groups.iter().map(|g| invert(*g, wc)).collect(),
-            zeros_at_origin: n,
+            zeros_at_origin: at_infinity,
+            zero_pairs: proto.zeros.iter().map(|wz| wc / wz).collect(),
         },
         Band::BandPass { w0, bw } => Target {
             class: ResponseClass::BandPass,
@@ -102,9 +137,55 @@ pub fn transform(proto: &Prototype, band: Band) -> Target {
                 .iter()
                 .flat_map(|g| bandpass_group(*g, w0, bw))
                 .collect(),
-            zeros_at_origin: n,
+            zeros_at_origin: at_infinity,
+            zero_pairs: proto
+                .zeros
+                .iter()
+                .flat_map(|wz| axis_pair(wz * bw, w0))
+                .collect(),
         },
-    }
+        Band::BandStop { w0, bw } => {
+            let mut zero_pairs: Vec<f64> = proto
+                .zeros
+                .iter()
+                .flat_map(|wz| axis_pair(bw / wz, w0))
+                .collect();
+            zero_pairs.extend(std::iter::repeat(w0).take(at_infinity));
+            Target {
+                class: ResponseClass::BandStop,
+                band,
+                groups: proto
+                    .groups
+                    .iter()
+                    .flat_map(|g| bandstop_group(*g, w0, bw))
+                    .collect(),
+                zeros_at_origin: 0,
+                zero_pairs,
+            }
+        }
+    };
+    target.zero_pairs.sort_by(f64::total_cmp);
+    target
+}
+
+/// The two positive roots `y` of `y² ∓ c·y − W0² = 0` (one for each sign; their product is
+/// `W0²`): where a band transform puts the pair of prototype zeros whose image coefficient is
+/// `c` (band-pass `c = ωz·B`, band-stop `c = B/ωz`). The larger from the formula, the smaller
+/// from the product, without cancellation.
+fn axis_pair(c: f64, w0: f64) -> [f64; 2] {
+    let big = 0.5 * (c + (c * c + 4.0 * w0 * w0).sqrt());
+    [w0 * w0 / big, big]
+}
+
+/// Band-stop images of one prototype group: the band-pass images of the group's reciprocal
+/// (`s² − (B/p)·s + W0²` is the band-pass quadratic for `1/p`).
+fn bandstop_group(group: PoleGroup, w0: f64, bw: f64) -> Vec<PoleGroup> {
+    let reciprocal = match group {
+        PoleGroup::Real(p) => PoleGroup::Real(1.0 / p),
+        PoleGroup::Conjugate(p) => PoleGroup::Conjugate((Complex64::new(1.0, 0.0) / p).conj()),
+        PoleGroup::RealPair(a, b) => PoleGroup::RealPair(1.0 / a, 1.0 / b),
+    };
+    bandpass_group(reciprocal, w0, bw)
 }
 
 /// `p → p·wc`.

@@ -564,7 +564,8 @@ fn random_mask(rng: &mut Xoshiro256PlusPlus, class: ResponseClass) -> Mask {
     let (pass, stop) = match class {
         ResponseClass::LowPass => (Edge::Single(f), Edge::Single(f * ratio)),
         ResponseClass::HighPass => (Edge::Single(f), Edge::Single(f / ratio)),
-        ResponseClass::BandPass => {
+        // Band-stop masks are drawn in tests/zeros_synthesis.rs; this test uses lp, hp and bp.
+        ResponseClass::BandPass | ResponseClass::BandStop => {
             let hi = f * uniform(rng, 1.1, 10.0);
             // Independent ratios on both sides make asymmetric stopband edges.
             let s_lo = f / uniform(rng, 1.5, 8.0);

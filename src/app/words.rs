@@ -152,6 +152,7 @@ fn class_words(class: ResponseClass) -> &'static str {
         ResponseClass::LowPass => "low-pass",
         ResponseClass::HighPass => "high-pass",
         ResponseClass::BandPass => "band-pass",
+        ResponseClass::BandStop => "band-stop",
     }
 }
 

@@ -2,7 +2,8 @@
 //!
 //! The shape is a contract (see the README): top-level `order`, `family`, `resp`, `stages` in
 //! signal order (each with `order`, `f0_hz`, `q`, `fz_hz` (`null` without zeros), `gain`, `topology`, `parts`, `achieved`), `parts`
-//! (every part of the board) and `warnings`, plus the requirement, the mask, the poles, the family
+//! (every part of the board) and `warnings`, plus the requirement, the mask, the poles and the
+//! zeros (`zeros`: every finite zero, rad/s, the origin ones first, as `re`/`im` like `poles`), the family
 //! comparison and the analyses. Non-finite numbers are written as `null`.
 
 use crate::analysis::tolerance::Summary;
@@ -63,7 +64,7 @@ pub fn design_value(design: &Design) -> Value {
     let req = &design.state.requirement;
     let syn = &design.synthesis;
     let ripple = match req.family {
-        Family::Chebyshev { ripple_db } => Some(ripple_db),
+        Family::Chebyshev { ripple_db } | Family::Elliptic { ripple_db, .. } => Some(ripple_db),
         _ => None,
     };
     let stages: Vec<Value> = design
@@ -103,6 +104,11 @@ pub fn design_value(design: &Design) -> Value {
         .iter()
         .map(|p| json!({"re": p.re, "im": p.im}))
         .collect();
+    let zeros: Vec<Value> = syn
+        .zeros
+        .iter()
+        .map(|z| json!({"re": z.re, "im": z.im}))
+        .collect();
     let mask = req.mask.map(|m| {
         json!({
             "passedge_hz": edge_json(m.pass),
@@ -137,6 +143,7 @@ pub fn design_value(design: &Design) -> Value {
         "mask": mask,
         "family_orders": family_orders,
         "poles": poles,
+        "zeros": zeros,
         "op_amp": {
             "gbw_hz": finite(op.gbw_hz),
             "a0_db": finite(op.a0_db),

@@ -18,6 +18,7 @@ pub fn summary_line(design: &Design) -> String {
         ResponseClass::LowPass => "low-pass",
         ResponseClass::HighPass => "high-pass",
         ResponseClass::BandPass => "band-pass",
+        ResponseClass::BandStop => "band-stop",
     };
     let place = match syn.bw_hz {
         Some(bw) => format!("centred on {}Hz, {}Hz wide", spaced(syn.fc_hz), spaced(bw)),
@@ -95,6 +96,22 @@ pub fn design_text(design: &Design) -> String {
             };
             let _ = writeln!(out, "  {:<24} {text}", family_name(row.family));
         }
+    }
+    // The jω-axis zeros (inverse Chebyshev, elliptic, band-stop): where the response goes to
+    // nothing, one frequency per pair.
+    let notches: Vec<String> = design
+        .synthesis
+        .zeros
+        .iter()
+        .filter(|z| z.im > 0.0)
+        .map(|z| format!("{}Hz", spaced(z.im / (2.0 * std::f64::consts::PI))))
+        .collect();
+    if !notches.is_empty() {
+        let _ = writeln!(
+            out,
+            "\nZeros (pairs on the jω axis): {}",
+            notches.join(", ")
+        );
     }
     let _ = writeln!(out, "\nStages (signal order; f0 and Q parts: the rounded parts on an ideal op amp, the board as built below):");
     let _ = writeln!(

@@ -15,7 +15,7 @@ use super::{Distribution, LinkState, DEFAULT_APASS_DB, DEFAULT_RIPPLE_DB, FORMAT
 use crate::choices::Rounding;
 use crate::eseries::Series;
 use crate::sections::StageOrder;
-use crate::spec::{Edge, Family, MarginPlacement, OrderChoice, ResponseClass};
+use crate::spec::{Edge, MarginPlacement, OrderChoice, ResponseClass};
 use crate::topology::Topology;
 
 /// A link key, by what it means; its name lives only in its [`TABLE`] row.
@@ -256,20 +256,24 @@ fn name_of<T: PartialEq>(table: &[(&'static str, T)], value: &T) -> Option<Strin
         .map(|(n, _)| n.to_string())
 }
 
-pub(crate) const CLASSES: [(&str, ResponseClass); 3] = [
+pub(crate) const CLASSES: [(&str, ResponseClass); 4] = [
     ("lp", ResponseClass::LowPass),
     ("hp", ResponseClass::HighPass),
     ("bp", ResponseClass::BandPass),
+    ("bs", ResponseClass::BandStop),
 ];
-const CLASS_NAMES: [&str; 3] = names(&CLASSES);
+const CLASS_NAMES: [&str; 4] = names(&CLASSES);
 
-/// The family names, by index; [`super::read`] builds the [`Family`] (Chebyshev needs its ripple).
-pub(crate) const FAMILY_NAMES: [&str; 5] = [
+/// The family names, by index; [`super::read`] builds the [`crate::spec::Family`] (Chebyshev and elliptic need
+/// their ripple, inverse Chebyshev and elliptic their stopband depth).
+pub(crate) const FAMILY_NAMES: [&str; 7] = [
     "butterworth",
     "chebyshev",
     "bessel",
     "linkwitz-riley",
     "critical",
+    "inverse-chebyshev",
+    "elliptic",
 ];
 
 pub(crate) const MARGINS: [(&str, MarginPlacement); 3] = [
@@ -415,12 +419,9 @@ pub(crate) const TABLE: [Row; 46] = [
     row(
         Key::Ripple,
         "ripple",
-        num(0.01, 3.0, "Chebyshev passband ripple in dB"),
+        num(0.01, 3.0, "Chebyshev or elliptic passband ripple in dB"),
         None,
-        |s| match s.requirement.family {
-            Family::Chebyshev { ripple_db } => Some(number_text(ripple_db)),
-            _ => None,
-        },
+        |s| s.requirement.family.ripple_db().map(number_text),
     )
     .always()
     .shown(Shown::Number(DEFAULT_RIPPLE_DB)),
@@ -480,10 +481,13 @@ pub(crate) const TABLE: [Row; 46] = [
         None,
         |s| {
             let filled = s.converter.map(|c| c.stop_depth_db());
-            s.requirement
-                .mask
-                .filter(|m| Some(m.astop_db) != filled)
-                .map(|m| number_text(m.astop_db))
+            match s.requirement.mask {
+                Some(m) => Some(m)
+                    .filter(|m| Some(m.astop_db) != filled)
+                    .map(|m| number_text(m.astop_db)),
+                // Without limits the key is the equiripple depth of inverse Chebyshev and elliptic.
+                None => s.requirement.family.stop_depth_db().map(number_text),
+            }
         },
     )
     .v1("astop")

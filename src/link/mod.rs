@@ -13,6 +13,7 @@
 //! Keys, their accepted values and defaults are documented in the README (section "Link keys").
 
 mod keys;
+mod quote;
 mod read;
 mod write;
 

@@ -13,6 +13,8 @@
 //! escaped, long values cut), and every frequency-like key passes the one [`check_frequency`].
 
 use super::keys::{self, name, row_of, Key, Parse, Value, FAMILY_NAMES, MARGINS, TABLE, TARGET_HZ};
+pub use super::quote::{check_frequency, escape_controls, quoted, shown_number};
+use super::quote::{range_text, si};
 use super::{
     Converter, LinkReport, LinkState, DEFAULT_APASS_DB, DEFAULT_FC_HZ, DEFAULT_ORDER,
     DEFAULT_RIPPLE_DB, FORMAT_VERSION, MAX_ORDER,
@@ -20,102 +22,10 @@ use super::{
 use crate::error::InputError;
 use crate::sections::StageOrder;
 use crate::spec::{Edge, Family, Mask, OrderChoice, ResponseClass};
-use crate::units::parse_si;
-
-/// The longest stretch of the user's text a message quotes, in characters.
-pub const QUOTE_CHARS: usize = 60;
 
 /// The longest part reference the reader takes (`R12345`): longer ones are refused rather than
 /// carried into messages and the parts list.
 const MAX_REFERENCE_CHARS: usize = 8;
-
-/// One character as a message shows it: control characters (C0, DEL, C1) and the bidirectional
-/// formatting characters, which a terminal or a page would act on rather than show, are written
-/// as a Rust-style escape `\u{1b}`; everything else is itself.
-fn push_escaped(out: &mut String, c: char) {
-    let bidi =
-        matches!(c, '\u{200e}' | '\u{200f}' | '\u{202a}'..='\u{202e}' | '\u{2066}'..='\u{2069}');
-    if c.is_control() || bidi {
-        out.push_str(&format!("\\u{{{:x}}}", c as u32));
-    } else {
-        out.push(c);
-    }
-}
-
-/// `text` with every control and bidirectional formatting character escaped as `\u{…}`, and
-/// nothing cut: the last guard the command line puts on every line it writes to stderr.
-pub fn escape_controls(text: &str) -> String {
-    let mut out = String::with_capacity(text.len());
-    for c in text.chars() {
-        push_escaped(&mut out, c);
-    }
-    out
-}
-
-/// The user's text as every message quotes it: between single quotes, control characters
-/// escaped as in [`escape_controls`] (`'a\u{1b}]0;x\u{7}'`), and a text longer than
-/// [`QUOTE_CHARS`] characters cut to its first [`QUOTE_CHARS`] followed by
-/// `… (N characters)`, so a 100 kB value is never echoed whole.
-pub fn quoted(text: &str) -> String {
-    let n_chars = text.chars().count();
-    let mut out = String::from("'");
-    for c in text.chars().take(QUOTE_CHARS) {
-        push_escaped(&mut out, c);
-    }
-    out.push('\'');
-    if n_chars > QUOTE_CHARS {
-        out.push_str(&format!("… ({n_chars} characters)"));
-    }
-    out
-}
-
-/// A number as a message shows it: plain when it is short (`0.5`, `1000`), in scientific form
-/// otherwise (`1e-308`), so an extreme value never prints hundreds of digits.
-pub fn shown_number(v: f64) -> String {
-    if v == 0.0 || !v.is_finite() || (1e-4..1e9).contains(&v.abs()) {
-        format!("{v}")
-    } else {
-        format!("{v:e}")
-    }
-}
-
-/// [`parse_si`] with the user's text in its message quoted by [`quoted`].
-fn si(text: &str) -> Result<f64, String> {
-    parse_si(text).map_err(|e| {
-        let trimmed = text.trim();
-        e.replacen(&format!("'{trimmed}'"), &quoted(trimmed), 1)
-    })
-}
-
-/// The one check of every frequency-like value (the link's cutoff, bandwidth, edges, converter
-/// rates, noise band and span, and the sweep's `--from` and `--to`): a number in engineering
-/// notation that is normal (not zero, subnormal, infinite or NaN) and lies within `range`, Hz.
-/// `what` names the value in the message, which gives the accepted range.
-///
-/// # Errors
-/// A message quoting the text (through [`quoted`]) and naming the range.
-pub fn check_frequency(text: &str, range: (f64, f64), what: &str) -> Result<f64, String> {
-    let v = si(text)?;
-    if v.is_normal() && v >= range.0 && v <= range.1 {
-        Ok(v)
-    } else {
-        Err(format!(
-            "{} is not accepted; {what} is a frequency in Hz from {}",
-            quoted(text.trim()),
-            range_text(range)
-        ))
-    }
-}
-
-/// A frequency range as messages give it: `1 mHz to 1 GHz`.
-fn range_text((lo, hi): (f64, f64)) -> String {
-    let hz = |f: f64| crate::units::format_si_unit(f, 4, "Hz");
-    if lo <= f64::MIN_POSITIVE {
-        // The span's reading range: any normal number, which no SI prefix writes.
-        return format!("above 0 Hz (not a subnormal number) to {}", hz(hi));
-    }
-    format!("{} to {}", hz(lo), hz(hi))
-}
 
 /// The link format a link is read in.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -419,17 +329,19 @@ impl Reader {
         let range = range_text(TARGET_HZ);
         let text = quoted(text);
         match (self.class, parts.as_slice()) {
-            (ResponseClass::BandPass, [lo, hi]) => match (read(lo), read(hi)) {
-                (Some(lo), Some(hi)) if lo < hi => Some(Edge::Pair(lo, hi)),
-                _ => {
-                    self.fail(key, format!("{text} is not accepted; band-pass needs two edges lo,hi in Hz with lo < hi ({range})"));
-                    None
+            (ResponseClass::BandPass | ResponseClass::BandStop, [lo, hi]) => {
+                match (read(lo), read(hi)) {
+                    (Some(lo), Some(hi)) if lo < hi => Some(Edge::Pair(lo, hi)),
+                    _ => {
+                        self.fail(key, format!("{text} is not accepted; band-pass and band-stop need two edges lo,hi in Hz with lo < hi ({range})"));
+                        None
+                    }
                 }
-            },
-            (ResponseClass::BandPass, _) => {
+            }
+            (ResponseClass::BandPass | ResponseClass::BandStop, _) => {
                 self.fail(
                     key,
-                    format!("{text} is not accepted; band-pass needs two edges lo,hi in Hz"),
+                    format!("{text} is not accepted; band-pass and band-stop need two edges lo,hi in Hz"),
                 );
                 None
             }
@@ -542,7 +454,31 @@ impl Reader {
         let order = self.read_number(Key::Order).map(|n| n as usize);
         let fc = self.read_number(Key::Fc);
         let bw = self.read_number(Key::Bw);
-        let mask = self.read_mask(class, &mut state);
+        let with_zeros = matches!(
+            family_index.map(|i| FAMILY_NAMES[i]),
+            Some("inverse-chebyshev" | "elliptic")
+        );
+        // Inverse Chebyshev and elliptic read stopdepth alone (no edges) as their equiripple
+        // depth; with edges it is the mask's depth, as for every family.
+        let edges_given = [
+            Key::PassEdge,
+            Key::StopEdge,
+            Key::Fsample,
+            Key::Adcbits,
+            Key::Fsignal,
+        ]
+        .iter()
+        .any(|k| self.given(*k));
+        let family_depth = if with_zeros && !edges_given {
+            self.read_number(Key::StopDepth)
+        } else {
+            None
+        };
+        let mask = if family_depth.is_some() {
+            None
+        } else {
+            self.read_mask(class, &mut state)
+        };
         if let Some(i) = self.read_choice(Key::Margin) {
             state.requirement.margin = MARGINS[i].1;
         }
@@ -555,20 +491,40 @@ impl Reader {
             (None, Some(m)) if (0.02..=6.0).contains(&m.apass_db) => m.apass_db / 2.0,
             _ => DEFAULT_RIPPLE_DB,
         };
+        let astop_db = family_depth
+            .or(mask.map(|m| m.astop_db))
+            .unwrap_or(crate::prototype::DEFAULT_STOP_DEPTH_DB);
         let family = match family_index.map(|i| FAMILY_NAMES[i]) {
             Some("chebyshev") => Family::Chebyshev { ripple_db },
             Some("bessel") => Family::Bessel,
             Some("linkwitz-riley") => Family::LinkwitzRiley,
             Some("critical") => Family::Critical,
+            Some("inverse-chebyshev") => Family::InverseChebyshev { astop_db },
+            Some("elliptic") => Family::Elliptic {
+                ripple_db,
+                astop_db,
+            },
             _ => Family::Butterworth,
         };
-        if ripple.is_some() && !matches!(family, Family::Chebyshev { .. }) {
+        if let Family::Elliptic {
+            ripple_db,
+            astop_db,
+        } = family
+        {
+            if astop_db <= ripple_db {
+                self.fail(
+                    Key::StopDepth,
+                    format!("{astop_db} dB is not above the ripple {ripple_db} dB; an elliptic stopband must be deeper than its passband ripple"),
+                );
+            }
+        }
+        if ripple.is_some() && family.ripple_db().is_none() {
             self.notes
-                .push("ripple: only Chebyshev uses a ripple; ignored".into());
+                .push("ripple: only Chebyshev and elliptic use a ripple; ignored".into());
         }
         let order = match order {
-            Some(n) if class == ResponseClass::BandPass && n % 2 == 1 => {
-                self.fail(Key::Order, format!("{n} is not accepted; a band-pass order counts the poles of the whole filter and is even, 2 to {MAX_ORDER}"));
+            Some(n) if class.is_band() && n % 2 == 1 => {
+                self.fail(Key::Order, format!("{n} is not accepted; a band-pass or band-stop order counts the poles of the whole filter and is even, 2 to {MAX_ORDER}"));
                 None
             }
             Some(n)
@@ -623,14 +579,16 @@ impl Reader {
             (None, false, false) => Some(DEFAULT_FC_HZ),
         };
         state.requirement.bw_hz = match class {
-            ResponseClass::BandPass if state.requirement.fc_hz.is_some() => {
+            ResponseClass::BandPass | ResponseClass::BandStop
+                if state.requirement.fc_hz.is_some() =>
+            {
                 Some(bw.unwrap_or_else(|| state.requirement.fc_hz.unwrap_or(DEFAULT_FC_HZ)))
             }
-            ResponseClass::BandPass => None,
+            ResponseClass::BandPass | ResponseClass::BandStop => None,
             _ => {
                 if bw.is_some() {
                     self.notes.push(format!(
-                        "{}: only band-pass uses a bandwidth; ignored",
+                        "{}: only band-pass and band-stop use a bandwidth; ignored",
                         name(Key::Bw)
                     ));
                 }
@@ -758,6 +716,7 @@ impl Reader {
             (ResponseClass::LowPass, Edge::Single(p), Edge::Single(s)) => s > p,
             (ResponseClass::HighPass, Edge::Single(p), Edge::Single(s)) => s < p,
             (ResponseClass::BandPass, Edge::Pair(pl, ph), Edge::Pair(sl, sh)) => sl < pl && sh > ph,
+            (ResponseClass::BandStop, Edge::Pair(pl, ph), Edge::Pair(sl, sh)) => pl < sl && sh < ph,
             _ => false,
         };
         if !consistent {
@@ -773,10 +732,19 @@ impl Reader {
                     s = name(Key::StopEdge),
                     p = name(Key::PassEdge)
                 ),
+                ResponseClass::BandStop => format!(
+                    "band-stop stopband edges lie inside the passband edges ({p} lo < {s} lo, {s} hi < {p} hi)",
+                    s = name(Key::StopEdge),
+                    p = name(Key::PassEdge)
+                ),
             };
             self.fail(
                 Key::StopEdge,
-                format!("the stopband edge lies inside the passband; {rule}"),
+                if class == ResponseClass::BandStop {
+                    format!("the stopband edges do not lie inside the passband edges; {rule}")
+                } else {
+                    format!("the stopband edge lies inside the passband; {rule}")
+                },
             );
             return None;
         }

@@ -59,7 +59,7 @@ pub const SOURCE_LOAD_MIN_OHM: f64 = 1e3;
 /// the op amp's gain-bandwidth takes gain away). The tolerance study reads its runs' gain here too.
 pub fn passband_ref_hz(design: &Design) -> f64 {
     match design.state.requirement.class {
-        ResponseClass::LowPass => 0.0,
+        ResponseClass::LowPass | ResponseClass::BandStop => 0.0,
         ResponseClass::HighPass => design.synthesis.fc_hz * 10.0,
         ResponseClass::BandPass => design.synthesis.fc_hz,
     }
@@ -70,6 +70,7 @@ pub fn passband_ref_hz(design: &Design) -> f64 {
 /// serve the stopband the verdict checks as a whole.
 pub fn required_notch_depth_db(design: &Design) -> Option<f64> {
     match design.state.requirement.class {
+        ResponseClass::BandStop => design.state.requirement.mask.map(|m| m.astop_db),
         ResponseClass::LowPass | ResponseClass::HighPass | ResponseClass::BandPass => None,
     }
 }
@@ -88,6 +89,8 @@ pub fn signal_band_hz(design: &Design) -> (f64, f64) {
         (ResponseClass::BandPass, _) => band_pass_edges_hz(design),
         (ResponseClass::HighPass, Some(Edge::Single(f))) => (f, f * HIGH_PASS_TOP),
         (ResponseClass::HighPass, _) => (syn.fc_hz, syn.fc_hz * HIGH_PASS_TOP),
+        // A band-stop passes everything outside its notch: the whole span.
+        (ResponseClass::BandStop, _) => design.span_hz,
     }
 }
 
@@ -121,6 +124,7 @@ pub fn gbw_band_hz(design: &Design) -> (f64, f64) {
         ResponseClass::BandPass => band_pass_edges_hz(design),
         ResponseClass::HighPass if signal_hi > edge => (edge, signal_hi),
         ResponseClass::HighPass => (edge, edge * HIGH_PASS_TOP),
+        ResponseClass::BandStop => (signal_lo, signal_hi),
     }
 }
 

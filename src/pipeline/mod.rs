@@ -88,16 +88,13 @@ pub fn compose(state: &LinkState) -> Result<Design, InputError> {
     let board = Board::build(&synthesis.sections, &build_choices(state))?;
     check_tolerance_parts(&board, &state.tolerance_overrides)?;
     let family_orders = state.requirement.mask.as_ref().map(|mask| {
-        let ripple = match state.requirement.family {
-            Family::Chebyshev { ripple_db } => Some(ripple_db),
-            _ => None,
-        };
+        let ripple = state.requirement.family.ripple_db();
         family_comparison(state.requirement.class, mask, ripple)
     });
     let mut warnings = synthesis.warnings.clone();
     warnings.extend(realism_warnings(state, &board));
-    if let (Family::Chebyshev { ripple_db }, Some(mask)) =
-        (state.requirement.family, state.requirement.mask)
+    if let (Some(ripple_db), Some(mask)) =
+        (state.requirement.family.ripple_db(), state.requirement.mask)
     {
         let margin = mask.apass_db - ripple_db;
         if margin > 0.0 {

@@ -37,7 +37,9 @@ pub struct AsBuilt {
 /// How far below the passband gain the family's cutoff lies, dB.
 pub fn cutoff_level_db(family: Family) -> f64 {
     match family {
-        Family::Chebyshev { ripple_db } => ripple_db,
+        Family::Chebyshev { ripple_db } | Family::Elliptic { ripple_db, .. } => ripple_db,
+        // The cutoff of an inverse Chebyshev is where its stopband depth is first reached.
+        Family::InverseChebyshev { astop_db } => astop_db,
         Family::LinkwitzRiley => 20.0 * fmath::log10(2f64),
         _ => 10.0 * fmath::log10(2f64),
     }
@@ -116,7 +118,11 @@ pub fn as_built(design: &Design, solver: &mut BoardSolver, passband_gain_db: f64
     grid.dedup();
     // The band's outer edges: inside an equiripple passband the troughs touch the cutoff level
     // (and, built, may dip through it), which is not a corner.
-    let all = crossings(solver, &grid, req.gain_db - cutoff_level_db(req.family));
+    let all = crossings(
+        solver,
+        &grid,
+        req.gain_db - cutoff_level_db(design.synthesis.family),
+    );
     let corner_hz = match (req.class, all.first(), all.last()) {
         (_, None, _) | (_, _, None) => Vec::new(),
         (crate::spec::ResponseClass::LowPass, _, Some(&hi)) => vec![hi],
@@ -125,6 +131,27 @@ pub fn as_built(design: &Design, solver: &mut BoardSolver, passband_gain_db: f64
             vec![lo, hi]
         }
         (crate::spec::ResponseClass::BandPass, Some(&lo), _) => vec![lo],
+        (crate::spec::ResponseClass::BandStop, Some(&lo), Some(&hi)) if all.len() > 1 => {
+            vec![lo, hi]
+        }
+        (crate::spec::ResponseClass::BandStop, Some(&lo), _) => vec![lo],
+    };
+    // An inverse Chebyshev reaches its depth first next to the passband, and its stopband then
+    // touches that level again at every ripple: the corner is the crossing nearest the passband.
+    let corner_hz = match (design.synthesis.family, req.class) {
+        (Family::InverseChebyshev { .. }, crate::spec::ResponseClass::LowPass) => {
+            all.first().map(|&f| vec![f]).unwrap_or_default()
+        }
+        (Family::InverseChebyshev { .. }, crate::spec::ResponseClass::HighPass) => {
+            all.last().map(|&f| vec![f]).unwrap_or_default()
+        }
+        (Family::InverseChebyshev { .. }, crate::spec::ResponseClass::BandPass) => {
+            let centre = design.synthesis.fc_hz;
+            let below = all.iter().rev().find(|&&f| f < centre);
+            let above = all.iter().find(|&&f| f > centre);
+            below.into_iter().chain(above).copied().collect()
+        }
+        _ => corner_hz,
     };
     let (i_peak, _) = grid
         .iter()

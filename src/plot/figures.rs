@@ -226,6 +226,11 @@ pub fn mask_regions(class: ResponseClass, mask: &Mask, gain_db: f64) -> Vec<Laye
             region(-inf, s_lo, ceiling, inf),
             region(s_hi, inf, ceiling, inf),
         ],
+        ResponseClass::BandStop => vec![
+            region(-inf, p_lo, -inf, floor),
+            region(p_hi, inf, -inf, floor),
+            region(s_lo, s_hi, ceiling, inf),
+        ],
     }
 }
 

@@ -1,7 +1,8 @@
 //! Normalized low-pass prototypes: the poles of each family at 1 rad/s.
 //!
-//! Every prototype is an all-pole low-pass `H(s) = k / ∏(s − p_i)` with its characteristic
-//! frequency at 1 rad/s:
+//! Every prototype is a low-pass `H(s) = k·∏(s² + ωz_j²) / ∏(s − p_i)` with its characteristic
+//! frequency at 1 rad/s; the all-pole families have no finite zeros, inverse Chebyshev and
+//! elliptic have `⌊n/2⌋` pairs on the jω axis:
 //!
 //! | family | what sits at 1 rad/s | poles |
 //! |---|---|---|
@@ -10,6 +11,8 @@
 //! | Bessel | −3.01 dB point (magnitude normalization) | roots of the reverse Bessel polynomial, scaled |
 //! | Linkwitz-Riley | −6.02 dB point | each pole of Butterworth(n/2) twice |
 //! | critically damped | −3.01 dB point | n poles at `−a`, `a = 1/√(2^(1/n) − 1)` |
+//! | inverse Chebyshev | where the stopband depth is first reached | submodule `inverse_chebyshev` |
+//! | elliptic | edge of the ripple band | submodule `elliptic` (Jacobi elliptic functions) |
 //!
 //! The Butterworth, Chebyshev and Bessel poles and gains agree with `scipy.signal.buttap`,
 //! `cheb1ap` and `besselap(norm='mag')`. Every prototype is scaled so that its passband *maximum*
@@ -25,6 +28,8 @@
 //! families and the one-dimensional root finds the design step shares.
 
 mod bessel;
+pub mod elliptic;
+mod inverse_chebyshev;
 
 use crate::fmath;
 use num_complex::Complex64;
@@ -41,6 +46,13 @@ pub const MIN_RIPPLE_DB: f64 = 0.01;
 
 /// Largest Chebyshev ripple accepted, dB (link key `ripple`).
 pub const MAX_RIPPLE_DB: f64 = 3.0;
+
+/// Equiripple stopband depth of inverse Chebyshev and elliptic when neither the link nor a mask
+/// sets it, dB (link key `stopdepth`, v1 `astop`).
+pub const DEFAULT_STOP_DEPTH_DB: f64 = 40.0;
+
+/// Largest equiripple stopband depth designed, dB.
+pub const MAX_STOP_DEPTH_DB: f64 = 200.0;
 
 /// How the poles of a filter group into sections.
 ///
@@ -115,8 +127,17 @@ pub struct Prototype {
     /// `|H(jω)|` is 1 (the link key `gain` names the passband maximum). For every family but
     /// even-order Chebyshev that is `k = ∏(−p_i)` (DC gain 1); an even-order Chebyshev peaks
     /// inside the ripple band and has its DC gain at `1/√(1 + ε²)` (−ripple dB), so
-    /// `k = ∏(−p_i)/√(1 + ε²)` — the same `k` as scipy's `cheb1ap`.
+    /// `k = ∏(−p_i)/√(1 + ε²)` — the same `k` as scipy's `cheb1ap`. With zeros,
+    /// `k = ∏(−p_i)/∏ωz_j²` (and the same `1/√(1 + ε²)` for an even-order elliptic), scipy's
+    /// `cheb2ap` and `ellipap`.
     pub gain: f64,
+    /// Frequencies `ωz` of the pairs of zeros `±jωz` on the jω axis, rad/s (normalized),
+    /// ascending; empty for the all-pole families.
+    pub zeros: Vec<f64>,
+    /// Where the equiripple stopband begins, rad/s (normalized): 1 for inverse Chebyshev, `1/k`
+    /// for elliptic (`None` for the all-pole families and for a first-order elliptic, whose
+    /// stopband rises monotonically).
+    pub stop_edge: Option<f64>,
 }
 
 impl Prototype {
@@ -125,12 +146,24 @@ impl Prototype {
         flatten(&self.groups)
     }
 
+    /// All finite zeros, rad/s (normalized), each pair as `+jωz, −jωz`.
+    pub fn zeros_complex(&self) -> Vec<Complex64> {
+        self.zeros
+            .iter()
+            .flat_map(|&w| [Complex64::new(0.0, w), Complex64::new(0.0, -w)])
+            .collect()
+    }
+
     /// `H(jw)` of the prototype at normalized angular frequency `w` (rad/s).
     pub fn response(&self, w: f64) -> Complex64 {
         let jw = Complex64::new(0.0, w);
+        let numerator = self
+            .zeros
+            .iter()
+            .fold(self.gain, |acc, wz| acc * (wz * wz - w * w));
         self.groups
             .iter()
-            .fold(Complex64::new(self.gain, 0.0), |h, g| match *g {
+            .fold(Complex64::new(numerator, 0.0), |h, g| match *g {
                 PoleGroup::Real(p) => h / (jw - p),
                 PoleGroup::Conjugate(p) => h / (jw - p) / (jw - p.conj()),
                 PoleGroup::RealPair(a, b) => h / (jw - a) / (jw - b),
@@ -141,7 +174,9 @@ impl Prototype {
     /// even-order Chebyshev, where it is `1/√(1 + ε²)` (−ripple dB).
     pub fn reference_gain(&self) -> f64 {
         match self.family {
-            Family::Chebyshev { ripple_db } if self.order % 2 == 0 => {
+            Family::Chebyshev { ripple_db } | Family::Elliptic { ripple_db, .. }
+                if self.order % 2 == 0 =>
+            {
                 fmath::exp(-ripple_db / 20.0 * std::f64::consts::LN_10)
             }
             _ => 1.0,
@@ -176,7 +211,82 @@ impl Prototype {
                 decades -= 100.0;
             }
         }
-        10.0 * (fmath::log10(product) + decades) - 20.0 * fmath::log10(self.gain)
+        let mut zero_product = 1.0f64;
+        let mut zero_decades = 0.0f64;
+        for wz in &self.zeros {
+            let factor = (wz * wz - w * w) * (wz * wz - w * w);
+            zero_product *= factor;
+            while zero_product > STEP {
+                zero_product /= STEP;
+                zero_decades += 100.0;
+            }
+            while zero_product < 1.0 / STEP && zero_product > 0.0 {
+                zero_product *= STEP;
+                zero_decades -= 100.0;
+            }
+        }
+        let zeros_db = if self.zeros.is_empty() {
+            0.0
+        } else {
+            10.0 * (fmath::log10(zero_product) + zero_decades)
+        };
+        10.0 * (fmath::log10(product) + decades) - 20.0 * fmath::log10(self.gain) - zeros_db
+    }
+
+    /// The equiripple stopband depth of inverse Chebyshev and elliptic, dB; `None` for the
+    /// all-pole families.
+    pub fn stop_depth_db(&self) -> Option<f64> {
+        match self.family {
+            Family::InverseChebyshev { astop_db } | Family::Elliptic { astop_db, .. } => {
+                Some(astop_db)
+            }
+            _ => None,
+        }
+    }
+
+    /// The smallest attenuation at or above `w` (rad/s, normalized, past the passband), dB: what
+    /// a stopband that begins at `w` gets. The all-pole families roll off monotonically, so it is
+    /// [`Prototype::attenuation_db`]; with zeros the attenuation rises to the depth at
+    /// [`Prototype::stop_edge`] and then ripples between the depth and the zeros, so from there
+    /// on it is the depth.
+    pub fn stopband_floor_db(&self, w: f64) -> f64 {
+        match (self.stop_edge, self.stop_depth_db()) {
+            (Some(edge), Some(depth)) if w >= edge => depth,
+            _ => self.attenuation_db(w),
+        }
+    }
+
+    /// The normalized frequency at which the attenuation first reaches `astop_db` past the
+    /// passband: bisection on `ln w` of the monotone rise (for families with zeros, the rise
+    /// between the passband and [`Prototype::stop_edge`]; a depth at or above the family's own
+    /// depth gives the stop edge).
+    pub fn stop_edge_for(&self, astop_db: f64) -> f64 {
+        match (self.stop_edge, self.stop_depth_db()) {
+            (Some(edge), Some(depth)) => {
+                if astop_db >= depth {
+                    return edge;
+                }
+                let lo = if matches!(self.family, Family::Elliptic { .. }) {
+                    1.0
+                } else {
+                    1e-30
+                };
+                if self.attenuation_db(lo) >= astop_db {
+                    return lo;
+                }
+                bisect_ln(|w| self.attenuation_db(w) - astop_db, lo, edge)
+            }
+            _ => {
+                let f = |w: f64| self.attenuation_db(w) - astop_db;
+                if f(1e-30) >= 0.0 {
+                    1e-30
+                } else if f(1e30) <= 0.0 {
+                    1e30
+                } else {
+                    bisect_ln(f, 1e-30, 1e30)
+                }
+            }
+        }
     }
 
     /// The normalized frequency `w_p` at which the attenuation first reaches `apass_db`, so that
@@ -233,6 +343,48 @@ impl Prototype {
                 let target = apass_db;
                 bisect_log_increasing(|w| self.attenuation_db(w) - target)
             }
+            Family::InverseChebyshev { astop_db } => {
+                // A(w) = 10·log10(1 + 1/(δ²·T_n²(1/w))): T_n(1/w_p) = √(10^(As/10) − 1)/√(10^(A/10) − 1).
+                let stop = fmath::exp_m1(astop_db / 10.0 * std::f64::consts::LN_10);
+                let x = (stop / power_minus_one).sqrt();
+                if x <= 1.0 {
+                    return Err(InputError::new(
+                        "passloss",
+                        format!(
+                            "passloss {apass_db} dB is not below the stopband depth {astop_db} dB"
+                        ),
+                    ));
+                }
+                1.0 / fmath::cosh(fmath::acosh(x) / n)
+            }
+            Family::Elliptic { ripple_db, .. } => {
+                if (ripple_db - apass_db).abs() <= 1e-9 * ripple_db.max(1.0) {
+                    1.0
+                } else if ripple_db > apass_db {
+                    return Err(InputError::new(
+                        "ripple",
+                        format!(
+                            "ripple {ripple_db} dB is larger than passloss {apass_db} dB, so the \
+                             passband ripple alone breaks the mask; set ripple between \
+                             {MIN_RIPPLE_DB} dB and passloss"
+                        ),
+                    ));
+                } else {
+                    // Past the ripple band the attenuation rises monotonically to the first zero.
+                    let hi = self
+                        .zeros
+                        .first()
+                        .copied()
+                        .or(self.stop_edge)
+                        .unwrap_or(1e30);
+                    let f = |w: f64| self.attenuation_db(w) - apass_db;
+                    if f(hi) <= 0.0 {
+                        hi
+                    } else {
+                        bisect_ln(f, 1.0, hi)
+                    }
+                }
+            }
         };
         Ok(edge)
     }
@@ -256,12 +408,32 @@ pub fn validate(family: Family, order: usize) -> Result<(), InputError> {
             format!("Linkwitz-Riley needs an even order (2–{MAX_ORDER}), got {order}"),
         ));
     }
-    if let Family::Chebyshev { ripple_db } = family {
+    if let Family::Chebyshev { ripple_db } | Family::Elliptic { ripple_db, .. } = family {
         if !(MIN_RIPPLE_DB..=MAX_RIPPLE_DB).contains(&ripple_db) {
             return Err(InputError::new(
                 "ripple",
                 format!(
-                    "Chebyshev ripple must be {MIN_RIPPLE_DB}–{MAX_RIPPLE_DB} dB, got {ripple_db}"
+                    "{} ripple must be {MIN_RIPPLE_DB}–{MAX_RIPPLE_DB} dB, got {ripple_db}",
+                    if matches!(family, Family::Elliptic { .. }) {
+                        "elliptic"
+                    } else {
+                        "Chebyshev"
+                    }
+                ),
+            ));
+        }
+    }
+    if let Family::InverseChebyshev { astop_db } | Family::Elliptic { astop_db, .. } = family {
+        let floor = match family {
+            Family::Elliptic { ripple_db, .. } => ripple_db,
+            _ => 0.0,
+        };
+        if !(astop_db.is_finite() && astop_db > floor && astop_db <= MAX_STOP_DEPTH_DB) {
+            return Err(InputError::new(
+                "stopdepth",
+                format!(
+                    "the stopband depth must be above {floor} dB and at most \
+                     {MAX_STOP_DEPTH_DB} dB, got {astop_db}"
                 ),
             ));
         }
@@ -272,10 +444,28 @@ pub fn validate(family: Family, order: usize) -> Result<(), InputError> {
 /// The normalized prototype of `family` with `order` poles.
 ///
 /// # Errors
-/// As [`validate`]: `order` out of 1–20 or odd for Linkwitz-Riley, `ripple` out of 0.01–3 dB.
+/// As [`validate`]: `order` out of 1–20 or odd for Linkwitz-Riley, `ripple` out of 0.01–3 dB,
+/// `stopdepth` out of range.
 pub fn prototype(family: Family, order: usize) -> Result<Prototype, InputError> {
     validate(family, order)?;
+    let mut zeros = Vec::new();
+    let mut stop_edge = None;
     let groups = match family {
+        Family::InverseChebyshev { astop_db } => {
+            let (groups, z) = inverse_chebyshev::inverse_chebyshev(order, astop_db);
+            zeros = z;
+            stop_edge = Some(1.0);
+            groups
+        }
+        Family::Elliptic {
+            ripple_db,
+            astop_db,
+        } => {
+            let (groups, z, m) = elliptic::elliptic(order, ripple_db, astop_db);
+            zeros = z;
+            stop_edge = (m > 0.0).then(|| 1.0 / m.sqrt());
+            groups
+        }
         Family::Butterworth => butterworth_groups(order),
         Family::Chebyshev { ripple_db } => chebyshev_groups(order, ripple_db),
         Family::Bessel => bessel_groups(order),
@@ -310,12 +500,15 @@ pub fn prototype(family: Family, order: usize) -> Result<Prototype, InputError> 
     let dc_unity = poles
         .iter()
         .fold(Complex64::new(1.0, 0.0), |acc, p| acc * (-p))
-        .re;
+        .re
+        / zeros.iter().fold(1.0, |acc, wz| acc * wz * wz);
     let mut proto = Prototype {
         family,
         order,
         groups,
         gain: dc_unity,
+        zeros,
+        stop_edge,
     };
     proto.gain = dc_unity * proto.reference_gain();
     Ok(proto)

@@ -151,6 +151,10 @@ pub fn bands(mask: &Mask, f: f64) -> (bool, bool) {
                 (f >= fp, f <= fs)
             }
         }
+        // A band-stop's passband edges lie outside its stopband edges.
+        (Edge::Pair(pl, ph), Edge::Pair(sl, sh)) if pl < sl => {
+            (f <= pl || f >= ph, f >= sl && f <= sh)
+        }
         (Edge::Pair(pl, ph), Edge::Pair(sl, sh)) => (f >= pl && f <= ph, f <= sl || f >= sh),
         // Mixed edge kinds do not pass the link's validation; they check nothing.
         _ => (false, false),
