@@ -4,7 +4,7 @@
 
 use super::{Circuit, Topology};
 use crate::error::InputError;
-use crate::section::{Section, SectionKind};
+use crate::section::{NotchSide, Section, SectionKind};
 
 /// A gain within this of 1 is built as a follower.
 const UNITY_TOLERANCE: f64 = 1e-3;
@@ -101,12 +101,75 @@ pub fn choose(
                 format!("stage {stage_no}: a band-pass section must be second order"),
             ))
         }
-        (_, SectionKind::Notch, _) => {
-            return Err(InputError::new(
-                "family",
-                format!("stage {stage_no}: no circuit here realises a section with zeros yet"),
-            ))
+        (order, SectionKind::Notch, topology) => {
+            let (circuit, side_note) = notch_circuit(section, order, stage_no)?;
+            note = Some(format!(
+                "stage {stage_no}: {} cannot place a pair of zeros; built as a {} ({}, {side_note})",
+                match topology {
+                    Topology::SallenKey => "a Sallen-Key stage",
+                    Topology::MultipleFeedback => "a multiple-feedback stage",
+                },
+                circuit.describe(),
+                circuit.key()
+            ));
+            circuit
         }
     };
     Ok((circuit, note))
+}
+
+/// The single-op-amp notch for a notch section ([`super::notch`]): its shape from the side of
+/// the zeros, and the words for the note. The high-pass and symmetric notch pass at most the
+/// ratio of their input divider (a gain below 1), a low-pass notch at most (fz/f0)² times it.
+///
+/// # Errors
+/// `order` for a first-order notch section; `fc` for a zero frequency that is not finite and
+/// positive; `gain` for a gain the circuit cannot reach.
+fn notch_circuit(
+    section: &Section,
+    order: usize,
+    stage_no: usize,
+) -> Result<(Circuit, &'static str), InputError> {
+    if order != 2 {
+        return Err(InputError::new(
+            "order",
+            format!("stage {stage_no}: a notch section must be second order"),
+        ));
+    }
+    let fz = section.fz_hz.unwrap_or(f64::NAN);
+    if !(fz.is_finite() && fz > 0.0) {
+        return Err(InputError::new(
+            "fc",
+            format!(
+                "stage {stage_no}: the zero frequency fz = {fz} Hz is not a positive frequency"
+            ),
+        ));
+    }
+    let (circuit, words) = match section.notch_side() {
+        Some(NotchSide::LowPassNotch) => (Circuit::NotchLowPass, "zeros above f0"),
+        Some(NotchSide::HighPassNotch) => (Circuit::NotchHighPass, "zeros below f0"),
+        _ => (Circuit::NotchSymmetric, "zeros at f0"),
+    };
+    // α = |g|·min(1, (f0/fz)²) is the divider's ratio; it must stay below 1.
+    let alpha = section.gain.abs() * section.notch_scale();
+    if alpha >= 1.0 {
+        let most = 1.0 / section.notch_scale();
+        return Err(InputError::new(
+            "gain",
+            format!(
+                "stage {stage_no} ({}): a gain of {:.4} dB is out of its reach: {} the ratio \
+                 of a resistor divider, so the gain stays below {:.4} dB; ask for less gain \
+                 (gain)",
+                circuit.describe(),
+                20.0 * crate::fmath::log10(section.gain.abs()),
+                if circuit == Circuit::NotchLowPass {
+                    "its DC gain is (fz/f0)² times"
+                } else {
+                    "its gain on either side of the notch is"
+                },
+                20.0 * crate::fmath::log10(most)
+            ),
+        ));
+    }
+    Ok((circuit, words))
 }

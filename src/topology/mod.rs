@@ -27,6 +27,7 @@ pub mod divider;
 pub mod first_order;
 mod level;
 pub mod mfb;
+pub mod notch;
 mod roots;
 pub mod sallen_key;
 pub mod search;
@@ -89,11 +90,19 @@ pub enum Circuit {
     InvertingLowPass,
     /// First-order inverting high-pass: series C–R in, R feedback ([`first_order`]).
     InvertingHighPass,
+    /// Single-op-amp low-pass notch (fz > f0): the band-pass-derived notch with a zero-setting
+    /// resistor from the inverting input to ground ([`notch`]).
+    NotchLowPass,
+    /// Single-op-amp high-pass notch (fz < f0): the band-pass-derived notch with a zero-setting
+    /// resistor from the input to the inverting input ([`notch`]).
+    NotchHighPass,
+    /// Single-op-amp symmetric notch (fz = f0), as for mains hum ([`notch`]).
+    NotchSymmetric,
 }
 
 impl Circuit {
     /// A short stable name for JSON and reports: `sk-lp`, `sk-hp`, `mfb-lp`, `mfb-hp`, `mfb-bp`,
-    /// `rc-lp`, `rc-hp`, `inv-lp`, `inv-hp`.
+    /// `rc-lp`, `rc-hp`, `inv-lp`, `inv-hp`, `notch-lp`, `notch-hp`, `notch-sym`.
     pub fn key(self) -> &'static str {
         match self {
             Circuit::SallenKeyLowPass => "sk-lp",
@@ -105,6 +114,9 @@ impl Circuit {
             Circuit::BufferedHighPass => "rc-hp",
             Circuit::InvertingLowPass => "inv-lp",
             Circuit::InvertingHighPass => "inv-hp",
+            Circuit::NotchLowPass => "notch-lp",
+            Circuit::NotchHighPass => "notch-hp",
+            Circuit::NotchSymmetric => "notch-sym",
         }
     }
 
@@ -120,6 +132,9 @@ impl Circuit {
             Circuit::BufferedHighPass => "buffered CR high-pass",
             Circuit::InvertingLowPass => "inverting first-order low-pass",
             Circuit::InvertingHighPass => "inverting first-order high-pass",
+            Circuit::NotchLowPass => "single-op-amp low-pass notch",
+            Circuit::NotchHighPass => "single-op-amp high-pass notch",
+            Circuit::NotchSymmetric => "single-op-amp symmetric notch",
         }
     }
 
@@ -169,6 +184,9 @@ impl Circuit {
             Circuit::BufferedHighPass => &first_order::BufferedHighPass,
             Circuit::InvertingLowPass => &first_order::InvertingLowPass,
             Circuit::InvertingHighPass => &first_order::InvertingHighPass,
+            Circuit::NotchLowPass => &notch::LOW_PASS,
+            Circuit::NotchHighPass => &notch::HIGH_PASS,
+            Circuit::NotchSymmetric => &notch::SYMMETRIC,
         }
     }
 }
