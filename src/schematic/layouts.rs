@@ -123,6 +123,9 @@ const NOTCH_DIVIDER_UPPER: &[(f64, f64)] = &[(0.0, 3.0), (0.0, 9.0), (9.2, 9.0)]
 const NOTCH_DIVIDER_LOWER: &[(f64, f64)] = &[(9.2, 9.0), (9.2, 11.3)];
 const NOTCH_PLUS: &[(f64, f64)] = &[(9.2, 9.0), (9.2, 5.0), (10.0, 5.0)];
 
+/// A fixed list of grid points (dots, grounds).
+type Points = &'static [(f64, f64)];
+
 fn slot(kind: PartKind, ends: (Sym, Sym), path: &'static [(f64, f64)], body: usize) -> Slot {
     Slot {
         kind,
@@ -272,7 +275,7 @@ pub(super) fn layouts() -> Vec<Layout> {
         }
         slots.push(slot(R, (Sym::In, Sym::P), NOTCH_DIVIDER_UPPER, 1));
         slots.push(slot(R, (Sym::P, Sym::Gnd), NOTCH_DIVIDER_LOWER, 0));
-        let (dots, grounds): (&'static [(f64, f64)], &'static [(f64, f64)]) = match zero {
+        let (dots, grounds): (Points, Points) = match zero {
             Some(((Sym::M, Sym::Gnd), _, _)) => (
                 &[(4.0, 3.0), (8.5, 3.0), (15.0, 4.0), (15.0, 1.4), (9.2, 9.0)],
                 &[(4.0, 5.3), (8.5, 5.8), (9.2, 11.3)],
