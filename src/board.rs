@@ -198,7 +198,9 @@ pub fn place_gains(sections: &[Section], topology: Topology) -> Vec<Section> {
     for (idx, section) in sections.iter().enumerate() {
         match topology::choose(topology, section, idx + 1) {
             Ok((circuit, _)) => {
-                if !circuit.inverting() {
+                // The circuits with an input-divider option (a notch sets its gain by its own
+                // divider, as an inverting stage does by a ratio).
+                if circuit.has_gain_network_option() {
                     non_inverting.push(idx);
                 }
             }

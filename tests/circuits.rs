@@ -158,6 +158,47 @@ fn rc_hp_divided(n: &StageNetlist, s: Complex64) -> Complex64 {
     k * s * t / (1.0 + s * t)
 }
 
+/// The single-op-amp notch (band-pass-derived, `rolloff::topology::notch`), from its own node
+/// equations with an ideal op amp (V(m) = V(p) = α·Vin, α = Rb/(Ra + Rb) the non-inverting input
+/// divider), solved by Cramer's rule for V(a) and Vout:
+/// node a: (G1 + G2 + s(C1 + C2))·Va − sC2·Vout = G1·Vin + sC1·Vm;
+/// node m: −sC1·Va − G3·Vout = G4·Vin − (sC1 + G3 + G4 + G5)·Vm,
+/// with G4 the feed-forward resistor (input → m, high-pass notch) and G5 the resistor from m to
+/// ground (low-pass notch), each 0 when absent.
+fn notch_tb(n: &StageNetlist, s: Complex64) -> Complex64 {
+    let g1 = 1.0 / role(n, "input resistor");
+    let g2 = 1.0 / role(n, "ground resistor");
+    let c1 = role(n, "capacitor to the inverting input");
+    let c2 = role(n, "feedback capacitor");
+    let g3 = 1.0 / role(n, "feedback resistor");
+    let g4 = role_opt(n, "zero-setting feed-forward resistor").map_or(0.0, |r| 1.0 / r);
+    let g5 = role_opt(n, "zero-setting resistor to ground").map_or(0.0, |r| 1.0 / r);
+    let ra = role(n, "non-inverting input divider, upper");
+    let rb = role(n, "non-inverting input divider, lower");
+    let alpha = rb / (ra + rb);
+    let vin = Complex64::new(1.0, 0.0);
+    let vm = vin * alpha;
+    // [a11 a12; a21 a22]·[Va; Vout] = [b1; b2]
+    let a11 = s * (c1 + c2) + g1 + g2;
+    let a12 = -s * c2;
+    let a21 = -s * c1;
+    let a22 = Complex64::new(-g3, 0.0);
+    let b1 = vin * g1 + s * c1 * vm;
+    let b2 = vin * g4 - (s * c1 + g3 + g4 + g5) * vm;
+    (a11 * b2 - a21 * b1) / (a11 * a22 - a12 * a21)
+}
+
+/// A notch section (`SectionKind::Notch`): zeros at `fz_hz`, `gain` the larger far-side gain.
+fn notch(f0_hz: f64, q: f64, fz_hz: f64, gain: f64) -> Section {
+    Section {
+        kind: SectionKind::Notch,
+        f0_hz,
+        q: Some(q),
+        gain,
+        fz_hz: Some(fz_hz),
+    }
+}
+
 /// Gains below 1 for the divider cases: −0.5 dB is the DC gain of an even-order Chebyshev of
 /// 0.5 dB ripple (10^(−0.5/20), the scipy.signal.cheb1ap gain constant); the rest are arbitrary.
 fn half_db_down() -> f64 {
@@ -283,6 +324,26 @@ fn cases() -> Vec<(Circuit, Section, Topology, Textbook)> {
             section(HighPass, 100.0, None, 0.8),
             SallenKey,
             rc_hp_divided,
+        ),
+        // Notch sections: no Sallen-Key or multiple-feedback stage places zeros, so either
+        // choice builds the single-op-amp notch of the zeros' side.
+        (
+            Circuit::NotchLowPass,
+            notch(1e3, 1.8, 1.7e3, 1.5),
+            SallenKey,
+            notch_tb,
+        ),
+        (
+            Circuit::NotchHighPass,
+            notch(2.2e3, 1.2, 1.3e3, 0.8),
+            MultipleFeedback,
+            notch_tb,
+        ),
+        (
+            Circuit::NotchSymmetric,
+            notch(50.0, 2.0, 50.0, 0.9),
+            SallenKey,
+            notch_tb,
         ),
     ]
     .into_iter()
@@ -1415,7 +1476,7 @@ fn parts_list_is_rfc_4180_csv_with_exact_values() {
 fn divider_cases() -> Vec<(Circuit, Section, Topology, Textbook)> {
     cases()
         .into_iter()
-        .filter(|(c, sec, _, _)| !c.inverting() && sec.gain < 1.0)
+        .filter(|(c, sec, _, _)| !c.inverting() && sec.gain < 1.0 && sec.kind != SectionKind::Notch)
         .collect()
 }
 
@@ -1768,7 +1829,7 @@ fn state_variable(n: &StageNetlist, s: Complex64) -> Complex64 {
 }
 
 /// A notch section: zeros at `fz_hz`, `gain` the larger far-side gain.
-fn notch(f0_hz: f64, q: f64, gain: f64, fz_hz: f64) -> Section {
+fn sv_notch(f0_hz: f64, q: f64, gain: f64, fz_hz: f64) -> Section {
     Section {
         fz_hz: Some(fz_hz),
         ..section(SectionKind::Notch, f0_hz, Some(q), gain)
@@ -1820,19 +1881,19 @@ fn state_variable_cases() -> Vec<(Circuit, Section, Topology, Textbook)> {
         ),
         (
             Circuit::StateVariableNotch,
-            notch(1e3, 0.9, 1.0, 2.2e3),
+            sv_notch(1e3, 0.9, 1.0, 2.2e3),
             sv,
             state_variable,
         ),
         (
             Circuit::StateVariableNotch,
-            notch(2e3, 1.4, 1.0, 900.0),
+            sv_notch(2e3, 1.4, 1.0, 900.0),
             sv,
             state_variable,
         ),
         (
             Circuit::StateVariableNotch,
-            notch(50.0, 5.0, 1.0, 50.0),
+            sv_notch(50.0, 5.0, 1.0, 50.0),
             sv,
             state_variable,
         ),
@@ -1941,8 +2002,228 @@ fn a_state_variable_notch_without_its_zero_frequency_is_refused_under_fc() {
     for fz in [None, Some(0.0), Some(f64::NAN)] {
         let bad = Section {
             fz_hz: fz,
-            ..notch(1e3, 1.0, 1.0, 2e3)
+            ..sv_notch(1e3, 1.0, 1.0, 2e3)
         };
         assert_eq!(build_err(&[bad], &ch), "fc", "fz = {fz:?}");
     }
+}
+
+/// Notch sections of every shape at several Q: (section, the circuit it selects).
+fn notch_cases() -> Vec<(Section, Circuit)> {
+    vec![
+        (notch(1e3, 0.8, 2.9e3, 1.0), Circuit::NotchLowPass),
+        (notch(1e3, 1.9, 1.25e3, 1.4), Circuit::NotchLowPass),
+        (notch(8e3, 2.0, 8.3e3, 0.95), Circuit::NotchLowPass),
+        (notch(1e3, 0.7, 400.0, 0.5), Circuit::NotchHighPass),
+        (notch(3e3, 1.6, 2.6e3, 0.9), Circuit::NotchHighPass),
+        (notch(50.0, 2.0, 50.0, 0.9), Circuit::NotchSymmetric),
+        (notch(60.0, 2.0, 60.0, 0.99), Circuit::NotchSymmetric),
+        (notch(10e3, 0.5, 10e3, 0.3), Circuit::NotchSymmetric),
+    ]
+}
+
+#[test]
+fn notch_nodal_response_equals_its_textbook_transfer_function() {
+    // Source: the notch's transfer function written by hand from its node equations (`notch_tb`,
+    // ideal op amp), evaluated on the board's part values; both the dense reference (`mna`) and
+    // the banded production solver (`analysis::built`) within 1e-9 relative, at frequencies
+    // around f0 and fz (never exactly on the zero, where both are rounding noise), for exact and
+    // E24/E12 parts.
+    for (section, circuit) in notch_cases() {
+        for (r_series, c_series) in [(Series::Exact, Series::Exact), (Series::E24, Series::E12)] {
+            let ch = BuildChoices {
+                topology: Topology::MultipleFeedback,
+                r_series,
+                c_series,
+                op_amp: OpAmp::ideal(),
+                ..BuildChoices::default()
+            };
+            let board = Board::build(&[section], &ch).expect("builds");
+            let stage = &board.stages[0];
+            assert_eq!(stage.circuit, circuit, "{section:?}");
+            let mut solver = rolloff::analysis::built::BoardSolver::of_board(&board).unwrap();
+            let fz = section.fz_hz.unwrap();
+            let mut freqs = log_sweep(section.f0_hz / 30.0, section.f0_hz * 29.0, 61);
+            for centre in [section.f0_hz, fz] {
+                for r in [0.9, 0.99, 0.999, 1.001, 1.01, 1.1] {
+                    freqs.push(centre * r);
+                }
+            }
+            for f in freqs {
+                let expect = notch_tb(&stage.netlist, jw(f));
+                let dense = mna::transfer(&stage.netlist, &board.op_amp, jw(f)).expect("solves");
+                let banded = solver.solve_at(f).expect("solves");
+                for (name, ours) in [("mna", dense), ("banded", banded)] {
+                    let err = rel_err(ours, expect);
+                    assert!(
+                        err < 1e-9,
+                        "{circuit:?} {r_series:?} {name} at {f} Hz: {ours} vs textbook {expect} \
+                         (rel {err:e})"
+                    );
+                }
+            }
+        }
+    }
+}
+
+#[test]
+fn exact_notch_meets_f0_q_gain_and_fz_and_nulls_at_fz() {
+    // Source: the hand-written transfer function (`notch_tb`): with exact parts the closed forms
+    // meet f0, Q, gain and fz to 1e-9, and |H(j·2π·fz)| is at least 200 dB below the gain (the
+    // s term of the numerator cancels to rounding).
+    for (section, circuit) in notch_cases() {
+        let ch = BuildChoices {
+            topology: Topology::SallenKey,
+            r_series: Series::Exact,
+            c_series: Series::Exact,
+            op_amp: OpAmp::ideal(),
+            ..BuildChoices::default()
+        };
+        let board = Board::build(&[section], &ch).expect("builds");
+        let st = &board.stages[0];
+        assert!(st.f0_error.abs() < 1e-9, "{circuit:?} f0 {}", st.f0_error);
+        assert!(st.q_error.unwrap().abs() < 1e-9, "{circuit:?} Q");
+        assert!(
+            st.gain_error.abs() < 1e-9,
+            "{circuit:?} gain {}",
+            st.gain_error
+        );
+        assert!(
+            st.fz_error.unwrap().abs() < 1e-9,
+            "{circuit:?} fz {:?}",
+            st.fz_error
+        );
+        let fz = section.fz_hz.unwrap();
+        let null = notch_tb(&st.netlist, jw(fz)).norm() / section.gain;
+        assert!(null < 1e-10, "{circuit:?}: null {null:e}");
+        // The far sides (`SectionKind::Notch`): the gain on the larger side, g·(f0/fz)² or
+        // g·(fz/f0)² on the other.
+        let dc = notch_tb(&st.netlist, Complex64::new(0.0, 0.0)).re;
+        let hf = notch_tb(&st.netlist, jw(fz * 1e7)).re;
+        let ratio = (fz / section.f0_hz).powi(2);
+        let (big, small) = if fz >= section.f0_hz {
+            (dc, hf)
+        } else {
+            (hf, dc)
+        };
+        assert!((big / section.gain - 1.0).abs() < 1e-6, "{circuit:?} {big}");
+        assert!(
+            (small / section.gain - ratio.min(1.0 / ratio)).abs() < 1e-6,
+            "{circuit:?} {small}"
+        );
+        assert!(
+            board
+                .warnings
+                .iter()
+                .chain(&st.warnings)
+                .any(|w| w.contains("cannot place a pair of zeros")),
+            "{circuit:?}: the design says why it is a notch circuit"
+        );
+    }
+}
+
+#[test]
+fn notch_gain_out_of_the_single_op_amp_reach_goes_to_the_state_variable_notch() {
+    // Physics of the circuit (module docs of `topology::notch`): the symmetric and high-pass
+    // notch pass at most their input divider's ratio, below 1; such a section is built as the
+    // state-variable notch (any gain), and the design says so. Its gain and zeros then follow
+    // the target (the state-variable closed forms, `topology::state_variable`).
+    for section in [notch(50.0, 5.0, 50.0, 1.0), notch(1e3, 1.0, 500.0, 2.0)] {
+        let board = Board::build(&[section], &BuildChoices::default()).expect("builds");
+        let st = &board.stages[0];
+        assert_eq!(st.circuit, Circuit::StateVariableNotch);
+        assert!(
+            board
+                .warnings
+                .iter()
+                .chain(&st.warnings)
+                .any(|w| w.contains("single-op-amp notch passes less")),
+            "the design says why: {:?} {:?}",
+            board.warnings,
+            st.warnings
+        );
+        assert!(
+            // E96/E12 parts: the combination search holds f0, Q, gain and fz together.
+            (st.achieved_gain.abs() / section.gain - 1.0).abs() < 0.05,
+            "gain {} for {section:?}",
+            st.achieved_gain
+        );
+        let fz = st.achieved_fz_hz.expect("zeros");
+        assert!((fz / section.fz_hz.unwrap() - 1.0).abs() < 0.01, "fz {fz}");
+    }
+}
+
+#[test]
+fn notch_fz_sensitivities_follow_the_zero_frequency_formula() {
+    // Source: the hand-written transfer function's zeros (`notch_tb`, module docs of
+    // `topology::notch`): wz² = n0/n2 = G1'·(α·Gx − G4)/(α·C1C2) with G1' = G1 + G2; for the
+    // symmetric notch wz² = (G1 + G2)·G3/(C1C2), so S_fz is −½ for C1, C2 and R3, and
+    // −½·G1/(G1 + G2), −½·G2/(G1 + G2) for R1 and R2; the divider does not move the zeros.
+    let section = notch(50.0, 1.8, 50.0, 0.9);
+    let board = Board::build(
+        &[section],
+        &BuildChoices {
+            op_amp: OpAmp::ideal(),
+            ..BuildChoices::default()
+        },
+    )
+    .expect("builds");
+    let st = &board.stages[0];
+    let sens = rolloff::analysis::sensitivity::board_sensitivities(&board).unwrap();
+    let g1 = 1.0 / role(&st.netlist, "input resistor");
+    let g2 = 1.0 / role(&st.netlist, "ground resistor");
+    for p in &sens[0].parts {
+        let part = st.netlist.part(&p.reference).unwrap();
+        let expect = match part.role.as_str() {
+            "input resistor" => -0.5 * g1 / (g1 + g2),
+            "ground resistor" => -0.5 * g2 / (g1 + g2),
+            "capacitor to the inverting input" | "feedback capacitor" | "feedback resistor" => -0.5,
+            _ => 0.0,
+        };
+        let got = p.fz.expect("a notch stage has fz sensitivities");
+        assert!(
+            (got - expect).abs() < 1e-6,
+            "{} ({}): S_fz {got} vs {expect}",
+            p.reference,
+            part.role
+        );
+    }
+    let fz = sens[0].fz_hz.unwrap();
+    assert!(
+        (fz / st.achieved_fz_hz.unwrap() - 1.0).abs() < 1e-9,
+        "fz {fz}"
+    );
+}
+
+#[test]
+fn a_notch_board_goes_through_every_analysis_export_and_the_tolerance_study() {
+    // Source: physics of the tolerance study — the study's first runs are solved on the loaded
+    // board, and a board whose every op amp drives its next stage stiffly has a loading residual
+    // well under 0.1 dB; every export of a notch board is written (JSON with `fz_hz`, the text
+    // report, the parts list, the SPICE deck) and its stages are drawn from their layouts.
+    let mut design = {
+        let report = rolloff::link::parse("?v=2&order=2&fc=50&gain=-1");
+        rolloff::pipeline::compose(&report.state).expect("composes")
+    };
+    let sections = vec![notch(50.0, 2.0, 50.0, 0.9), notch(1e3, 2.0, 2.2e3, 1.2)];
+    let ch = rolloff::pipeline::build_choices(&design.state);
+    design.board = Board::build(&sections, &ch).expect("builds");
+    design.synthesis.sections = sections.clone();
+    for (stage, name) in design.board.stages.iter().zip([
+        "single-op-amp symmetric notch",
+        "single-op-amp low-pass notch",
+    ]) {
+        assert_eq!(rolloff::schematic::layout_name(&stage.netlist), Some(name));
+    }
+    let json = rolloff::export::json::design_json(&design);
+    assert!(json.contains("\"fz_hz\""), "{json}");
+    assert!(!rolloff::export::text::design_text(&design).is_empty());
+    let summary = rolloff::pipeline::spread(&design).expect("the study runs");
+    let residual = summary.loading_residual_db.expect("a residual");
+    eprintln!(
+        "notch board: loading residual {residual} dB, loaded runs {}",
+        summary.loaded_runs
+    );
+    assert!(residual.abs() < 0.1, "loading residual {residual} dB");
+    assert!(!rolloff::export::json::spread_json(&design, &summary).is_empty());
 }

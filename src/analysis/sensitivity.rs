@@ -12,6 +12,10 @@
 //! `S_f0 = ∂v/(2v)` and `S_Q = S_f0 − ∂u/u`. For a first-order stage the real pole moves by
 //! `∂p = −(∂D)(p)/D'(p)` and `S_f0 = ∂p/p`. A resistor's sensitivity is minus that of its
 //! conductance.
+//!
+//! A stage with a pair of jω-axis zeros (a notch, `fz_hz` on the stage) gets the sensitivities
+//! of fz the same way from the numerator N: its quadratic factor `z² + u·z + v` near
+//! `v = (wz/ρ)²`, and `S_fz = ∂v/(2v)`.
 
 use super::circuit::{AnalysisError, Compiled};
 use super::poles::stage_order;
@@ -40,6 +44,9 @@ pub struct PartSensitivity {
     pub f0: f64,
     /// `S = (x/Q)·∂Q/∂x`; `None` for a first-order stage.
     pub q: Option<f64>,
+    /// `S = (x/fz)·∂fz/∂x` for a stage with a pair of zeros; absent otherwise.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub fz: Option<f64>,
 }
 
 /// Sensitivities of one stage.
@@ -51,6 +58,9 @@ pub struct StageSensitivity {
     pub f0_hz: f64,
     /// Q as built; `None` for first order.
     pub q: Option<f64>,
+    /// Frequency of the pair of zeros as built, Hz, for a stage with zeros; absent otherwise.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub fz_hz: Option<f64>,
     /// One entry per resistor and capacitor of the stage, in netlist order.
     pub parts: Vec<PartSensitivity>,
 }
@@ -60,7 +70,7 @@ fn fit_raw(
     values: &[f64],
     work: &mut FitWork,
     rho: f64,
-) -> Result<Vec<f64>, AnalysisError> {
+) -> Result<(Vec<f64>, Vec<f64>), AnalysisError> {
     let mut a = compiled.blank();
     compiled.assemble_into(values, &mut a);
     if !work.fit(compiled, &a, rho) {
@@ -68,7 +78,7 @@ fn fit_raw(
             "the stage equations are singular at a sample frequency".into(),
         ));
     }
-    Ok(work.den.clone())
+    Ok((work.den.clone(), work.num.clone()))
 }
 
 /// Sensitivities of the f0 and Q of one stage netlist with op amp `op`.
@@ -80,13 +90,40 @@ pub fn stage_sensitivities(
     op: &OpAmp,
     stage: usize,
 ) -> Result<StageSensitivity, AnalysisError> {
+    stage_sensitivities_with_zeros(net, op, stage, None)
+}
+
+/// Sensitivities of the f0, Q and, for a stage whose pair of jω-axis zeros sits near
+/// `fz_hz`, of fz (see the module docs).
+///
+/// # Errors
+/// As [`stage_sensitivities`]; [`AnalysisError::NoConvergence`] when the zeros' factor cannot
+/// be followed.
+pub fn stage_sensitivities_with_zeros(
+    net: &StageNetlist,
+    op: &OpAmp,
+    stage: usize,
+    fz_hz: Option<f64>,
+) -> Result<StageSensitivity, AnalysisError> {
     let compiled = Compiled::new(net, op)?;
     let order = stage_order(net)?.min(2);
     let mut work = FitWork::new(&compiled);
     let values: Vec<f64> = net.parts.iter().map(|p| p.value).collect();
     let rho = compiled.scale_rad_s * 1.1;
-    let d0 = fit_raw(&compiled, &values, &mut work, rho)?;
+    let (d0, n0) = fit_raw(&compiled, &values, &mut work, rho)?;
     let d0p = Poly::new(d0.clone());
+    // The zeros' factor z² + u·z + v of N, started from the stage's own fz on the axis.
+    let n_trim = Poly::new(n0).trimmed(FIT_TRIM_REL);
+    let zeros = match fz_hz {
+        Some(fz) => {
+            let v0 = fmath::powi(2.0 * PI * fz / rho, 2);
+            let found = bairstow(&n_trim.c, 1e-6 * v0.sqrt(), v0).ok_or_else(|| {
+                AnalysisError::NoConvergence("the stage's pair of zeros cannot be found".into())
+            })?;
+            Some(found)
+        }
+        None => None,
+    };
     let roots = d0p.trimmed(FIT_TRIM_REL).roots()?;
     let (w0, q) = dominant_w0_q(&roots, order).ok_or_else(|| {
         AnalysisError::NoConvergence("no dominant stable pole pair in the stage".into())
@@ -121,9 +158,26 @@ pub fn stage_sensitivities(
         };
         let mut v = values.clone();
         v[i] = up;
-        let dp_up = fit_raw(&compiled, &v, &mut work, rho)?;
+        let (dp_up, np_up) = fit_raw(&compiled, &v, &mut work, rho)?;
         v[i] = down;
-        let dp_dn = fit_raw(&compiled, &v, &mut work, rho)?;
+        let (dp_dn, np_dn) = fit_raw(&compiled, &v, &mut work, rho)?;
+        let s_fz = match zeros {
+            Some((u, vz)) => {
+                let n_dlny: Vec<f64> = np_up
+                    .iter()
+                    .zip(&np_dn)
+                    .map(|(a, b)| (a - b) / (2.0 * STEP))
+                    .collect();
+                let (_, dv) =
+                    quadratic_factor_derivative(&n_trim.c, &n_dlny, u, vz).ok_or_else(|| {
+                        AnalysisError::NoConvergence(
+                            "the stage's pair of zeros shares a root with the rest of N".into(),
+                        )
+                    })?;
+                Some(0.5 * dv / vz)
+            }
+            None => None,
+        };
         let d_dlny: Vec<f64> = dp_up
             .iter()
             .zip(&dp_dn)
@@ -162,12 +216,14 @@ pub fn stage_sensitivities(
             kind: p.kind,
             f0: sign * s_f0,
             q: s_q.map(|s| sign * s),
+            fz: s_fz.map(|s| sign * s),
         });
     }
     Ok(StageSensitivity {
         stage,
         f0_hz: w0 * rho / (2.0 * PI),
         q: (order == 2).then_some(q),
+        fz_hz: zeros.map(|(_, v)| v.sqrt() * rho / (2.0 * PI)),
         parts,
     })
 }
@@ -219,6 +275,8 @@ pub fn board_sensitivities(board: &Board) -> Result<Vec<StageSensitivity>, Analy
         .stages
         .iter()
         .enumerate()
-        .map(|(k, st)| stage_sensitivities(&st.netlist, &board.op_amp, k + 1))
+        .map(|(k, st)| {
+            stage_sensitivities_with_zeros(&st.netlist, &board.op_amp, k + 1, st.achieved_fz_hz)
+        })
         .collect()
 }

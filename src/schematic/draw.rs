@@ -247,7 +247,7 @@ fn draw_op_amp<DB: DrawingBackend>(
         .fill_polygon(coords.clone(), &palette.background)
         .map_err(backend_err)?;
     backend.draw_path(coords, &style).map_err(backend_err)?;
-    let (top, bottom) = if inputs == Inputs::Inverting {
+    let (top, bottom) = if matches!(inputs, Inputs::Inverting | Inputs::Lifted) {
         ("−", "+")
     } else {
         ("+", "−")

@@ -45,6 +45,9 @@ pub(super) enum Inputs {
     Inverting,
     /// No op amp (a passive RC stage).
     Passive,
+    /// Inverting-style network, `−` on top, whose non-inverting input has its own node (the
+    /// single-op-amp notch, its `+` input on a divider from the stage input).
+    Lifted,
 }
 
 pub(super) struct Layout {
@@ -109,6 +112,19 @@ const INV_FEEDBACK_C: &[(f64, f64)] = &[(8.5, 1.4), (8.5, -0.6), (15.0, -0.6), (
 const RC_SERIES: &[(f64, f64)] = &[(0.0, 3.0), (5.0, 3.0)];
 const RC_SHUNT: &[(f64, f64)] = &[(6.5, 3.0), (6.5, 6.3)];
 const RC_OUT: &[(f64, f64)] = &[(5.0, 3.0), (9.0, 3.0)];
+
+// The single-op-amp notch: the band-pass network around the inverting input, the divider to
+// the non-inverting input below it, and the zero-setting resistor at the inverting input.
+const NOTCH_IN: &[(f64, f64)] = &[(0.0, 3.0), (4.0, 3.0)];
+const NOTCH_SHUNT: &[(f64, f64)] = &[(4.0, 3.0), (4.0, 5.3)];
+const NOTCH_ZERO_TO_GROUND: &[(f64, f64)] = &[(8.5, 3.0), (8.5, 5.8)];
+const NOTCH_ZERO_FEED: &[(f64, f64)] = &[(0.0, 3.0), (0.0, 7.2), (8.5, 7.2), (8.5, 3.0)];
+const NOTCH_DIVIDER_UPPER: &[(f64, f64)] = &[(0.0, 3.0), (0.0, 9.0), (9.2, 9.0)];
+const NOTCH_DIVIDER_LOWER: &[(f64, f64)] = &[(9.2, 9.0), (9.2, 11.3)];
+const NOTCH_PLUS: &[(f64, f64)] = &[(9.2, 9.0), (9.2, 5.0), (10.0, 5.0)];
+
+/// A fixed list of grid points (dots, grounds).
+type Points = &'static [(f64, f64)];
 
 fn slot(kind: PartKind, ends: (Sym, Sym), path: &'static [(f64, f64)], body: usize) -> Slot {
     Slot {
@@ -230,6 +246,63 @@ pub(super) fn layouts() -> Vec<Layout> {
             wires: vec![OUT_LEAD, PLUS_TO_GROUND],
             dots: &[(4.0, 3.0), (8.5, 3.0), (15.0, 4.0), (15.0, 1.4)],
             grounds: &[(4.0, 6.3), (9.0, 6.0)],
+            input_at: (0.0, 3.0),
+            output_at: (16.5, 4.0),
+        });
+    }
+    // The single-op-amp notch, one layout per shape (the zero-setting resistor to ground, from
+    // the input, or none).
+    for (name, zero) in [
+        (
+            "single-op-amp low-pass notch",
+            Some(((Sym::M, Sym::Gnd), NOTCH_ZERO_TO_GROUND, 0)),
+        ),
+        (
+            "single-op-amp high-pass notch",
+            Some(((Sym::In, Sym::M), NOTCH_ZERO_FEED, 1)),
+        ),
+        ("single-op-amp symmetric notch", None),
+    ] {
+        let mut slots = vec![
+            slot(R, (Sym::In, Sym::A), NOTCH_IN, 0),
+            slot(R, (Sym::A, Sym::Gnd), NOTCH_SHUNT, 0),
+            slot(C, (Sym::A, Sym::M), MFB_SERIES, 0),
+            slot(C, (Sym::A, Sym::O), MFB_OUTER, 1),
+            slot(R, (Sym::M, Sym::O), MFB_INNER, 1),
+        ];
+        if let Some((ends, path, body)) = zero {
+            slots.push(slot(R, ends, path, body));
+        }
+        slots.push(slot(R, (Sym::In, Sym::P), NOTCH_DIVIDER_UPPER, 1));
+        slots.push(slot(R, (Sym::P, Sym::Gnd), NOTCH_DIVIDER_LOWER, 0));
+        let (dots, grounds): (Points, Points) = match zero {
+            Some(((Sym::M, Sym::Gnd), _, _)) => (
+                &[(4.0, 3.0), (8.5, 3.0), (15.0, 4.0), (15.0, 1.4), (9.2, 9.0)],
+                &[(4.0, 5.3), (8.5, 5.8), (9.2, 11.3)],
+            ),
+            Some(_) => (
+                &[
+                    (4.0, 3.0),
+                    (8.5, 3.0),
+                    (15.0, 4.0),
+                    (15.0, 1.4),
+                    (9.2, 9.0),
+                    (0.0, 7.2),
+                ],
+                &[(4.0, 5.3), (9.2, 11.3)],
+            ),
+            None => (
+                &[(4.0, 3.0), (8.5, 3.0), (15.0, 4.0), (15.0, 1.4), (9.2, 9.0)],
+                &[(4.0, 5.3), (9.2, 11.3)],
+            ),
+        };
+        all.push(Layout {
+            name,
+            inputs: Inputs::Lifted,
+            slots,
+            wires: vec![OUT_LEAD, NOTCH_PLUS],
+            dots,
+            grounds,
             input_at: (0.0, 3.0),
             output_at: (16.5, 4.0),
         });

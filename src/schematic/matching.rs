@@ -51,6 +51,13 @@ pub(super) fn match_layout(layout: &Layout, net: &StageNetlist) -> Option<Vec<Op
                     bind[index(Sym::P)] = Some(None);
                     bind[index(Sym::M)] = Some(minus);
                 }
+                Inputs::Lifted => {
+                    if plus.is_none() || minus.is_none() || minus == out || plus == minus {
+                        return None;
+                    }
+                    bind[index(Sym::P)] = Some(plus);
+                    bind[index(Sym::M)] = Some(minus);
+                }
                 Inputs::Passive => return None,
             }
         }
@@ -77,7 +84,7 @@ pub(super) fn match_layout(layout: &Layout, net: &StageNetlist) -> Option<Vec<Op
     }
 }
 
-/// Depth-first assignment of parts to slots with symbol binding; layouts have at most seven
+/// Depth-first assignment of parts to slots with symbol binding; layouts have at most eight
 /// slots, so the search is small.
 fn search(
     layout: &Layout,

@@ -5,7 +5,8 @@
 //! (signal left to right, op amp in the middle, feedback parts above it), the netlist is matched
 //! against a small set of layouts, one per circuit shape: Sallen-Key low- and high-pass, multiple
 //! feedback low-, high- and band-pass, the first-order buffered and inverting RC stages and a
-//! passive RC. Matching is by connectivity alone (which part joins the input, the op-amp pins,
+//! passive RC, and the single-op-amp notch (low-pass, high-pass, symmetric). Matching is by
+//! connectivity alone (which part joins the input, the op-amp pins,
 //! ground or an inner node), so it does not depend on how the netlist numbers its nodes or orders
 //! its parts. A netlist that fits no layout is drawn as a labelled list of its connections, so
 //! every stage still shows its parts.

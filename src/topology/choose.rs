@@ -4,7 +4,7 @@
 
 use super::{Circuit, Topology};
 use crate::error::InputError;
-use crate::section::{Section, SectionKind};
+use crate::section::{NotchSide, Section, SectionKind};
 
 /// A gain within this of 1 is built as a follower.
 const UNITY_TOLERANCE: f64 = 1e-3;
@@ -14,6 +14,14 @@ const UNITY_TOLERANCE: f64 = 1e-3;
 /// it passes 400:1, four times what the 1 kΩ–100 kΩ habit holds, and its Q needs an open-loop
 /// gain well above 2Q² at f0; the state-variable stage needs a spread of only Q.
 pub const MFB_BAND_PASS_MAX_Q: f64 = 10.0;
+
+/// Highest pole Q of a notch section built on the single-op-amp notch. Its null rests on a
+/// cancellation between two resistor paths whose error grows as Q²·(1 + C1/C2) times the parts'
+/// rounding (module docs of [`super::notch`]): with E96 resistors and E12 capacitors a Q = 11.5
+/// pair of a sixth-order elliptic low-pass loses its null altogether (ngspice on our export,
+/// `tests/ngspice_zeros.rs`). Above it the state-variable notch places its zeros with a separate
+/// capacitor and resistor, so rounding moves the zeros along the jω axis but never off it.
+pub const SINGLE_NOTCH_MAX_Q: f64 = 2.0;
 
 /// How a non-inverting stage (Sallen-Key, buffered RC) sets its passband gain K.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -166,12 +174,102 @@ pub fn choose(
                 format!("stage {stage_no}: a band-pass section must be second order"),
             ))
         }
-        (_, SectionKind::Notch, _) => {
-            return Err(InputError::new(
-                "family",
-                format!("stage {stage_no}: no circuit here realises a section with zeros yet"),
-            ))
+        (order, SectionKind::Notch, topology) => {
+            let asked = match topology {
+                Topology::SallenKey => "a Sallen-Key stage",
+                Topology::MultipleFeedback => "a multiple-feedback stage",
+                Topology::StateVariable => "this stage",
+            };
+            let q = section.q.unwrap_or(0.5);
+            match notch_circuit(section, order, stage_no) {
+                Ok(_) if q > SINGLE_NOTCH_MAX_Q => {
+                    note = Some(format!(
+                        "stage {stage_no}: {asked} cannot place a pair of zeros, and at Q = \
+                         {q:.3} (above {SINGLE_NOTCH_MAX_Q}) the single-op-amp notch's null would \
+                         not survive standard part values; built as a state-variable notch \
+                         (sv-notch, three op amps, it inverts), whose zeros stay on the jω axis"
+                    ));
+                    Circuit::StateVariableNotch
+                }
+                Ok((circuit, side_note)) => {
+                    note = Some(format!(
+                        "stage {stage_no}: {asked} cannot place a pair of zeros; built as a {} \
+                         ({}, {side_note})",
+                        circuit.describe(),
+                        circuit.key()
+                    ));
+                    circuit
+                }
+                // The single-op-amp notch passes only a divider's share of its input; the
+                // state-variable notch reaches any gain, with two more op amps.
+                Err(e) if e.key == "gain" => {
+                    note = Some(format!(
+                        "stage {stage_no}: {asked} cannot place a pair of zeros, and the \
+                         single-op-amp notch passes less than the {:.4} V/V this stage needs; \
+                         built as a state-variable notch (sv-notch, three op amps, it inverts)",
+                        section.gain.abs()
+                    ));
+                    Circuit::StateVariableNotch
+                }
+                Err(e) => return Err(e),
+            }
         }
     };
     Ok((circuit, note))
+}
+
+/// The single-op-amp notch for a notch section ([`super::notch`]): its shape from the side of
+/// the zeros, and the words for the note. The high-pass and symmetric notch pass at most the
+/// ratio of their input divider (a gain below 1), a low-pass notch at most (fz/f0)² times it.
+///
+/// # Errors
+/// `order` for a first-order notch section; `fc` for a zero frequency that is not finite and
+/// positive; `gain` for a gain the circuit cannot reach.
+fn notch_circuit(
+    section: &Section,
+    order: usize,
+    stage_no: usize,
+) -> Result<(Circuit, &'static str), InputError> {
+    if order != 2 {
+        return Err(InputError::new(
+            "order",
+            format!("stage {stage_no}: a notch section must be second order"),
+        ));
+    }
+    let fz = section.fz_hz.unwrap_or(f64::NAN);
+    if !(fz.is_finite() && fz > 0.0) {
+        return Err(InputError::new(
+            "fc",
+            format!(
+                "stage {stage_no}: the zero frequency fz = {fz} Hz is not a positive frequency"
+            ),
+        ));
+    }
+    let (circuit, words) = match section.notch_side() {
+        Some(NotchSide::LowPassNotch) => (Circuit::NotchLowPass, "zeros above f0"),
+        Some(NotchSide::HighPassNotch) => (Circuit::NotchHighPass, "zeros below f0"),
+        _ => (Circuit::NotchSymmetric, "zeros at f0"),
+    };
+    // α = |g|·min(1, (f0/fz)²) is the divider's ratio; it must stay below 1.
+    let alpha = section.gain.abs() * section.notch_scale();
+    if alpha >= 1.0 {
+        let most = 1.0 / section.notch_scale();
+        return Err(InputError::new(
+            "gain",
+            format!(
+                "stage {stage_no} ({}): a gain of {:.4} dB is out of its reach: {} the ratio \
+                 of a resistor divider, so the gain stays below {:.4} dB; ask for less gain \
+                 (gain)",
+                circuit.describe(),
+                20.0 * crate::fmath::log10(section.gain.abs()),
+                if circuit == Circuit::NotchLowPass {
+                    "its DC gain is (fz/f0)² times"
+                } else {
+                    "its gain on either side of the notch is"
+                },
+                20.0 * crate::fmath::log10(most)
+            ),
+        ));
+    }
+    Ok((circuit, words))
 }

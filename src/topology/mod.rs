@@ -27,6 +27,7 @@ pub mod divider;
 pub mod first_order;
 mod level;
 pub mod mfb;
+pub mod notch;
 mod roots;
 pub mod sallen_key;
 pub mod search;
@@ -104,11 +105,20 @@ pub enum Circuit {
     /// State-variable notch (zeros above, below or at f0), three op amps, inverting
     /// ([`state_variable`]).
     StateVariableNotch,
+    /// Single-op-amp low-pass notch (fz > f0): the band-pass-derived notch with a zero-setting
+    /// resistor from the inverting input to ground ([`notch`]).
+    NotchLowPass,
+    /// Single-op-amp high-pass notch (fz < f0): the band-pass-derived notch with a zero-setting
+    /// resistor from the input to the inverting input ([`notch`]).
+    NotchHighPass,
+    /// Single-op-amp symmetric notch (fz = f0), as for mains hum ([`notch`]).
+    NotchSymmetric,
 }
 
 impl Circuit {
     /// A short stable name for JSON and reports: `sk-lp`, `sk-hp`, `mfb-lp`, `mfb-hp`, `mfb-bp`,
-    /// `rc-lp`, `rc-hp`, `inv-lp`, `inv-hp`, `sv-lp`, `sv-hp`, `sv-bp`, `sv-notch`.
+    /// `rc-lp`, `rc-hp`, `inv-lp`, `inv-hp`, `sv-lp`, `sv-hp`, `sv-bp`, `sv-notch`, `notch-lp`,
+    /// `notch-hp`, `notch-sym`.
     pub fn key(self) -> &'static str {
         match self {
             Circuit::SallenKeyLowPass => "sk-lp",
@@ -124,6 +134,9 @@ impl Circuit {
             Circuit::StateVariableHighPass => "sv-hp",
             Circuit::StateVariableBandPass => "sv-bp",
             Circuit::StateVariableNotch => "sv-notch",
+            Circuit::NotchLowPass => "notch-lp",
+            Circuit::NotchHighPass => "notch-hp",
+            Circuit::NotchSymmetric => "notch-sym",
         }
     }
 
@@ -143,6 +156,9 @@ impl Circuit {
             Circuit::StateVariableHighPass => "state-variable high-pass",
             Circuit::StateVariableBandPass => "state-variable band-pass",
             Circuit::StateVariableNotch => "state-variable notch",
+            Circuit::NotchLowPass => "single-op-amp low-pass notch",
+            Circuit::NotchHighPass => "single-op-amp high-pass notch",
+            Circuit::NotchSymmetric => "single-op-amp symmetric notch",
         }
     }
 
@@ -200,6 +216,9 @@ impl Circuit {
             Circuit::StateVariableHighPass => &state_variable::HIGH_PASS,
             Circuit::StateVariableBandPass => &state_variable::BAND_PASS,
             Circuit::StateVariableNotch => &state_variable::NOTCH,
+            Circuit::NotchLowPass => &notch::LOW_PASS,
+            Circuit::NotchHighPass => &notch::HIGH_PASS,
+            Circuit::NotchSymmetric => &notch::SYMMETRIC,
         }
     }
 }
