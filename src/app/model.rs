@@ -134,6 +134,11 @@ impl PageModel {
                 ));
             }
         }
+        parts.extend(crate::export::words::stopband_kept_line(
+            summary,
+            self.design.synthesis.class,
+            self.design.state.requirement.mask.map(|m| m.astop_db),
+        ));
         // Where the runs' responses come from, in the words of the command line's study.
         if summary.loaded_runs {
             parts.push("each run solved on the loaded board".to_string());

@@ -13,7 +13,6 @@ use crate::plot::axis::engineering_unit;
 use crate::plot::figures::{PlotData, Sweep};
 use crate::schematic;
 use crate::spec::{Family, OrderChoice, ResponseClass};
-use crate::topology::Topology;
 use crate::units::format_si;
 
 /// The sentences and tables the page shows about the analyses, worded from
@@ -156,19 +155,6 @@ fn class_words(class: ResponseClass) -> &'static str {
     }
 }
 
-fn topology_words(topology: Topology, n: usize) -> String {
-    let name = match topology {
-        Topology::SallenKey => "Sallen-Key",
-        Topology::MultipleFeedback => "multiple-feedback",
-        Topology::StateVariable => "state-variable",
-    };
-    if n == 1 {
-        format!("1 {name} stage")
-    } else {
-        format!("{n} {name} stages")
-    }
-}
-
 /// Where the design's cutoff sits, in words: "−3 dB at 1 kHz", "ripple band to 20 kHz",
 /// "centred on 6.3 kHz, 18 kHz wide".
 fn cutoff_words(synthesis: &Synthesis) -> String {
@@ -198,7 +184,7 @@ pub(super) fn text_view(design: &Design, data: &PlotData) -> View {
         order::family_name(synthesis.family),
         class_words(synthesis.class),
         cutoff_words(synthesis),
-        topology_words(state.topology, board.stages.len()),
+        words::stages_words(board),
         n_parts
     );
     if state.requirement.gain_db != 0.0 {

@@ -24,16 +24,10 @@ pub fn summary_line(design: &Design) -> String {
         Some(bw) => format!("centred on {}Hz, {}Hz wide", spaced(syn.fc_hz), spaced(bw)),
         None => format!("at {}Hz", spaced(syn.fc_hz)),
     };
-    let n_stages = design.board.stages.len();
     let n_parts = design.board.parts().len();
-    let topology = match design.state.topology {
-        crate::topology::Topology::SallenKey => "Sallen-Key",
-        crate::topology::Topology::MultipleFeedback => "multiple-feedback",
-        crate::topology::Topology::StateVariable => "state-variable",
-    };
-    let stage_word = if n_stages == 1 { "stage" } else { "stages" };
+    let stages = super::words::stages_words(&design.board);
     format!(
-        "{} {} {class} {place}, {n_stages} {topology} {stage_word}, {n_parts} parts",
+        "{} {} {class} {place}, {stages}, {n_parts} parts",
         ordinal(syn.order),
         family_name(syn.family)
     )
@@ -234,6 +228,13 @@ pub fn spread_text(design: &Design, summary: &Summary) -> String {
         "Passband gain: nominal {:.3} dB, mean {:.3} dB, σ {:.3} dB, range {:.3} … {:.3} dB",
         g.nominal, g.mean, g.std_dev, g.min, g.max
     );
+    if let Some(line) = super::words::stopband_kept_line(
+        summary,
+        design.synthesis.class,
+        design.state.requirement.mask.map(|m| m.astop_db),
+    ) {
+        let _ = writeln!(out, "Depth kept: {line}");
+    }
     if let (true, Some(r)) = (summary.loaded_runs, summary.loading_residual_db) {
         let _ = writeln!(
             out,

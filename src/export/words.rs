@@ -277,3 +277,76 @@ pub fn dc_balance_line(b: &crate::analysis::dc::Balance) -> String {
         eng(b.nulls_v, "V")
     )
 }
+
+/// The board's stages by the kind of circuit, as the design's first line says them: "4
+/// Sallen-Key stages" when every stage is of one kind (a first-order RC stage counts with the
+/// Sallen-Key stages, a first-order inverting one with the multiple-feedback stages), else "5
+/// stages: 1 Sallen-Key, 1 single-op-amp notch, 3 state-variable" in signal order of first
+/// appearance.
+pub fn stages_words(board: &crate::board::Board) -> String {
+    use crate::topology::Circuit;
+    let kind = |c: Circuit| match c {
+        Circuit::SallenKeyLowPass
+        | Circuit::SallenKeyHighPass
+        | Circuit::BufferedLowPass
+        | Circuit::BufferedHighPass => "Sallen-Key",
+        Circuit::MfbLowPass
+        | Circuit::MfbHighPass
+        | Circuit::MfbBandPass
+        | Circuit::InvertingLowPass
+        | Circuit::InvertingHighPass => "multiple-feedback",
+        Circuit::StateVariableLowPass
+        | Circuit::StateVariableHighPass
+        | Circuit::StateVariableBandPass
+        | Circuit::StateVariableNotch => "state-variable",
+        Circuit::NotchLowPass | Circuit::NotchHighPass | Circuit::NotchSymmetric => {
+            "single-op-amp notch"
+        }
+    };
+    let mut counts: Vec<(&str, usize)> = Vec::new();
+    for stage in &board.stages {
+        let k = kind(stage.circuit);
+        match counts.iter_mut().find(|(name, _)| *name == k) {
+            Some((_, n)) => *n += 1,
+            None => counts.push((k, 1)),
+        }
+    }
+    let n = board.stages.len();
+    let noun = if n == 1 { "stage" } else { "stages" };
+    match counts.as_slice() {
+        [] => format!("0 {noun}"),
+        [(name, _)] => format!("{n} {name} {noun}"),
+        _ => format!(
+            "{n} {noun}: {}",
+            counts
+                .iter()
+                .map(|(name, k)| format!("{k} {name}"))
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
+    }
+}
+
+/// The share of a tolerance study's boards whose stopband keeps the depth the limits ask, in
+/// words: "notch ≥ 40 dB across the stop band in 97.3 % of runs" for a band-stop,
+/// "stopband ≥ 60 dB in 88.1 % of runs" otherwise; `None` without a stopband in the limits.
+pub fn stopband_kept_line(
+    summary: &crate::analysis::tolerance::Summary,
+    class: crate::spec::ResponseClass,
+    required_db: Option<f64>,
+) -> Option<String> {
+    let (kept, required) = (summary.stopband_kept?, required_db?);
+    let what = match class {
+        crate::spec::ResponseClass::BandStop => "notch",
+        _ => "stopband",
+    };
+    let place = match class {
+        crate::spec::ResponseClass::BandStop => " across the stop band",
+        _ => "",
+    };
+    Some(format!(
+        "{what} ≥ {} dB{place} in {:.1} % of runs",
+        decibels(required),
+        100.0 * kept
+    ))
+}

@@ -224,6 +224,8 @@ pub struct MonteCarlo {
     stop_weight: Vec<f64>,
     has_mask: bool,
     has_stop: bool,
+    /// The stopband depth the mask asks, dB (`None` without a stopband check point).
+    required_stop_db: Option<f64>,
     w_g: f64,
     width: usize,
     /// Which compiled form of the batch work runs on this processor.

@@ -378,6 +378,7 @@ impl MonteCarlo {
             stop_weight,
             has_mask: mask.is_some(),
             has_stop,
+            required_stop_db: mask.filter(|_| has_stop).map(|m| m.astop_db),
             w_g,
             width,
             isa: Isa::detect(),

@@ -136,6 +136,10 @@ pub struct Summary {
     /// Smallest attenuation over the stopband check points relative to the reference gain, dB;
     /// `None` without a mask.
     pub stopband_attenuation_db: Option<Spread>,
+    /// Share of runs whose stopband keeps at least the depth the mask asks (0–1): for a
+    /// band-stop, the boards whose notch stays deep enough across its stop band; `None` without
+    /// a stopband in the mask.
+    pub stopband_kept: Option<f64>,
     /// Per-stage f0 and Q, in signal order.
     pub stages: Vec<StageSpread>,
     /// Soft problems (runs without a cutoff crossing on the grid, fallbacks).
@@ -383,6 +387,11 @@ impl MonteCarlo {
             },
             cutoffs,
             passband_gain_db: spread_of(self.nominal.gain_db, self.gain_db, pct),
+            stopband_kept: self.required_stop_db.filter(|_| n > 0).map(|required| {
+                // The same 1e-12 slack as the mask's bound on |H|² (plan.rs), in dB.
+                let floor = required - 10.0 * 1e-12 / std::f64::consts::LN_10;
+                self.atten_db.iter().filter(|&&a| a >= floor).count() as f64 / n as f64
+            }),
             stopband_attenuation_db: self
                 .has_stop
                 .then(|| spread_of(self.nominal.atten_db, self.atten_db, pct)),
