@@ -9,6 +9,7 @@
 //! * facts of the trade, marked "common practice";
 //! * the property test: every design from a mask meets that mask and is minimal.
 
+mod scipy_reference;
 use num_complex::Complex64;
 use rand_core::{RngCore, SeedableRng};
 use rand_xoshiro::Xoshiro256PlusPlus;
@@ -19,62 +20,15 @@ use rolloff::response;
 use rolloff::section::{Section, SectionKind};
 use rolloff::sections::StageOrder;
 use rolloff::spec::{Edge, Family, MarginPlacement, Mask, OrderChoice, Requirement, ResponseClass};
+use scipy_reference::{complex_list, f64_list, set_error};
 use serde_json::Value;
 
-/// The committed reference data from tests/reference/make_reference.py (scipy.signal).
+/// The committed reference data (scipy.signal), from tests/reference/make_reference.py.
 fn reference() -> Value {
-    let path = concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/tests/reference/synthesis_reference.json"
-    );
-    let text = std::fs::read_to_string(path).unwrap_or_else(|e| {
-        panic!(
-            "cannot read {path} ({e}); regenerate it with python3 tests/reference/make_reference.py \
-             (needs pip install scipy numpy)"
-        )
-    });
-    let data: Value = serde_json::from_str(&text).expect("reference JSON parses");
-    assert!(
-        data["scipy_version"].as_str().is_some(),
-        "reference data must record the scipy version"
-    );
-    data
-}
-
-fn complex_list(v: &Value) -> Vec<Complex64> {
-    v.as_array()
-        .expect("array of [re, im]")
-        .iter()
-        .map(|p| Complex64::new(p[0].as_f64().unwrap(), p[1].as_f64().unwrap()))
-        .collect()
-}
-
-fn f64_list(v: &Value) -> Vec<f64> {
-    v.as_array()
-        .expect("array of numbers")
-        .iter()
-        .map(|x| x.as_f64().unwrap())
-        .collect()
-}
-
-/// Largest relative distance between two pole sets, matched one to one (each reference pole to
-/// its nearest unused pole of ours), so that the comparison does not depend on ordering.
-fn pole_set_error(ours: &[Complex64], reference: &[Complex64]) -> f64 {
-    assert_eq!(ours.len(), reference.len(), "pole count");
-    let mut used = vec![false; ours.len()];
-    let mut worst = 0.0f64;
-    for r in reference {
-        let (idx, dist) = ours
-            .iter()
-            .enumerate()
-            .filter(|(i, _)| !used[*i])
-            .map(|(i, p)| (i, (p - r).norm()))
-            .min_by(|a, b| a.1.total_cmp(&b.1))
-            .expect("an unused pole");
-        used[idx] = true;
-        worst = worst.max(dist / r.norm());
-    }
-    worst
+    scipy_reference::load(
+        "synthesis_reference.json",
+        "python3 tests/reference/make_reference.py",
+    )
 }
 
 /// Checks prototype poles and gain of one family against scipy rows, 1e-9 relative.
@@ -84,7 +38,7 @@ fn check_prototypes(family_of: impl Fn(&Value) -> Family, rows: &[Value]) {
         let family = family_of(row);
         let order = row["order"].as_u64().unwrap() as usize;
         let proto: Prototype = prototype::prototype(family, order).unwrap();
-        let err = pole_set_error(&proto.poles(), &complex_list(&row["poles"]));
+        let err = set_error(&proto.poles(), &complex_list(&row["poles"]));
         assert!(
             err <= 1e-9,
             "{family:?} order {order}: relative pole error {err:e} > 1e-9"
@@ -350,7 +304,7 @@ fn complete_designs_match_scipy_zpk_and_freqs() {
         let syn = synthesize(&req, &StageOrder::AscendingQ).unwrap();
         let label = format!("{family:?} {class:?} n={n}");
         let six_db = 10f64.powf(6.0 / 20.0);
-        let err = pole_set_error(&syn.poles, &complex_list(&d["poles"]));
+        let err = set_error(&syn.poles, &complex_list(&d["poles"]));
         assert!(err <= 1e-9, "{label}: pole error {err:e}");
         let zeros = complex_list(&d["zeros"]);
         assert_eq!(syn.zeros_at_origin, zeros.len(), "{label}");

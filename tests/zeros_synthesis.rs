@@ -11,6 +11,7 @@
 
 mod cli_run;
 
+mod scipy_reference;
 use num_complex::Complex64;
 use rand_core::{RngCore, SeedableRng};
 use rand_xoshiro::Xoshiro256PlusPlus;
@@ -20,60 +21,15 @@ use rolloff::response;
 use rolloff::section::{Section, SectionKind};
 use rolloff::sections::StageOrder;
 use rolloff::spec::{Edge, Family, MarginPlacement, Mask, OrderChoice, Requirement, ResponseClass};
+use scipy_reference::{complex_list, f64_list, set_error};
 use serde_json::Value;
 
 /// The committed reference data from tools/make_zeros_reference.py (scipy.signal).
 fn reference() -> Value {
-    let path = concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/tests/reference/zeros_reference.json"
-    );
-    let text = std::fs::read_to_string(path).unwrap_or_else(|e| {
-        panic!("cannot read {path} ({e}); regenerate it with python3 tools/make_zeros_reference.py")
-    });
-    let data: Value = serde_json::from_str(&text).expect("reference JSON parses");
-    assert!(
-        data["scipy_version"].as_str().is_some(),
-        "reference data must record the scipy version"
-    );
-    data
-}
-
-fn complex_list(v: &Value) -> Vec<Complex64> {
-    v.as_array()
-        .expect("array of [re, im]")
-        .iter()
-        .map(|p| Complex64::new(p[0].as_f64().unwrap(), p[1].as_f64().unwrap()))
-        .collect()
-}
-
-fn f64_list(v: &Value) -> Vec<f64> {
-    v.as_array()
-        .expect("array of numbers")
-        .iter()
-        .map(|x| x.as_f64().unwrap())
-        .collect()
-}
-
-/// Largest relative distance between two root sets matched one to one (each reference root to
-/// its nearest unused root of ours); a reference root at the origin must be matched exactly.
-fn set_error(ours: &[Complex64], reference: &[Complex64]) -> f64 {
-    assert_eq!(ours.len(), reference.len(), "root count");
-    let mut used = vec![false; ours.len()];
-    let mut worst = 0.0f64;
-    for r in reference {
-        let (idx, dist) = ours
-            .iter()
-            .enumerate()
-            .filter(|(i, _)| !used[*i])
-            .map(|(i, p)| (i, (p - r).norm()))
-            .min_by(|a, b| a.1.total_cmp(&b.1))
-            .expect("an unused root");
-        used[idx] = true;
-        let scale = r.norm();
-        worst = worst.max(if scale > 0.0 { dist / scale } else { dist });
-    }
-    worst
+    scipy_reference::load(
+        "zeros_reference.json",
+        "python3 tools/make_zeros_reference.py",
+    )
 }
 
 fn class_of(resp: &str) -> ResponseClass {
