@@ -289,3 +289,43 @@ fn limits_filled_by_the_converter_are_left_to_it() {
     let fill = form_of_link(query, &["stopdepth", "passedge", "stopedge", "adcbits"]);
     assert_eq!(fill.values, vec![("adcbits".to_string(), "24".to_string())]);
 }
+
+#[test]
+fn a_mains_notch_shows_its_zero_frequency_and_the_built_board_depth() {
+    // A second-order band-stop at 50 Hz is one notch section with its zeros at 50 Hz
+    // (lp → bs transform: the zeros sit at the centre, physics of the transform); the page's
+    // stage table carries fz beside f0 and Q, and the figures line and the stage card the built
+    // board's notch (`analysis::notch`), deeper than 40 dB with E96/E12 parts and the generic
+    // op amp (ngspice agrees on this board: tests/ngspice_zeros.rs).
+    let ev = evaluate("v=2&resp=bs&order=2&fc=50&bw=5");
+    let model = ev
+        .model
+        .unwrap_or_else(|| panic!("no design: {:?}", ev.view.errors));
+    let stage = &model.view.stages[0];
+    let fz = stage
+        .rows
+        .iter()
+        .find(|r| r.what == "fz")
+        .expect("an fz row");
+    assert_eq!(fz.target, "50 Hz");
+    assert!(
+        model.view.figures.contains("notch "),
+        "{}",
+        model.view.figures
+    );
+    assert!(stage.needs.contains("Board notch "), "{}", stage.needs);
+    let depth: f64 = model
+        .view
+        .figures
+        .split("notch ")
+        .nth(1)
+        .and_then(|t| t.split(" dB").next())
+        .and_then(|t| t.parse().ok())
+        .expect("a depth in dB");
+    assert!(depth > 40.0, "{}", model.view.figures);
+    assert!(
+        model.view.summary.contains("band-stop"),
+        "{}",
+        model.view.summary
+    );
+}

@@ -25,6 +25,8 @@ pub(super) struct PageWords {
     sensitivities: Vec<Vec<SensitivityRow>>,
     /// Each stage's notch sentence (empty for a stage without zeros), by stage index.
     notches: Vec<String>,
+    /// The board's notches for the figures line under the plot: "notch 57.4 dB at 50.01 Hz".
+    notch_figures: Vec<String>,
     problems: Vec<String>,
 }
 
@@ -84,11 +86,25 @@ impl PageWords {
                 *slot = words::notch_sentence(n, required);
             }
         }
+        let notch_figures = analyses
+            .notches
+            .iter()
+            .flatten()
+            .map(|n| {
+                let depth = if n.depth_db.is_finite() {
+                    format!("{:.1} dB", n.depth_db)
+                } else {
+                    "bottomless".to_string()
+                };
+                format!("notch {depth} at {}", engineering_unit(n.at_hz, 4, "Hz"))
+            })
+            .collect();
         PageWords {
             noise_line,
             headroom,
             needs,
             notches,
+            notch_figures,
             step_figures: analyses.step,
             sensitivities,
             problems,
@@ -130,6 +146,12 @@ impl PageWords {
                 }
                 view.figures.push_str(&parts.join(" · "));
             }
+        }
+        for notch in &self.notch_figures {
+            if !view.figures.is_empty() {
+                view.figures.push_str(" · ");
+            }
+            view.figures.push_str(notch);
         }
         if !self.noise_line.is_empty() {
             if !view.figures.is_empty() {
