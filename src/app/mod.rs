@@ -466,6 +466,7 @@ pub fn compose_timed(state: &LinkState, watch: &mut Stopwatch) -> Result<PageMod
             .collect(),
         level_limit_db: Some(20.0 * fmath::log10(state.signal.swing_pk / state.signal.vin_pk)),
         hist_cutoff: None,
+        hist_cutoff_is_depth: false,
         hist_gain: None,
     };
     let mut view = text_view(&design, &data);

@@ -70,6 +70,21 @@ impl PageModel {
                 limits,
             });
         }
+        // A study without a cutoff (a band-stop) shows how deep its stopband stays instead.
+        if let (true, Some(depth)) = (
+            summary.cutoffs.is_empty(),
+            summary.stopband_attenuation_db.as_ref(),
+        ) {
+            self.data.hist_cutoff = Some(Histogram {
+                edges: depth.histogram.edges.clone(),
+                counts: depth.histogram.counts.iter().map(|&c| c as f64).collect(),
+                nominal: Some(depth.nominal),
+                limits: mask
+                    .map(|m| vec![("depth needed".to_string(), m.astop_db)])
+                    .unwrap_or_default(),
+            });
+            self.data.hist_cutoff_is_depth = true;
+        }
         let gain = &summary.passband_gain_db;
         let mut limits = Vec::new();
         if let Some(m) = mask {

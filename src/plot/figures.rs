@@ -152,8 +152,11 @@ pub struct PlotData {
     pub levels: Vec<Curve>,
     /// The op-amp swing limit relative to the input amplitude, dB.
     pub level_limit_db: Option<f64>,
-    /// Cutoff histogram (Hz).
+    /// Cutoff histogram (Hz), or with `hist_cutoff_is_depth` the stopband depth histogram (dB)
+    /// of a study without a cutoff (a band-stop: how deep its notch stays across the stop band).
     pub hist_cutoff: Option<Histogram>,
+    /// `hist_cutoff` holds the stopband depth, dB.
+    pub hist_cutoff_is_depth: bool,
     /// Passband gain histogram (dB).
     pub hist_gain: Option<Histogram>,
 }
@@ -257,6 +260,12 @@ pub fn build(kind: PlotKind, data: &PlotData) -> Figure {
         PlotKind::Impedance => impedance(data),
         PlotKind::Noise => noise(data),
         PlotKind::Levels => levels(data),
+        PlotKind::HistCutoff if data.hist_cutoff_is_depth => histogram(
+            data.hist_cutoff.as_ref(),
+            "stopband depth spread",
+            Axis::linear("depth", "dB", 0.0, 1.0, TickFormat::Plain),
+            0.0,
+        ),
         PlotKind::HistCutoff => histogram(
             data.hist_cutoff.as_ref(),
             "cutoff spread",
