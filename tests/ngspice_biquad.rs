@@ -172,3 +172,42 @@ fn a_board_of_three_notches_agrees_with_ngspice() {
         assert!((fz / target - 1.0).abs() < 0.01, "fz {fz} vs {target}");
     }
 }
+
+#[test]
+fn the_inner_op_amps_levels_equal_ngspice_node_voltages() {
+    // Source: ngspice on our own export, `.ac` at 2000 points a decade over the design's span:
+    // the largest |V| at the output pin of U2 and U3 (nodes s1_v2, s1_v3 of the state-variable
+    // stage), against `analysis.inner_levels` for vin = 1 V (peak_db), to 0.01 dB.
+    let report = rolloff::link::parse("?v=2&resp=bp&order=2&fc=40k&bw=1.43k&gbw=10M");
+    let design = rolloff::pipeline::compose(&report.state).expect("designs");
+    let analyses = rolloff::pipeline::analyses(&design);
+    let inner = analyses.inner_levels.expect("inner levels");
+    assert_eq!(inner.len(), 2, "U2 and U3 sit inside the stage");
+    let (lo, hi) = design.span_hz;
+    let netlist = spice::netlist(&design.board, &AcSweep::default()).expect("exports");
+    let dir = ngspice_deck::scratch("biquad", "inner-levels");
+    let control = format!(
+        "set wr_singlescale\noption numdgt=15\nac dec 2000 {lo} {hi}\n\
+         wrdata inner.txt vdb(s1_v2) vdb(s1_v3)"
+    );
+    let log = ngspice_deck::run(&dir, &ngspice_deck::body(&netlist, None), &control);
+    let text = std::fs::read_to_string(dir.join("inner.txt"))
+        .unwrap_or_else(|e| panic!("no wrdata output ({e}):\n{log}"));
+    let rows = ngspice_deck::rows(&text);
+    for (column, reference) in [(1usize, "U2"), (2, "U3")] {
+        let spice_peak = rows
+            .iter()
+            .map(|r| r[column])
+            .fold(f64::NEG_INFINITY, f64::max);
+        let ours = inner
+            .iter()
+            .find(|l| l.reference == reference)
+            .unwrap_or_else(|| panic!("{reference} listed"));
+        assert!(
+            (ours.level.peak_db - spice_peak).abs() < 0.01,
+            "{reference}: ours {} dB, ngspice {spice_peak} dB",
+            ours.level.peak_db
+        );
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}

@@ -23,6 +23,9 @@ pub struct BoardSolver {
     solver: Solver,
     /// Solution column of each stage's output, in signal order.
     stage_cols: Vec<usize>,
+    /// The op amps whose output is not their stage's output (the inner op amps of a
+    /// multi-op-amp stage): stage index, reference and the column of the output pin.
+    inner_cols: Vec<(usize, String, usize)>,
     /// The parts on the input node: admittance kind, value and the column of the other pin
     /// (`None` for ground).
     on_input: Vec<(PartKind, f64, Option<usize>)>,
@@ -56,6 +59,23 @@ impl BoardSolver {
             })
             .collect::<Result<Vec<usize>, _>>()?;
         let net = &merged.netlist;
+        let mut inner_cols = Vec::new();
+        for (k, stage) in stages.iter().enumerate() {
+            for p in stage.parts.iter().filter(|p| p.kind == PartKind::OpAmp) {
+                if p.nodes.get(2).copied().flatten() == Some(stage.output) {
+                    continue;
+                }
+                let merged_out = net
+                    .parts
+                    .iter()
+                    .find(|q| q.kind == PartKind::OpAmp && q.reference == p.reference)
+                    .and_then(|q| q.nodes.get(2).copied().flatten())
+                    .and_then(column);
+                if let Some(col) = merged_out {
+                    inner_cols.push((k, p.reference.clone(), col));
+                }
+            }
+        }
         let on_input = net
             .parts
             .iter()
@@ -83,6 +103,7 @@ impl BoardSolver {
             assembled,
             solver,
             stage_cols,
+            inner_cols,
             on_input,
             last_s: Complex64::new(0.0, 0.0),
             spans,
@@ -143,6 +164,23 @@ impl BoardSolver {
         }
         self.solver.solve_again(rhs);
         Ok((h, rhs[self.compiled.output_col]))
+    }
+
+    /// The inner op amps (stage index, reference), in the order [`BoardSolver::inner_output`]
+    /// takes them.
+    pub fn inner_op_amps(&self) -> Vec<(usize, String)> {
+        self.inner_cols
+            .iter()
+            .map(|(k, r, _)| (*k, r.clone()))
+            .collect()
+    }
+
+    /// Inner op amp `i`'s output relative to the board input at the last solve.
+    pub fn inner_output(&self, i: usize) -> Complex64 {
+        self.inner_cols
+            .get(i)
+            .and_then(|&(_, _, c)| self.solver.solution().get(c).copied())
+            .unwrap_or(Complex64::new(f64::NAN, 0.0))
     }
 
     /// Stage `k`'s output relative to the board input at the last solve.

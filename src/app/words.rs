@@ -25,6 +25,8 @@ pub(super) struct PageWords {
     sensitivities: Vec<Vec<SensitivityRow>>,
     /// Each stage's notch sentence (empty for a stage without zeros), by stage index.
     notches: Vec<String>,
+    /// Each inner op amp's level (stage index, sentence), for its stage card.
+    inner_levels: Vec<(usize, String)>,
     /// The board's notches for the figures line under the plot: "notch 57.4 dB at 50.01 Hz".
     notch_figures: Vec<String>,
     problems: Vec<String>,
@@ -99,11 +101,27 @@ impl PageWords {
                 format!("notch {depth} at {}", engineering_unit(n.at_hz, 4, "Hz"))
             })
             .collect();
+        let inner_levels = analyses
+            .inner_levels
+            .iter()
+            .flatten()
+            .map(|inner| {
+                (
+                    inner.level.stage.wrapping_sub(1),
+                    format!(
+                        "{} {}.",
+                        inner.reference,
+                        words::headroom_line(&inner.level)
+                    ),
+                )
+            })
+            .collect();
         PageWords {
             noise_line,
             headroom,
             needs,
             notches,
+            inner_levels,
             notch_figures,
             step_figures: analyses.step,
             sensitivities,
@@ -123,6 +141,9 @@ impl PageWords {
             }
             if let Some(room) = self.headroom.get(index) {
                 needs.push(format!("Output {room}."));
+            }
+            for (_, line) in self.inner_levels.iter().filter(|(k, _)| *k == index) {
+                needs.push(line.clone());
             }
             if let Some(notch) = self.notches.get(index).filter(|n| !n.is_empty()) {
                 needs.push(format!("Board {notch}."));

@@ -337,6 +337,15 @@ fn analysis_text(out: &mut String, design: &Design) {
             );
         }
     }
+    for inner in a.inner_levels.iter().flatten() {
+        let _ = writeln!(
+            out,
+            "  stage {} {} level: {}",
+            inner.level.stage,
+            inner.reference,
+            super::words::headroom_line(&inner.level)
+        );
+    }
     for n in a.notches.iter().flatten() {
         let _ = writeln!(
             out,

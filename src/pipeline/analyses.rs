@@ -199,6 +199,9 @@ pub struct Analyses {
     pub levels: Option<Vec<LevelSummary>>,
     /// The board's least input impedance over the signal band and where.
     pub input_impedance: Option<InputImpedance>,
+    /// The output level of every op amp inside a multi-op-amp stage (the stage's own output is
+    /// in `levels`), with its headroom against the swing.
+    pub inner_levels: Option<Vec<InnerLevel>>,
     /// The built board's notch near each stage's zero frequency: where, and its depth below the
     /// passband gain (empty without stages with zeros).
     pub notches: Option<Vec<notch::NotchDepth>>,
@@ -357,6 +360,19 @@ pub fn analyses(design: &Design) -> Analyses {
         .as_mut()
         .and_then(|solver| least_input_impedance(solver, &freqs, band));
     warnings.extend(input_impedance.as_ref().and_then(input_impedance_warning));
+    let inner_levels = solver
+        .as_mut()
+        .map(|solver| inner_op_amp_levels(solver, &freqs, signal.vin_pk, signal.swing_pk));
+    for inner in inner_levels.iter().flatten() {
+        if inner.level.headroom_db < 0.0 {
+            warnings.push(format!(
+                "stage {}: {} inside the stage clips: {}",
+                inner.level.stage,
+                inner.reference,
+                crate::export::words::headroom_line(&inner.level)
+            ));
+        }
+    }
     let notches = match (solver.as_mut(), gain) {
         (Some(solver), Some(gain)) => Some(notch::notch_depths(
             board,
@@ -427,6 +443,7 @@ pub fn analyses(design: &Design) -> Analyses {
                 .collect()
         }),
         input_impedance,
+        inner_levels,
         notches,
         poles,
         dc: keep(
@@ -470,6 +487,71 @@ fn refined_levels(
     }
     levels.recheck();
     Ok(levels)
+}
+
+/// The level of an op amp inside a multi-op-amp stage.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct InnerLevel {
+    /// The op amp's reference (`U2`).
+    pub reference: String,
+    /// Its output's peak and headroom, as a stage's (`stage` is the stage it sits in).
+    #[serde(flatten)]
+    pub level: LevelSummary,
+}
+
+/// Each inner op amp's largest output over the plot grid `freqs_hz`, refined between the
+/// neighbours of the grid's largest, for an input of `vin_pk` against `swing_pk`.
+fn inner_op_amp_levels(
+    solver: &mut BoardSolver,
+    freqs_hz: &[f64],
+    vin_pk: f64,
+    swing_pk: f64,
+) -> Vec<InnerLevel> {
+    let inner = solver.inner_op_amps();
+    if inner.is_empty() || freqs_hz.is_empty() {
+        return Vec::new();
+    }
+    let mut peaks = vec![(0usize, f64::NEG_INFINITY); inner.len()];
+    for (i, &f) in freqs_hz.iter().enumerate() {
+        if solver.solve_at(f).is_err() {
+            continue;
+        }
+        for (j, peak) in peaks.iter_mut().enumerate() {
+            let db = 20.0 * fmath::log10(fmath::cnorm(solver.inner_output(j)));
+            if db > peak.1 {
+                *peak = (i, db);
+            }
+        }
+    }
+    inner
+        .into_iter()
+        .enumerate()
+        .map(|(j, (stage, reference))| {
+            let (i, grid_db) = peaks[j];
+            let from = freqs_hz[i.saturating_sub(1)];
+            let to = freqs_hz[(i + 1).min(freqs_hz.len() - 1)];
+            let (f, db) = refine_max(solver, from, to, |solver, f| match solver.solve_at(f) {
+                Ok(_) => 20.0 * fmath::log10(fmath::cnorm(solver.inner_output(j))),
+                Err(_) => f64::NAN,
+            });
+            let (peak_hz, peak_db) = if db > grid_db {
+                (f, db)
+            } else {
+                (freqs_hz[i], grid_db)
+            };
+            let peak_out_v = vin_pk * fmath::powf(10f64, peak_db / 20.0);
+            InnerLevel {
+                reference,
+                level: LevelSummary {
+                    stage: stage + 1,
+                    peak_db,
+                    peak_hz,
+                    peak_out_v,
+                    headroom_db: 20.0 * fmath::log10(swing_pk / peak_out_v),
+                },
+            }
+        })
+        .collect()
 }
 
 /// The board's least input impedance over the signal band.
