@@ -6,6 +6,7 @@ use plotters::prelude::{DrawingBackend, ShapeStyle};
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 use plotters::style::{FontStyle, RGBAColor};
 
+use super::chain::CHAIN_OPAMP_X;
 use super::layouts::{Inputs, Layout, Slot, OPAMP_X, OPAMP_Y};
 use super::value_label;
 use crate::netlist::{Node, PartKind, StageNetlist};
@@ -118,8 +119,12 @@ pub(super) fn draw_layout<DB: DrawingBackend>(
                 .map_err(backend_err)?;
         }
     }
-    if layout.inputs != Inputs::Passive {
-        draw_op_amp(backend, &pen, layout.inputs, stroke, look)?;
+    if layout.inputs == Inputs::Chain {
+        for x in CHAIN_OPAMP_X {
+            draw_op_amp(backend, &pen, x, layout.inputs, stroke, look)?;
+        }
+    } else if layout.inputs != Inputs::Passive {
+        draw_op_amp(backend, &pen, OPAMP_X, layout.inputs, stroke, look)?;
     }
     for &dot in layout.dots {
         backend
@@ -230,6 +235,7 @@ fn draw_slot<DB: DrawingBackend>(
 fn draw_op_amp<DB: DrawingBackend>(
     backend: &mut DB,
     pen: &Pen,
+    x: f64,
     inputs: Inputs,
     stroke: u32,
     look: &Look,
@@ -237,17 +243,17 @@ fn draw_op_amp<DB: DrawingBackend>(
     let palette = look.palette();
     let style = ShapeStyle::from(palette.ink).stroke_width(stroke);
     let triangle = [
-        (OPAMP_X, OPAMP_Y - 2.0),
-        (OPAMP_X + 3.5, OPAMP_Y),
-        (OPAMP_X, OPAMP_Y + 2.0),
-        (OPAMP_X, OPAMP_Y - 2.0),
+        (x, OPAMP_Y - 2.0),
+        (x + 3.5, OPAMP_Y),
+        (x, OPAMP_Y + 2.0),
+        (x, OPAMP_Y - 2.0),
     ];
     let coords: Vec<Coord> = triangle.iter().map(|&p| pen.at(p)).collect();
     backend
         .fill_polygon(coords.clone(), &palette.background)
         .map_err(backend_err)?;
     backend.draw_path(coords, &style).map_err(backend_err)?;
-    let (top, bottom) = if matches!(inputs, Inputs::Inverting | Inputs::Lifted) {
+    let (top, bottom) = if matches!(inputs, Inputs::Inverting | Inputs::Lifted | Inputs::Chain) {
         ("−", "+")
     } else {
         ("+", "−")
@@ -262,7 +268,7 @@ fn draw_op_amp<DB: DrawingBackend>(
             FontStyle::Bold,
         );
         backend
-            .draw_text(text, &style, pen.at((OPAMP_X + 0.5, y)))
+            .draw_text(text, &style, pen.at((x + 0.5, y)))
             .map_err(backend_err)?;
     }
     Ok(())

@@ -48,6 +48,8 @@ pub(super) enum Inputs {
     /// Inverting-style network, `−` on top, whose non-inverting input has its own node (the
     /// single-op-amp notch, its `+` input on a divider from the stage input).
     Lifted,
+    /// Three inverting op amps in a loop (the state-variable stage, [`super::chain`]).
+    Chain,
 }
 
 pub(super) struct Layout {
@@ -140,7 +142,7 @@ use PartKind::{Capacitor as C, Resistor as R};
 
 /// Every layout we know, most specific first.
 pub(super) fn layouts() -> Vec<Layout> {
-    let mut all = Vec::new();
+    let mut all = vec![super::chain::chain_layout()];
     // Sallen-Key: low-pass has R in series and C in feedback/shunt; high-pass the other way round.
     for (name, series, shunt) in [
         ("Sallen-Key low-pass", R, C),

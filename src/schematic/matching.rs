@@ -15,6 +15,9 @@ fn op_amp_pins(net: &StageNetlist) -> Option<(Node, Node, Node)> {
 /// Binds the layout's symbols to netlist nodes and each passive part to a slot. Returns, for each
 /// slot, the index of the part placed there (`None` for an absent optional slot).
 pub(super) fn match_layout(layout: &Layout, net: &StageNetlist) -> Option<Vec<Option<usize>>> {
+    if layout.inputs == Inputs::Chain {
+        return super::chain::match_chain(net);
+    }
     let pins = op_amp_pins(net);
     let mut bind: [Option<Node>; 6] = [None; 6];
     let index = |s: Sym| s as usize;
@@ -58,7 +61,7 @@ pub(super) fn match_layout(layout: &Layout, net: &StageNetlist) -> Option<Vec<Op
                     bind[index(Sym::P)] = Some(plus);
                     bind[index(Sym::M)] = Some(minus);
                 }
-                Inputs::Passive => return None,
+                Inputs::Passive | Inputs::Chain => return None,
             }
         }
     }

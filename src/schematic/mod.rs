@@ -5,7 +5,8 @@
 //! (signal left to right, op amp in the middle, feedback parts above it), the netlist is matched
 //! against a small set of layouts, one per circuit shape: Sallen-Key low- and high-pass, multiple
 //! feedback low-, high- and band-pass, the first-order buffered and inverting RC stages and a
-//! passive RC, and the single-op-amp notch (low-pass, high-pass, symmetric). Matching is by
+//! passive RC, the single-op-amp notch (low-pass, high-pass, symmetric) and the three-op-amp
+//! state-variable stage ([`chain`]). Matching is by
 //! connectivity alone (which part joins the input, the op-amp pins,
 //! ground or an inner node), so it does not depend on how the netlist numbers its nodes or orders
 //! its parts. A netlist that fits no layout is drawn as a labelled list of its connections, so
@@ -14,6 +15,7 @@
 //! The pieces: [`layouts`] (one per circuit), [`matching`] (netlist to layout by connectivity),
 //! [`draw`] (the drawing itself); this file holds the entry points.
 
+mod chain;
 mod draw;
 mod layouts;
 mod matching;
