@@ -188,17 +188,6 @@ fn notch_tb(n: &StageNetlist, s: Complex64) -> Complex64 {
     (a11 * b2 - a21 * b1) / (a11 * a22 - a12 * a21)
 }
 
-/// A notch section (`SectionKind::Notch`): zeros at `fz_hz`, `gain` the larger far-side gain.
-fn notch(f0_hz: f64, q: f64, fz_hz: f64, gain: f64) -> Section {
-    Section {
-        kind: SectionKind::Notch,
-        f0_hz,
-        q: Some(q),
-        gain,
-        fz_hz: Some(fz_hz),
-    }
-}
-
 /// Gains below 1 for the divider cases: −0.5 dB is the DC gain of an even-order Chebyshev of
 /// 0.5 dB ripple (10^(−0.5/20), the scipy.signal.cheb1ap gain constant); the rest are arbitrary.
 fn half_db_down() -> f64 {

@@ -18,20 +18,13 @@ use rolloff::board::{Board, BuildChoices};
 use rolloff::eseries::Series;
 use rolloff::export::spice::{self, AcSweep};
 use rolloff::opamp::OpAmp;
-use rolloff::section::{Section, SectionKind};
+use rolloff::section::Section;
 use rolloff::topology::{Circuit, Topology};
 
+mod common_circuits;
 mod ngspice_deck;
 
-fn notch(f0_hz: f64, q: f64, fz_hz: f64, gain: f64) -> Section {
-    Section {
-        kind: SectionKind::Notch,
-        f0_hz,
-        q: Some(q),
-        gain,
-        fz_hz: Some(fz_hz),
-    }
-}
+use common_circuits::notch;
 
 fn build(sections: &[Section], series: Option<(Series, Series)>, op_amp: OpAmp) -> Board {
     let (r_series, c_series) = series.unwrap_or((Series::Exact, Series::Exact));

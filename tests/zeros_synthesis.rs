@@ -12,7 +12,6 @@
 mod cli_run;
 
 mod scipy_reference;
-use num_complex::Complex64;
 use rand_core::{RngCore, SeedableRng};
 use rand_xoshiro::Xoshiro256PlusPlus;
 use rolloff::design::synthesize;

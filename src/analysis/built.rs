@@ -225,6 +225,9 @@ pub struct BuiltSweep {
     pub h: Vec<Complex64>,
     /// Each stage's output relative to the input, dB (`levels_db[stage][frequency]`).
     pub levels_db: Vec<Vec<f64>>,
+    /// Each inner op amp's output relative to the input, dB, in the order of
+    /// [`BoardSolver::inner_op_amps`] (`inner_db[op amp][frequency]`).
+    pub inner_db: Vec<Vec<f64>>,
     /// |Z| seen by the source at the input, Ω (NaN where the input draws no current).
     pub z_in_ohm: Vec<f64>,
 }
@@ -239,6 +242,7 @@ pub fn sweep(solver: &mut BoardSolver, freqs_hz: &[f64]) -> Result<BuiltSweep, A
         freq_hz: freqs_hz.to_vec(),
         h: Vec::with_capacity(freqs_hz.len()),
         levels_db: vec![Vec::with_capacity(freqs_hz.len()); n_stages],
+        inner_db: vec![Vec::with_capacity(freqs_hz.len()); solver.inner_cols.len()],
         z_in_ohm: Vec::with_capacity(freqs_hz.len()),
     };
     for &f in freqs_hz {
@@ -247,6 +251,9 @@ pub fn sweep(solver: &mut BoardSolver, freqs_hz: &[f64]) -> Result<BuiltSweep, A
         out.z_in_ohm.push(solver.input_impedance_ohm());
         for (k, level) in out.levels_db.iter_mut().enumerate() {
             level.push(20.0 * fmath::log10(fmath::cnorm(solver.stage_output(k))));
+        }
+        for (j, level) in out.inner_db.iter_mut().enumerate() {
+            level.push(20.0 * fmath::log10(fmath::cnorm(solver.inner_output(j))));
         }
     }
     Ok(out)

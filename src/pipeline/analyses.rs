@@ -360,9 +360,15 @@ pub fn analyses(design: &Design) -> Analyses {
         .as_mut()
         .and_then(|solver| least_input_impedance(solver, &freqs, band));
     warnings.extend(input_impedance.as_ref().and_then(input_impedance_warning));
-    let inner_levels = solver
-        .as_mut()
-        .map(|solver| inner_op_amp_levels(solver, &freqs, signal.vin_pk, signal.swing_pk));
+    let inner_levels = match (solver.as_mut(), sweep.as_ref()) {
+        (Some(solver), Some(sweep)) => Some(inner_op_amp_levels(
+            solver,
+            sweep,
+            signal.vin_pk,
+            signal.swing_pk,
+        )),
+        _ => None,
+    };
     for inner in inner_levels.iter().flatten() {
         if inner.level.headroom_db < 0.0 {
             warnings.push(format!(
@@ -499,35 +505,30 @@ pub struct InnerLevel {
     pub level: LevelSummary,
 }
 
-/// Each inner op amp's largest output over the plot grid `freqs_hz`, refined between the
+/// Each inner op amp's largest output over the plot grid of `sweep`, refined between the
 /// neighbours of the grid's largest, for an input of `vin_pk` against `swing_pk`.
 fn inner_op_amp_levels(
     solver: &mut BoardSolver,
-    freqs_hz: &[f64],
+    sweep: &BuiltSweep,
     vin_pk: f64,
     swing_pk: f64,
 ) -> Vec<InnerLevel> {
-    let inner = solver.inner_op_amps();
-    if inner.is_empty() || freqs_hz.is_empty() {
-        return Vec::new();
-    }
-    let mut peaks = vec![(0usize, f64::NEG_INFINITY); inner.len()];
-    for (i, &f) in freqs_hz.iter().enumerate() {
-        if solver.solve_at(f).is_err() {
-            continue;
-        }
-        for (j, peak) in peaks.iter_mut().enumerate() {
-            let db = 20.0 * fmath::log10(fmath::cnorm(solver.inner_output(j)));
-            if db > peak.1 {
-                *peak = (i, db);
-            }
-        }
-    }
-    inner
+    let freqs_hz = &sweep.freq_hz;
+    solver
+        .inner_op_amps()
         .into_iter()
+        .zip(&sweep.inner_db)
         .enumerate()
-        .map(|(j, (stage, reference))| {
-            let (i, grid_db) = peaks[j];
+        .filter_map(|(j, ((stage, reference), curve))| {
+            // The first grid point of the largest level.
+            let (i, grid_db) = curve.iter().copied().enumerate().fold(
+                None,
+                |best: Option<(usize, f64)>, (i, db)| match best {
+                    Some((_, b)) if !(db > b) => best,
+                    _ if db.is_nan() => best,
+                    _ => Some((i, db)),
+                },
+            )?;
             let from = freqs_hz[i.saturating_sub(1)];
             let to = freqs_hz[(i + 1).min(freqs_hz.len() - 1)];
             let (f, db) = refine_max(solver, from, to, |solver, f| match solver.solve_at(f) {
@@ -540,7 +541,7 @@ fn inner_op_amp_levels(
                 (freqs_hz[i], grid_db)
             };
             let peak_out_v = vin_pk * fmath::powf(10f64, peak_db / 20.0);
-            InnerLevel {
+            Some(InnerLevel {
                 reference,
                 level: LevelSummary {
                     stage: stage + 1,
@@ -549,7 +550,7 @@ fn inner_op_amp_levels(
                     peak_out_v,
                     headroom_db: 20.0 * fmath::log10(swing_pk / peak_out_v),
                 },
-            }
+            })
         })
         .collect()
 }

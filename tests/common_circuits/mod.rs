@@ -20,6 +20,17 @@ pub fn section(kind: SectionKind, f0_hz: f64, q: Option<f64>, gain: f64) -> Sect
     }
 }
 
+/// A notch section (`SectionKind::Notch`): zeros at `fz_hz`, `gain` the larger far-side gain.
+pub fn notch(f0_hz: f64, q: f64, fz_hz: f64, gain: f64) -> Section {
+    Section {
+        kind: SectionKind::Notch,
+        f0_hz,
+        q: Some(q),
+        gain,
+        fz_hz: Some(fz_hz),
+    }
+}
+
 /// Default choices with a topology and an op amp.
 pub fn choices(topology: Topology, op_amp: OpAmp) -> BuildChoices {
     BuildChoices {
